@@ -1,0 +1,387 @@
+package learner
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"sync"
+
+	"gonum.org/v1/gonum/floats"
+	"gonum.org/v1/gonum/optimize"
+
+	"handoff/features"
+)
+
+// Logistic configures multinomial logistic regression with an L2 penalty,
+// fitted by L-BFGS (gonum.org/v1/gonum/optimize).
+//
+// The model is P(c|x) = softmax_c(Σ_j W_jc x_j + b_c). Fit minimises
+//
+//	f(W, b) = Σ_i w_i · (−Σ_c t_ic log P(c|x_i)) + λ/2 · Σ_jc W_jc²
+//
+// the weighted cross-entropy of the soft targets t against the model plus a
+// ridge on the weights; the intercepts b are not penalised. This is
+// scikit-learn's multinomial LogisticRegression objective divided by C, so
+// λ = 1/C (sklearn's C = 1 is λ = 1; C = 10 is λ = 0.1). λ = 0 gives the
+// unpenalised maximum-likelihood fit (for two classes the per-class weights
+// are then identified only up to a common shift: the difference W_·1 − W_·0
+// equals the coefficients of R's glm(family = binomial)).
+//
+// The gradient is computed sparse-aware over the stored entries of X in two
+// passes, rows (scores, log-sum-exp) then columns (X^T times the residuals),
+// each split over Threads goroutines.
+type Logistic struct {
+	// Lambda is the L2 penalty λ ≥ 0 on the weights (λ = 1/C).
+	Lambda float64
+	// MaxIter caps the L-BFGS iterations; 0 means 500.
+	MaxIter int
+	// Tol stops the fit once the largest gradient entry, divided by the
+	// total row weight Σ w_i, is below Tol (a per-row mean gradient), or
+	// once the objective improved by less than Tol·1e-3 relative over 10
+	// iterations; 0 means 1e-5.
+	Tol float64
+	// Memory is the number of L-BFGS correction pairs kept; 0 means 10.
+	Memory int
+	// Threads is the number of goroutines for the gradient and for
+	// PredictProbaInto; 0 means GOMAXPROCS.
+	Threads int
+}
+
+// LogisticModel is a fitted multinomial logistic regression.
+type LogisticModel struct {
+	Config     Logistic
+	K, D       int
+	W          []float64 // weights W_jc at [j*K+c], length D*K; Σ_c W_jc = 0
+	B          []float64 // intercepts b_c, length K; Σ_c b_c = 0
+	Objective  float64   // f(W, b) at the solution
+	Iterations int       // L-BFGS major iterations used
+	Status     string    // why the optimiser stopped
+}
+
+// Fit trains the logistic regression; see Learner for the rules on its
+// arguments.
+func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64) (Model, error) {
+	if l.Lambda < 0 || math.IsNaN(l.Lambda) || math.IsInf(l.Lambda, 0) {
+		return nil, fmt.Errorf("learner: logistic penalty lambda %v: must be finite and ≥ 0", l.Lambda)
+	}
+	if l.Tol < 0 || l.MaxIter < 0 || l.Memory < 0 {
+		return nil, errors.New("learner: logistic Tol, MaxIter and Memory must be ≥ 0")
+	}
+	k, err := validate(X, targets, weights, false)
+	if err != nil {
+		return nil, err
+	}
+	cfg := l
+	if cfg.MaxIter == 0 {
+		cfg.MaxIter = 500
+	}
+	if cfg.Tol == 0 {
+		cfg.Tol = 1e-5
+	}
+	if cfg.Memory == 0 {
+		cfg.Memory = 10
+	}
+	o := newLogObjective(X, targets, weights, k, cfg.Lambda, threads(cfg.Threads))
+	d := o.d
+	x0 := make([]float64, d*k+k)
+	// Start from the log class shares as intercepts.
+	for c := 0; c < k; c++ {
+		x0[d*k+c] = math.Log(o.mass[c] / o.wsum)
+	}
+	prob := optimize.Problem{Func: o.fn, Grad: o.grad}
+	settings := &optimize.Settings{
+		GradientThreshold: cfg.Tol * o.wsum,
+		MajorIterations:   cfg.MaxIter,
+		Converger:         &optimize.FunctionConverge{Relative: cfg.Tol * 1e-3, Iterations: 10},
+	}
+	res, err := optimize.Minimize(prob, x0, settings, &optimize.LBFGS{Store: cfg.Memory})
+	if res == nil {
+		return nil, fmt.Errorf("learner: logistic fit failed: %v", err)
+	}
+	for _, v := range res.X {
+		if math.IsNaN(v) || math.IsInf(v, 0) {
+			return nil, fmt.Errorf("learner: logistic fit diverged (%v); with lambda = 0 and separable classes the maximum-likelihood weights are infinite: use lambda > 0", res.Status)
+		}
+	}
+	if math.IsNaN(res.F) || math.IsInf(res.F, 0) {
+		return nil, fmt.Errorf("learner: logistic fit reached a non-finite objective (%v)", res.Status)
+	}
+	// L-BFGS may end on a line-search failure once it can no longer make
+	// progress at machine precision; the point reached is still the best
+	// found, so it is kept and the reason is recorded in Status.
+	status := res.Status.String()
+	if err != nil {
+		status += ": " + err.Error()
+	}
+	m := &LogisticModel{
+		Config: cfg, K: k, D: d,
+		W:          append([]float64(nil), res.X[:d*k]...),
+		B:          append([]float64(nil), res.X[d*k:]...),
+		Objective:  res.F,
+		Iterations: res.Stats.MajorIterations,
+		Status:     status,
+	}
+	// Softmax is unchanged by adding a constant to every class's score, so
+	// the unpenalised intercepts (and for λ = 0 the weights) are identified
+	// only up to a shift; centre them to sum to zero over the classes, as
+	// scikit-learn's solution does.
+	centre(m.B)
+	for j := 0; j < d; j++ {
+		centre(m.W[j*k : j*k+k])
+	}
+	return m, nil
+}
+
+// centre subtracts the mean from v.
+func centre(v []float64) {
+	var s float64
+	for _, x := range v {
+		s += x
+	}
+	s /= float64(len(v))
+	for i := range v {
+		v[i] -= s
+	}
+}
+
+// Classes returns the number of classes.
+func (m *LogisticModel) Classes() int { return m.K }
+
+// PredictProba returns P(c|x) for every row of X.
+func (m *LogisticModel) PredictProba(X features.Matrix) [][]float64 { return predictRows(m, X) }
+
+// PredictProbaInto writes P(c|x) for every row of X into dst (row-major).
+func (m *LogisticModel) PredictProbaInto(dst []float64, X features.Matrix) {
+	linearPredict(dst, X, m.K, m.D, m.W, m.B, 1, m.Config.Threads)
+}
+
+// logObjective evaluates f and ∇f. It keeps X twice, by rows (CSR) for the
+// scores and by columns (CSC) for X^T R, so both passes split without locks.
+type logObjective struct {
+	n, d, k  int
+	lambda   float64
+	nthreads int
+
+	rowptr []int
+	rowcol []int32
+	rowval []float64
+
+	colptr []int
+	colrow []int32
+	colval []float64
+	colcut []int // column chunk boundaries balanced by entries
+
+	t    []float64 // targets, n*k
+	w    []float64 // weights, n
+	wsum float64
+	mass []float64 // Σ_i w_i t_ic
+
+	r    []float64 // residuals w_i (p_ic − t_ic), n*k
+	part [][]float64
+
+	xc    []float64 // cached point
+	fc    float64
+	gc    []float64
+	valid bool
+}
+
+func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, k int, lambda float64, nthreads int) *logObjective {
+	n, d := X.Rows(), X.Cols()
+	o := &logObjective{n: n, d: d, k: k, lambda: lambda, nthreads: nthreads}
+	o.rowptr = make([]int, n+1)
+	nnz := 0
+	for i := 0; i < n; i++ {
+		idx, val := X.Row(i)
+		for _, v := range val {
+			if v != 0 || idx != nil {
+				nnz++
+			}
+		}
+		o.rowptr[i+1] = nnz
+	}
+	o.rowcol = make([]int32, nnz)
+	o.rowval = make([]float64, nnz)
+	colcount := make([]int, d+1)
+	q := 0
+	for i := 0; i < n; i++ {
+		idx, val := X.Row(i)
+		for p, v := range val {
+			if idx == nil && v == 0 {
+				continue
+			}
+			j := int32(p)
+			if idx != nil {
+				j = idx[p]
+			}
+			o.rowcol[q], o.rowval[q] = j, v
+			colcount[j+1]++
+			q++
+		}
+	}
+	for j := 0; j < d; j++ {
+		colcount[j+1] += colcount[j]
+	}
+	o.colptr = colcount
+	o.colrow = make([]int32, nnz)
+	o.colval = make([]float64, nnz)
+	next := append([]int(nil), o.colptr[:d]...)
+	for i := 0; i < n; i++ {
+		for p := o.rowptr[i]; p < o.rowptr[i+1]; p++ {
+			j := o.rowcol[p]
+			o.colrow[next[j]], o.colval[next[j]] = int32(i), o.rowval[p]
+			next[j]++
+		}
+	}
+	// Column chunks with about equal entries + columns.
+	o.colcut = []int{0}
+	total := nnz + d
+	c := 1
+	for j := 0; j < d && c < nthreads; j++ {
+		if o.colptr[j+1]+j+1 >= c*total/nthreads {
+			o.colcut = append(o.colcut, j+1)
+			c++
+		}
+	}
+	o.colcut = append(o.colcut, d)
+
+	o.t = make([]float64, n*k)
+	o.w = make([]float64, n)
+	o.mass = make([]float64, k)
+	for i := 0; i < n; i++ {
+		copy(o.t[i*k:], targets[i])
+		w := 1.0
+		if weights != nil {
+			w = weights[i]
+		}
+		o.w[i] = w
+		o.wsum += w
+		for c, v := range targets[i] {
+			o.mass[c] += w * v
+		}
+	}
+	o.r = make([]float64, n*k)
+	o.part = make([][]float64, nthreads)
+	for i := range o.part {
+		o.part[i] = make([]float64, k+1)
+	}
+	o.gc = make([]float64, d*k+k)
+	o.xc = make([]float64, d*k+k)
+	return o
+}
+
+func (o *logObjective) fn(x []float64) float64 {
+	if o.valid && floats.Equal(x, o.xc) {
+		return o.fc
+	}
+	copy(o.xc, x)
+	o.fc = o.eval(x, o.gc)
+	o.valid = true
+	return o.fc
+}
+
+func (o *logObjective) grad(g, x []float64) {
+	if !(o.valid && floats.Equal(x, o.xc)) {
+		copy(o.xc, x)
+		o.fc = o.eval(x, o.gc)
+		o.valid = true
+	}
+	copy(g, o.gc)
+}
+
+// eval returns f(x) and writes ∇f(x) into g.
+func (o *logObjective) eval(x, g []float64) float64 {
+	n, d, k := o.n, o.d, o.k
+	W, b := x[:d*k], x[d*k:]
+	nt := o.nthreads
+	if nt > n {
+		nt = n
+	}
+	var wg sync.WaitGroup
+	// Pass 1 over rows: residuals r_i = w_i (softmax(z_i) − t_i), the loss
+	// Σ_i w_i Σ_c t_ic (lse(z_i) − z_ic) and the intercept gradient Σ_i r_i.
+	for c := 0; c < nt; c++ {
+		lo, hi := c*n/nt, (c+1)*n/nt
+		part := o.part[c]
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			clear(part)
+			var loss float64
+			for i := lo; i < hi; i++ {
+				z := o.r[i*k : (i+1)*k]
+				copy(z, b)
+				for p := o.rowptr[i]; p < o.rowptr[i+1]; p++ {
+					j := int(o.rowcol[p])
+					axpy(z, o.rowval[p], W[j*k:j*k+k])
+				}
+				mx := z[0]
+				for _, v := range z[1:] {
+					if v > mx {
+						mx = v
+					}
+				}
+				var s float64
+				for _, v := range z {
+					s += math.Exp(v - mx)
+				}
+				lse := mx + math.Log(s)
+				t := o.t[i*k : (i+1)*k]
+				w := o.w[i]
+				var li float64
+				for c, v := range z {
+					if t[c] != 0 {
+						li += t[c] * (lse - v)
+					}
+					z[c] = w * (math.Exp(v-lse) - t[c])
+					part[c] += z[c]
+				}
+				loss += w * li
+			}
+			part[k] = loss
+		}()
+	}
+	wg.Wait()
+	var f float64
+	for c := range b {
+		g[d*k+c] = 0
+	}
+	for _, part := range o.part[:nt] {
+		for c := 0; c < k; c++ {
+			g[d*k+c] += part[c]
+		}
+		f += part[k]
+	}
+	// Pass 2 over columns: ∇_W = X^T R + λ W and the penalty λ/2 ‖W‖².
+	regs := make([]float64, len(o.colcut)-1)
+	for c := 0; c+1 < len(o.colcut); c++ {
+		lo, hi := o.colcut[c], o.colcut[c+1]
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			var reg float64
+			lam := o.lambda
+			for j := lo; j < hi; j++ {
+				gj := g[j*k : j*k+k]
+				wj := W[j*k : j*k+k]
+				if lam != 0 {
+					for c, v := range wj {
+						gj[c] = lam * v
+						reg += v * v
+					}
+				} else {
+					clear(gj)
+				}
+				for p := o.colptr[j]; p < o.colptr[j+1]; p++ {
+					i := int(o.colrow[p])
+					axpy(gj, o.colval[p], o.r[i*k:i*k+k])
+				}
+			}
+			regs[c] = reg
+		}()
+	}
+	wg.Wait()
+	for _, r := range regs {
+		f += 0.5 * o.lambda * r
+	}
+	return f
+}
