@@ -1,10 +1,195 @@
 // Command loop turns noisy crowd labels into consensus, trains a classifier on
 // it, sends the items the machine is unsure of back to people and decides when
 // the machine may label the rest of the archive.
+//
+// # Adding a command
+//
+// Each command lives in its own file, cmd/loop/cmd_NAME.go, and registers a
+// constructor from init:
+//
+//	func init() { register(newDemoCmd) }                // loop demo …
+//	func init() { registerUnder("items", newExportCmd) } // loop items export …
+//
+//	func newDemoCmd() *cobra.Command {
+//		return &cobra.Command{
+//			Use:     "demo DIR",
+//			Short:   "Build a demo project in DIR",
+//			Example: "  loop demo /tmp/handoff-demo",
+//			Args:    cobra.ExactArgs(1),
+//			RunE: func(cmd *cobra.Command, args []string) error {
+//				s, err := openStore(args[0]) // or createStore(args[0], cb, cmd)
+//				if err != nil {
+//					return err
+//				}
+//				defer s.Close()
+//				_, err = s.PutItems(items, false, source(cmd))
+//				return err
+//			},
+//		}
+//	}
+//
+// Constructors are called afresh for every run (tests run many in one
+// process), so keep flag variables inside the constructor, not in globals.
+// Every command must have a worked Example.
+//
+// Shared helpers (helpers.go):
+//   - openStore(dir), createStore(dir, codebook, cmd): open or make a project.
+//   - source(cmd): the "who/what" string for the store's audit trail
+//     (the command line as typed).
+//   - usageErrorf(…): a usage error, exit code 2. Any other error returned
+//     from RunE exits 1; errors from cobra's own parsing (unknown flag, wrong
+//     number of arguments) exit 2.
+//   - newProgress(cmd, max, desc), progressReader(…): a progress bar on stderr,
+//     silent when stdout is not a terminal or with --quiet.
+//   - printJSON(cmd, v), outf(cmd, …): write to the command's stdout; infof
+//     writes notes that --quiet silences.
+//   - registerStatus(name, fn): add a section to `loop status` (text and
+//     JSON), e.g. consensus once it exists.
+//
+// Exit codes: 0 ok, 1 runtime error (bad data, I/O), 2 usage error.
 package main
 
-import "os"
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"strings"
 
-func main() { os.Exit(run(os.Args[1:])) }
+	"github.com/spf13/cobra"
+)
 
-func run(args []string) int { return 0 }
+func main() { os.Exit(run(os.Args[1:], os.Stdout, os.Stderr)) }
+
+// commands holds the constructors of the top-level commands, in registration
+// order; subcommands maps a group name ("items", "labels") to its children.
+var (
+	commands    []func() *cobra.Command
+	subcommands = map[string][]func() *cobra.Command{}
+	groupShort  = map[string]string{
+		"items":  "Add items (texts or images) to a project",
+		"labels": "Add crowd labels or gold answers to a project",
+	}
+)
+
+// register adds a top-level command. Call it from an init function.
+func register(f func() *cobra.Command) { commands = append(commands, f) }
+
+// registerUnder adds a subcommand to the group named parent ("items",
+// "labels", or a new group, which is then created). Call it from init.
+func registerUnder(parent string, f func() *cobra.Command) {
+	subcommands[parent] = append(subcommands[parent], f)
+}
+
+type ctxKey int
+
+const invocationKey ctxKey = 0
+
+// newRoot builds the whole command tree.
+func newRoot() *cobra.Command {
+	root := &cobra.Command{
+		Use:   "loop",
+		Short: "Turn crowd labels into consensus, train a classifier, decide when it may take over",
+		Long: `loop keeps a labelling project in one directory: the items to label, the
+codebook, the crowd's labels and gold answers, and everything computed from them.`,
+		Example: `  loop init proj --codebook codebook.yaml
+  loop items add proj reports.csv --split sentences
+  loop labels add proj labels.csv
+  loop status proj`,
+		SilenceErrors: true,
+		SilenceUsage:  true,
+	}
+	root.PersistentFlags().Bool("quiet", false, "print nothing but results and errors; no progress bars")
+	root.CompletionOptions.DisableDefaultCmd = true
+	groups := map[string]*cobra.Command{}
+	names := make([]string, 0, len(subcommands))
+	for name := range subcommands {
+		names = append(names, name)
+	}
+	for _, name := range sortedStrings(names) {
+		g := newGroup(name)
+		groups[name] = g
+		for _, f := range subcommands[name] {
+			g.AddCommand(f())
+		}
+		root.AddCommand(g)
+	}
+	for _, f := range commands {
+		root.AddCommand(f())
+	}
+	markRuntimeErrors(root)
+	return root
+}
+
+func newGroup(name string) *cobra.Command {
+	short := groupShort[name]
+	if short == "" {
+		short = "Commands about " + name
+	}
+	return &cobra.Command{
+		Use:   name,
+		Short: short,
+		Args:  cobra.NoArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			return usageErrorf("%s needs a subcommand; see `%s --help`", cmd.CommandPath(), cmd.CommandPath())
+		},
+	}
+}
+
+// markRuntimeErrors wraps every RunE so that its errors count as runtime
+// errors (exit 1) unless they are usage errors already.
+func markRuntimeErrors(c *cobra.Command) {
+	if c.RunE != nil {
+		f := c.RunE
+		c.RunE = func(cmd *cobra.Command, args []string) error {
+			err := f(cmd, args)
+			var u *usageError
+			if err == nil || errors.As(err, &u) {
+				return err
+			}
+			return &runtimeError{err}
+		}
+	}
+	for _, sub := range c.Commands() {
+		markRuntimeErrors(sub)
+	}
+}
+
+// run executes loop with args, writing to stdout and stderr, and returns the
+// exit code.
+func run(args []string, stdout, stderr io.Writer) int {
+	root := newRoot()
+	root.SetArgs(args)
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	ctx := context.WithValue(context.Background(), invocationKey, "loop "+strings.Join(args, " "))
+	err := root.ExecuteContext(ctx)
+	if err == nil {
+		return 0
+	}
+	var rt *runtimeError
+	if errors.As(err, &rt) {
+		fmt.Fprintf(stderr, "loop: %v\n", rt.err)
+		return 1
+	}
+	fmt.Fprintf(stderr, "loop: %v\n", err)
+	fmt.Fprintln(stderr, "Run `loop --help` (or `loop COMMAND --help`) for usage.")
+	return 2
+}
+
+// usageError is a mistake in how loop was called: exit code 2.
+type usageError struct{ msg string }
+
+func (e *usageError) Error() string { return e.msg }
+
+// usageErrorf returns a usage error (exit code 2).
+func usageErrorf(format string, a ...any) error {
+	return &usageError{fmt.Sprintf(format, a...)}
+}
+
+// runtimeError is a failure while doing the work: exit code 1.
+type runtimeError struct{ err error }
+
+func (e *runtimeError) Error() string { return e.err.Error() }
+func (e *runtimeError) Unwrap() error { return e.err }

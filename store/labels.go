@@ -1,0 +1,420 @@
+package store
+
+import (
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"handoff"
+)
+
+// LabelRecord is one label in compact form: the item, annotator and class
+// are numbers (item number, annotator number, index of the class in the
+// codebook). Time is Unix nanoseconds, 0 if unknown; Seconds is 0 if unknown.
+type LabelRecord struct {
+	N         uint64 // label number, in order of arrival
+	Item      uint32
+	Annotator uint32
+	Class     uint16
+	Time      int64
+	Seconds   float64
+}
+
+// Packed label: uvarint item, uvarint annotator, uvarint class, varint time,
+// then 8 bytes of float64 seconds only if seconds != 0.
+func encodeLabel(r *LabelRecord) []byte {
+	var buf [3*binary.MaxVarintLen32 + binary.MaxVarintLen64 + 8]byte
+	n := binary.PutUvarint(buf[:], uint64(r.Item))
+	n += binary.PutUvarint(buf[n:], uint64(r.Annotator))
+	n += binary.PutUvarint(buf[n:], uint64(r.Class))
+	n += binary.PutVarint(buf[n:], r.Time)
+	if r.Seconds != 0 {
+		binary.LittleEndian.PutUint64(buf[n:], math.Float64bits(r.Seconds))
+		n += 8
+	}
+	return append([]byte(nil), buf[:n]...)
+}
+
+var errBadLabel = errors.New("store: damaged label record")
+
+func decodeLabel(v []byte, r *LabelRecord) error {
+	var k int
+	x, n := binary.Uvarint(v)
+	if n <= 0 {
+		return errBadLabel
+	}
+	r.Item = uint32(x)
+	k += n
+	x, n = binary.Uvarint(v[k:])
+	if n <= 0 {
+		return errBadLabel
+	}
+	r.Annotator = uint32(x)
+	k += n
+	x, n = binary.Uvarint(v[k:])
+	if n <= 0 {
+		return errBadLabel
+	}
+	r.Class = uint16(x)
+	k += n
+	t, n := binary.Varint(v[k:])
+	if n <= 0 {
+		return errBadLabel
+	}
+	r.Time = t
+	k += n
+	r.Seconds = 0
+	if len(v)-k == 8 {
+		r.Seconds = math.Float64frombits(binary.LittleEndian.Uint64(v[k:]))
+	} else if len(v) != k {
+		return errBadLabel
+	}
+	return nil
+}
+
+// ImportLabels writes the crowd labels that next yields, in one transaction,
+// until next returns io.EOF. A label for an item not in the project, with a
+// class not in the codebook, with an empty annotator, or with negative or
+// non-finite seconds stops the import and rolls it back whole (*DataError).
+// Annotators are created on first sight. Repeated labels (same item and
+// annotator) are kept: cleaning rules decide later what to do with them.
+//
+// next is called inside the write transaction; it must not use the store.
+func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) (ImportResult, error) {
+	var res ImportResult
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		res = ImportResult{}
+		labels, byItem, byAnn := tx.Bucket(bLabels), tx.Bucket(bLabelItem), tx.Bucket(bLabelAnn)
+		labels.FillPercent = 1
+		itemIDs := tx.Bucket(bItemIDs)
+		ann := newAnnotatorCache(tx)
+		seq := labels.Sequence()
+		for {
+			l, err := next()
+			if err == io.EOF {
+				break
+			}
+			if err != nil {
+				return err
+			}
+			var r LabelRecord
+			k := itemIDs.Get([]byte(l.Item))
+			if k == nil {
+				return dataErr("item", "unknown item %q (add it with `loop items add` first)", l.Item)
+			}
+			r.Item = uint32(binary.BigEndian.Uint64(k))
+			ci, ok := s.cbIx[l.Class]
+			if !ok {
+				return dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
+			}
+			r.Class = uint16(ci)
+			if l.Annotator == "" {
+				return dataErr("annotator", "empty annotator id")
+			}
+			if math.IsNaN(l.Seconds) || math.IsInf(l.Seconds, 0) || l.Seconds < 0 {
+				return dataErr("seconds", "seconds %v is not a finite number ≥ 0", l.Seconds)
+			}
+			r.Seconds = l.Seconds
+			if !l.Time.IsZero() {
+				r.Time = l.Time.UnixNano()
+			}
+			a, err := ann.get(l.Annotator)
+			if err != nil {
+				return err
+			}
+			r.Annotator = a
+			if err := labels.Put(u64(seq), encodeLabel(&r)); err != nil {
+				return err
+			}
+			if err := byItem.Put(pair(uint64(r.Item), seq), nil); err != nil {
+				return err
+			}
+			if err := byAnn.Put(pair(uint64(r.Annotator), seq), nil); err != nil {
+				return err
+			}
+			seq++
+			res.Added++
+		}
+		if err := labels.SetSequence(seq); err != nil {
+			return err
+		}
+		return s.audit(tx, source, "labels.add", res.String())
+	})
+	if err != nil {
+		return ImportResult{}, err
+	}
+	return res, nil
+}
+
+// PutLabels writes labels in one transaction; see ImportLabels.
+func (s *Store) PutLabels(labels []handoff.Label, source string) (ImportResult, error) {
+	return s.ImportLabels(source, sliceNext(labels))
+}
+
+type annotatorCache struct {
+	tx      *bolt.Tx
+	byID    map[string]uint32
+	ids     *bolt.Bucket
+	records *bolt.Bucket
+}
+
+func newAnnotatorCache(tx *bolt.Tx) *annotatorCache {
+	return &annotatorCache{tx: tx, byID: map[string]uint32{},
+		ids: tx.Bucket(bAnnotatorIDs), records: tx.Bucket(bAnnotators)}
+}
+
+func (c *annotatorCache) get(id string) (uint32, error) {
+	if n, ok := c.byID[id]; ok {
+		return n, nil
+	}
+	if k := c.ids.Get([]byte(id)); k != nil {
+		n := uint32(binary.BigEndian.Uint64(k))
+		c.byID[id] = n
+		return n, nil
+	}
+	seq := c.records.Sequence()
+	if err := putJSON(c.records, u64(seq), handoff.Annotator{ID: id}); err != nil {
+		return 0, err
+	}
+	if err := c.ids.Put([]byte(id), u64(seq)); err != nil {
+		return 0, err
+	}
+	if err := c.records.SetSequence(seq + 1); err != nil {
+		return 0, err
+	}
+	c.byID[id] = uint32(seq)
+	return uint32(seq), nil
+}
+
+// PutAnnotators adds annotators or replaces their name and admin flag,
+// keeping their numbers.
+func (s *Store) PutAnnotators(as []handoff.Annotator, source string) (ImportResult, error) {
+	var res ImportResult
+	err := s.db.Update(func(tx *bolt.Tx) error {
+		res = ImportResult{}
+		c := newAnnotatorCache(tx)
+		for _, a := range as {
+			if a.ID == "" {
+				return dataErr("id", "empty annotator id")
+			}
+			existed := c.ids.Get([]byte(a.ID)) != nil
+			n, err := c.get(a.ID)
+			if err != nil {
+				return err
+			}
+			if err := putJSON(c.records, u64(uint64(n)), a); err != nil {
+				return err
+			}
+			if existed {
+				res.Updated++
+			} else {
+				res.Added++
+			}
+		}
+		return s.audit(tx, source, "annotators.put", res.String())
+	})
+	return res, err
+}
+
+// Annotators returns all annotators indexed by annotator number.
+func (s *Store) Annotators() ([]handoff.Annotator, error) {
+	var out []handoff.Annotator
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bAnnotators).ForEach(func(k, v []byte) error {
+			var a handoff.Annotator
+			if err := json.Unmarshal(v, &a); err != nil {
+				return err
+			}
+			out = append(out, a)
+			return nil
+		})
+	})
+	return out, err
+}
+
+// EachLabel calls fn for every label in order of arrival, inside one read
+// transaction, reusing one LabelRecord (copy it to keep it). It allocates
+// nothing per label. An error from fn stops the walk and is returned.
+func (s *Store) EachLabel(fn func(r *LabelRecord) error) error {
+	return s.db.View(func(tx *bolt.Tx) error {
+		var r LabelRecord
+		c := tx.Bucket(bLabels).Cursor()
+		for k, v := c.First(); k != nil; k, v = c.Next() {
+			r.N = binary.BigEndian.Uint64(k)
+			if err := decodeLabel(v, &r); err != nil {
+				return err
+			}
+			if err := fn(&r); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// LabelTable is every label as parallel arrays (column i is label i), with
+// the names that the numbers stand for. Item[i] indexes ItemIDs, Annotator[i]
+// indexes AnnotatorIDs, Class[i] indexes Classes (codebook order). Time[i] is
+// Unix nanoseconds (0 unknown); Seconds[i] is 0 when unknown. About 26 bytes
+// per label, so 40 million labels take about 1 GB.
+type LabelTable struct {
+	ItemIDs      []string
+	AnnotatorIDs []string
+	Classes      []string
+
+	Item      []uint32
+	Annotator []uint32
+	Class     []uint16
+	Time      []int64
+	Seconds   []float32
+}
+
+// Len returns the number of labels.
+func (t *LabelTable) Len() int { return len(t.Item) }
+
+// LabelTable reads every label into a LabelTable in one read transaction.
+func (s *Store) LabelTable() (*LabelTable, error) {
+	t := &LabelTable{Classes: s.cb.Keys()}
+	err := s.db.View(func(tx *bolt.Tx) error {
+		t.ItemIDs = itemIDs(tx)
+		as := make([]string, tx.Bucket(bAnnotators).Sequence())
+		if err := tx.Bucket(bAnnotatorIDs).ForEach(func(k, v []byte) error {
+			as[binary.BigEndian.Uint64(v)] = string(k)
+			return nil
+		}); err != nil {
+			return err
+		}
+		t.AnnotatorIDs = as
+		n := int(tx.Bucket(bLabels).Sequence())
+		t.Item = make([]uint32, 0, n)
+		t.Annotator = make([]uint32, 0, n)
+		t.Class = make([]uint16, 0, n)
+		t.Time = make([]int64, 0, n)
+		t.Seconds = make([]float32, 0, n)
+		var r LabelRecord
+		c := tx.Bucket(bLabels).Cursor()
+		for k, v := c.First(); k != nil; k, v = c.Next() {
+			if err := decodeLabel(v, &r); err != nil {
+				return err
+			}
+			t.Item = append(t.Item, r.Item)
+			t.Annotator = append(t.Annotator, r.Annotator)
+			t.Class = append(t.Class, r.Class)
+			t.Time = append(t.Time, r.Time)
+			t.Seconds = append(t.Seconds, float32(r.Seconds))
+		}
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	return t, nil
+}
+
+func (s *Store) toLabel(tx *bolt.Tx, r *LabelRecord, items, anns map[uint32]string) (handoff.Label, error) {
+	id, ok := items[r.Item]
+	if !ok {
+		v := tx.Bucket(bItems).Get(u64(uint64(r.Item)))
+		it, err := decodeItem(v)
+		if err != nil {
+			return handoff.Label{}, err
+		}
+		id = it.ID
+		items[r.Item] = id
+	}
+	an, ok := anns[r.Annotator]
+	if !ok {
+		var a handoff.Annotator
+		if err := json.Unmarshal(tx.Bucket(bAnnotators).Get(u64(uint64(r.Annotator))), &a); err != nil {
+			return handoff.Label{}, err
+		}
+		an = a.ID
+		anns[r.Annotator] = an
+	}
+	if int(r.Class) >= len(s.cb.Classes) {
+		return handoff.Label{}, errBadLabel
+	}
+	l := handoff.Label{Item: id, Annotator: an, Class: s.cb.Classes[r.Class].Key, Seconds: r.Seconds}
+	if r.Time != 0 {
+		l.Time = time.Unix(0, r.Time).UTC()
+	}
+	return l, nil
+}
+
+// labelsByPrefix returns the labels listed in index bucket idx under number n.
+func (s *Store) labelsByPrefix(idx []byte, n uint64) ([]handoff.Label, error) {
+	var out []handoff.Label
+	err := s.db.View(func(tx *bolt.Tx) error {
+		items, anns := map[uint32]string{}, map[uint32]string{}
+		labels := tx.Bucket(bLabels)
+		prefix := u64(n)
+		c := tx.Bucket(idx).Cursor()
+		var r LabelRecord
+		for k, _ := c.Seek(prefix); k != nil && string(k[:8]) == string(prefix); k, _ = c.Next() {
+			if err := decodeLabel(labels.Get(k[8:]), &r); err != nil {
+				return err
+			}
+			l, err := s.toLabel(tx, &r, items, anns)
+			if err != nil {
+				return err
+			}
+			out = append(out, l)
+		}
+		return nil
+	})
+	return out, err
+}
+
+// LabelsFor returns the labels of one item in order of arrival.
+func (s *Store) LabelsFor(item string) ([]handoff.Label, error) {
+	_, n, err := s.Item(item)
+	if err != nil {
+		return nil, err
+	}
+	return s.labelsByPrefix(bLabelItem, uint64(n))
+}
+
+// LabelsBy returns the labels of one annotator in order of arrival.
+func (s *Store) LabelsBy(annotator string) ([]handoff.Label, error) {
+	var n uint64
+	err := s.db.View(func(tx *bolt.Tx) error {
+		k := tx.Bucket(bAnnotatorIDs).Get([]byte(annotator))
+		if k == nil {
+			return fmt.Errorf("annotator %q: %w", annotator, ErrNotFound)
+		}
+		n = binary.BigEndian.Uint64(k)
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	return s.labelsByPrefix(bLabelAnn, n)
+}
+
+// Labels returns every label with its ids spelled out, in order of arrival.
+// For large projects prefer LabelTable or EachLabel.
+func (s *Store) Labels() ([]handoff.Label, error) {
+	var out []handoff.Label
+	err := s.db.View(func(tx *bolt.Tx) error {
+		items, anns := map[uint32]string{}, map[uint32]string{}
+		var r LabelRecord
+		return tx.Bucket(bLabels).ForEach(func(k, v []byte) error {
+			if err := decodeLabel(v, &r); err != nil {
+				return err
+			}
+			l, err := s.toLabel(tx, &r, items, anns)
+			if err != nil {
+				return err
+			}
+			out = append(out, l)
+			return nil
+		})
+	})
+	return out, err
+}

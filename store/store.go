@@ -1,0 +1,273 @@
+// Package store keeps a project in one bbolt file, DIR/handoff.db. It is the
+// only package that imports go.etcd.io/bbolt.
+//
+// The file holds, one bucket each: meta (schema version, codebook), items,
+// labels with indexes by item and by annotator, gold answers, annotators, an
+// append-only audit trail, and the results of later steps (consensus, models,
+// rounds, selections, machine labels, people, tokens, leases).
+//
+// Every write method takes a source string saying who or what made the change
+// (a command line such as "loop items add items.csv", or a request such as
+// "api POST /labels by ann7"); it is recorded in the audit trail together with
+// the time and what changed. Each write method is one transaction: an import
+// either lands whole or changes nothing.
+//
+// Items and annotators get dense numbers (0, 1, 2, … in order of arrival) that
+// never change; labels refer to them by number, so that all labels can be read
+// as compact arrays (see LabelTable and EachLabel).
+package store
+
+import (
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"handoff"
+)
+
+// FileName is the name of the database file inside a project directory.
+const FileName = "handoff.db"
+
+// SchemaVersion is the layout version this package writes. A file with a
+// higher version is refused by Open (ErrNewerSchema).
+const SchemaVersion = 1
+
+// Bucket names and what each holds (callers use the methods, not these).
+var (
+	bMeta          = []byte("meta")
+	bItems         = []byte("items")           // item number (8 bytes BE) → kind byte + JSON item
+	bItemIDs       = []byte("item_ids")        // item id → item number
+	bLabels        = []byte("labels")          // label number → packed label (see encodeLabel)
+	bLabelItem     = []byte("labels_by_item")  // item number ‖ label number → nil
+	bLabelAnn      = []byte("labels_by_annot") // annotator number ‖ label number → nil
+	bAnnotators    = []byte("annotators")      // annotator number → JSON annotator
+	bAnnotatorIDs  = []byte("annotator_ids")   // annotator id → annotator number
+	bGold          = []byte("gold")            // item id → JSON gold
+	bAudit         = []byte("audit")           // entry number → JSON AuditEntry
+	bConsensus     = []byte("consensus")       // item id → JSON consensus
+	bModels        = []byte("models")          // version → model bytes
+	bModelOrder    = []byte("model_order")     // sequence number → version
+	bRounds        = []byte("rounds")          // round number → bytes
+	bSelections    = []byte("selections")      // round number → bytes
+	bMachineLabels = []byte("machine_labels")  // item id → JSON machine label
+	bPeople        = []byte("people")          // person id → bytes
+	bTokens        = []byte("tokens")          // token (hash) → bytes
+	bLeases        = []byte("leases")          // item id → bytes
+)
+
+var allBuckets = [][]byte{bMeta, bItems, bItemIDs, bLabels, bLabelItem, bLabelAnn,
+	bAnnotators, bAnnotatorIDs, bGold, bAudit, bConsensus, bModels, bModelOrder,
+	bRounds, bSelections, bMachineLabels, bPeople, bTokens, bLeases}
+
+var (
+	kSchema        = []byte("schema")
+	kCodebook      = []byte("codebook")
+	kConsensusMeta = []byte("consensus_meta")
+)
+
+// ErrNoProject is returned by Open when DIR holds no project file.
+var ErrNoProject = errors.New("no project here: run `loop init DIR --codebook FILE` first")
+
+// ErrNewerSchema is returned (wrapped) by Open when the file was written by a
+// newer version of loop.
+var ErrNewerSchema = errors.New("project file has a newer schema")
+
+// ErrExists is returned by Create when DIR already holds a project.
+var ErrExists = errors.New("a project already exists here")
+
+// ErrNotFound is returned by getters when the key is absent.
+var ErrNotFound = errors.New("not found")
+
+// DataError is a problem with one record given to an import: the record is
+// refused and the whole import is rolled back. Field names the offending
+// field ("id", "item", "label", …). Callers that know where the record came
+// from (file and line) add that.
+type DataError struct {
+	Field string
+	Err   error
+}
+
+func (e *DataError) Error() string {
+	if e.Field == "" {
+		return e.Err.Error()
+	}
+	return fmt.Sprintf("field %q: %v", e.Field, e.Err)
+}
+
+func (e *DataError) Unwrap() error { return e.Err }
+
+func dataErr(field, format string, a ...any) *DataError {
+	return &DataError{Field: field, Err: fmt.Errorf(format, a...)}
+}
+
+// Store is an open project file. It is safe for concurrent use by several
+// goroutines of one process; a second process waits up to a few seconds for
+// the file lock and then gives up.
+type Store struct {
+	db   *bolt.DB
+	dir  string
+	cb   handoff.Codebook
+	cbIx map[string]int
+
+	// Now gives the time recorded in the audit trail; time.Now if nil.
+	Now func() time.Time
+}
+
+func options() *bolt.Options {
+	return &bolt.Options{
+		Timeout:        3 * time.Second,
+		NoFreelistSync: true,
+		FreelistType:   bolt.FreelistMapType,
+	}
+}
+
+// Path returns the database file path for project directory dir.
+func Path(dir string) string { return filepath.Join(dir, FileName) }
+
+// Create makes a new project in dir (created if missing) with the given
+// codebook, which must be valid. It fails with ErrExists if dir already has
+// a project.
+func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
+	if err := cb.Validate(); err != nil {
+		return nil, fmt.Errorf("codebook: %w", err)
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return nil, err
+	}
+	p := Path(dir)
+	if _, err := os.Stat(p); err == nil {
+		return nil, fmt.Errorf("%s: %w", p, ErrExists)
+	}
+	db, err := bolt.Open(p, 0o644, options())
+	if err != nil {
+		return nil, fmt.Errorf("create %s: %w", p, err)
+	}
+	s := &Store{db: db, dir: dir}
+	err = db.Update(func(tx *bolt.Tx) error {
+		for _, name := range allBuckets {
+			if _, err := tx.CreateBucketIfNotExists(name); err != nil {
+				return err
+			}
+		}
+		m := tx.Bucket(bMeta)
+		var v [4]byte
+		binary.BigEndian.PutUint32(v[:], SchemaVersion)
+		if err := m.Put(kSchema, v[:]); err != nil {
+			return err
+		}
+		cbj, err := json.Marshal(cb)
+		if err != nil {
+			return err
+		}
+		if err := m.Put(kCodebook, cbj); err != nil {
+			return err
+		}
+		return s.audit(tx, source, "init", fmt.Sprintf("codebook %q with %d classes", cb.Name, len(cb.Classes)))
+	})
+	if err != nil {
+		db.Close()
+		os.Remove(p)
+		return nil, err
+	}
+	s.setCodebook(cb)
+	return s, nil
+}
+
+// Open opens the project in dir. It returns ErrNoProject if there is none,
+// and an error wrapping ErrNewerSchema if the file was written by a newer
+// loop.
+func Open(dir string) (*Store, error) {
+	p := Path(dir)
+	if _, err := os.Stat(p); err != nil {
+		if errors.Is(err, os.ErrNotExist) {
+			return nil, fmt.Errorf("%s: %w", dir, ErrNoProject)
+		}
+		return nil, err
+	}
+	db, err := bolt.Open(p, 0o644, options())
+	if err != nil {
+		if errors.Is(err, bolt.ErrTimeout) {
+			return nil, fmt.Errorf("open %s: the project is in use by another loop process; wait for it to finish", p)
+		}
+		return nil, fmt.Errorf("open %s: %w", p, err)
+	}
+	s := &Store{db: db, dir: dir}
+	var cb handoff.Codebook
+	err = db.View(func(tx *bolt.Tx) error {
+		m := tx.Bucket(bMeta)
+		if m == nil {
+			return fmt.Errorf("%s is not a loop project file (no meta bucket)", p)
+		}
+		v := m.Get(kSchema)
+		if len(v) != 4 {
+			return fmt.Errorf("%s is not a loop project file (no schema version)", p)
+		}
+		if n := binary.BigEndian.Uint32(v); n > SchemaVersion {
+			return fmt.Errorf("%s: %w (version %d; this loop knows up to %d): upgrade loop to open it",
+				p, ErrNewerSchema, n, SchemaVersion)
+		}
+		for _, name := range allBuckets {
+			if tx.Bucket(name) == nil {
+				return fmt.Errorf("%s: bucket %q missing: the file is damaged", p, name)
+			}
+		}
+		return json.Unmarshal(m.Get(kCodebook), &cb)
+	})
+	if err != nil {
+		db.Close()
+		return nil, err
+	}
+	s.setCodebook(cb)
+	return s, nil
+}
+
+func (s *Store) setCodebook(cb handoff.Codebook) {
+	s.cb = cb
+	s.cbIx = make(map[string]int, len(cb.Classes))
+	for i, c := range cb.Classes {
+		s.cbIx[c.Key] = i
+	}
+}
+
+// Close closes the file.
+func (s *Store) Close() error { return s.db.Close() }
+
+// Dir returns the project directory.
+func (s *Store) Dir() string { return s.dir }
+
+// Codebook returns the project's codebook.
+func (s *Store) Codebook() handoff.Codebook { return s.cb }
+
+func (s *Store) now() time.Time {
+	if s.Now != nil {
+		return s.Now().UTC()
+	}
+	return time.Now().UTC()
+}
+
+func u64(n uint64) []byte {
+	b := make([]byte, 8)
+	binary.BigEndian.PutUint64(b, n)
+	return b
+}
+
+func pair(a, b uint64) []byte {
+	k := make([]byte, 16)
+	binary.BigEndian.PutUint64(k, a)
+	binary.BigEndian.PutUint64(k[8:], b)
+	return k
+}
+
+func putJSON(b *bolt.Bucket, k []byte, v any) error {
+	j, err := json.Marshal(v)
+	if err != nil {
+		return err
+	}
+	return b.Put(k, j)
+}
