@@ -95,9 +95,9 @@ func glcmInto(p []float64, q []uint8, w, h, dx, dy, levels int) {
 	x0, x1 := max(0, -dx), min(w, w-dx)
 	y0, y1 := max(0, -dy), min(h, h-dy)
 	for y := y0; y < y1; y++ {
-		r, s := q[y*w:], q[(y+dy)*w+dx:]
+		r, s := q[y*w:(y+1)*w], q[(y+dy)*w:(y+dy+1)*w]
 		for x := x0; x < x1; x++ {
-			a, b := int(r[x]), int(s[x])
+			a, b := int(r[x]), int(s[x+dx])
 			if a >= levels || b >= levels {
 				panic(fmt.Sprintf("features: grey level %d or %d not below %d", a, b, levels))
 			}
