@@ -1,0 +1,528 @@
+package crowd
+
+import (
+	"math"
+	"runtime"
+	"sort"
+	"sync"
+)
+
+// The EM kernel shared by DawidSkene and OneCoin.
+//
+// Layout for speed at tens of millions of labels: annotators are cut into
+// blocks whose tables fit in a core's cache, and labels are sorted by (block,
+// item). One E-step sweeps the blocks, adding each label's row of log
+// probabilities into its item's accumulator (items visited in increasing
+// order, so the accumulator streams); the M-step sweeps again, adding each
+// item's posterior into its annotator's count row. Items are split into one
+// contiguous range per worker, so workers never write the same accumulator,
+// and each worker has its own count table, summed after the sweep. A label
+// is stored as its item (int32) and a 16-bit code (annotator-within-block ×
+// K + class): 6 bytes.
+
+type float interface{ ~float32 | ~float64 }
+
+// blockBytes is the cache budget for one block's log table plus one
+// worker's count table.
+const blockBytes = 512 << 10
+
+type emState[F float] struct {
+	k, nA, nI int
+	bsz       int      // annotators per block
+	item      []int32  // labels sorted by (block, item)
+	code      []uint16 // annotator-in-block × k + class
+	boff      []int    // block b's labels: boff[b]..boff[b+1]
+	seg       [][][2]int
+	irange    [][2]int // per worker: items
+	nlab      []int32
+	gold      []int
+	logT      []F // [a][given c][true k]
+	logPrior  []float64
+	acc       []F         // nI×k: log accumulators, then posteriors
+	counts    [][]F       // per worker, like logT
+	prior     [][]float64 // per worker: Σ_i T_ik
+	ll        []float64   // per worker
+}
+
+func runEM(method string, l *Labels, o Options) (*Result, error) {
+	if err := checkInput(l, o); err != nil {
+		return nil, err
+	}
+	if l.Len() >= float32Threshold {
+		return emRun[float32](method, l, o)
+	}
+	return emRun[float64](method, l, o)
+}
+
+func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
+	k, n := l.NClasses, l.Len()
+	var z F
+	size := int(unsafeSizeof(z))
+	bsz := blockBytes / (2 * k * k * size)
+	bsz = max(1, min(bsz, 65536/k))
+	s := &emState[F]{k: k, nA: l.NAnnotators, nI: l.NItems, bsz: bsz, gold: gold,
+		nlab: make([]int32, l.NItems)}
+	nb := max(1, (l.NAnnotators+bsz-1)/bsz)
+	// Counting sort by item (skipped when already sorted), then a stable
+	// counting sort by block.
+	sorted := true
+	for j := 0; j < n; j++ {
+		s.nlab[l.Item[j]]++
+		if j > 0 && l.Item[j] < l.Item[j-1] {
+			sorted = false
+		}
+	}
+	var perm []int32
+	if !sorted {
+		start := make([]int, l.NItems+1)
+		for i, c := range s.nlab {
+			start[i+1] = start[i] + int(c)
+		}
+		perm = make([]int32, n)
+		for j := 0; j < n; j++ {
+			i := l.Item[j]
+			perm[start[i]] = int32(j)
+			start[i]++
+		}
+	}
+	s.boff = make([]int, nb+1)
+	for _, a := range l.Annotator {
+		s.boff[int(a)/bsz+1]++
+	}
+	for b := 0; b < nb; b++ {
+		s.boff[b+1] += s.boff[b]
+	}
+	next := append([]int(nil), s.boff[:nb]...)
+	s.item = make([]int32, n)
+	s.code = make([]uint16, n)
+	for q := 0; q < n; q++ {
+		j := q
+		if perm != nil {
+			j = int(perm[q])
+		}
+		a := int(l.Annotator[j])
+		b := a / bsz
+		p := next[b]
+		next[b]++
+		s.item[p] = l.Item[j]
+		s.code[p] = uint16((a-b*bsz)*k + int(l.Class[j]))
+	}
+	perm = nil
+	// Item ranges per worker, balanced by labels.
+	w := max(1, min(workers, l.NItems))
+	s.irange = make([][2]int, w)
+	lo, cum := 0, 0
+	for wk := 0; wk < w; wk++ {
+		target := n * (wk + 1) / w
+		hi := lo
+		for hi < l.NItems && (cum < target || wk == w-1) {
+			cum += int(s.nlab[hi])
+			hi++
+		}
+		s.irange[wk] = [2]int{lo, hi}
+		lo = hi
+	}
+	s.irange[w-1][1] = l.NItems
+	s.seg = make([][][2]int, w)
+	for wk := range s.seg {
+		s.seg[wk] = make([][2]int, nb)
+		for b := 0; b < nb; b++ {
+			blk := s.item[s.boff[b]:s.boff[b+1]]
+			a := sort.Search(len(blk), func(x int) bool { return int(blk[x]) >= s.irange[wk][0] })
+			e := sort.Search(len(blk), func(x int) bool { return int(blk[x]) >= s.irange[wk][1] })
+			s.seg[wk][b] = [2]int{s.boff[b] + a, s.boff[b] + e}
+		}
+	}
+	s.logT = make([]F, l.NAnnotators*k*k)
+	s.logPrior = make([]float64, k)
+	s.acc = make([]F, l.NItems*k)
+	s.counts = make([][]F, w)
+	s.prior = make([][]float64, w)
+	s.ll = make([]float64, w)
+	for wk := range w {
+		s.counts[wk] = make([]F, l.NAnnotators*k*k)
+		s.prior[wk] = make([]float64, k)
+	}
+	return s
+}
+
+func unsafeSizeof[F float](z F) uintptr {
+	if _, ok := any(z).(float32); ok {
+		return 4
+	}
+	return 8
+}
+
+func emRun[F float](method string, l *Labels, o Options) (*Result, error) {
+	k := l.NClasses
+	maxIter := o.MaxIter
+	if maxIter <= 0 {
+		maxIter = defaultMaxIter
+	}
+	tol := o.Tol
+	if tol == 0 {
+		tol = defaultTol
+	}
+	workers := o.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	s := newEMState[F](l, o.Gold, workers)
+	r := newResult(method, l, o)
+	copy(r.NLabels, s.nlab)
+	nItems := 0.0 // items with labels or gold
+	for i := 0; i < l.NItems; i++ {
+		if r.NLabels[i] > 0 || goldOf(o.Gold, i) >= 0 {
+			nItems++
+		}
+	}
+	// Initial M-step from label shares.
+	s.run(func(wk int) { s.shares(wk); s.accumulate(wk) })
+	s.mstep(method, o.Smoothing, nItems)
+	prev := math.Inf(-1)
+	for r.Iterations < maxIter {
+		s.run(func(wk int) { s.estep(wk, nil); s.accumulate(wk) })
+		r.Iterations++
+		ll := s.sumLL()
+		s.mstep(method, o.Smoothing, nItems)
+		if math.Abs(ll-prev) < tol {
+			r.Converged = true
+			break
+		}
+		prev = ll
+	}
+	// Final E-step at the final parameters, writing the posterior.
+	s.run(func(wk int) { s.estep(wk, r.Posterior) })
+	r.LogLik = s.sumLL()
+	for c := 0; c < k; c++ {
+		r.Prior[c] = math.Exp(s.logPrior[c])
+	}
+	normPrior(r.Prior, sum(r.Prior), 0)
+	for i := 0; i < l.NItems; i++ {
+		if r.NLabels[i] > 0 || goldOf(o.Gold, i) >= 0 {
+			r.Class[i] = argmax(r.Row(i))
+		}
+	}
+	fillNoLabels(r, o.Gold)
+	// Confusion matrices from the tables (exp of the logs, undoing the floor).
+	floor := floorFor[F]()
+	for a := 0; a < s.nA; a++ {
+		for t := 0; t < k; t++ {
+			row := r.Confusion[(a*k+t)*k : (a*k+t+1)*k]
+			var z float64
+			for c := 0; c < k; c++ {
+				p := math.Exp(float64(s.logT[(a*k+c)*k+t]))
+				if p <= 2*floor {
+					p = 0
+				}
+				row[c] = p
+				z += p
+			}
+			for c := range row {
+				if z > 0 {
+					row[c] /= z
+				} else {
+					row[c] = 1 / float64(k)
+				}
+			}
+		}
+		var rel float64
+		for t := 0; t < k; t++ {
+			rel += r.Prior[t] * r.Confusion[(a*k+t)*k+t]
+		}
+		r.Reliability[a] = rel
+	}
+	return r, nil
+}
+
+func sum(x []float64) float64 {
+	var s float64
+	for _, v := range x {
+		s += v
+	}
+	return s
+}
+
+func floorFor[F float]() float64 {
+	var x F
+	if _, ok := any(x).(float32); ok {
+		return logFloorProbSmall
+	}
+	return logFloorProb
+}
+
+func (s *emState[F]) run(f func(wk int)) {
+	if len(s.irange) == 1 {
+		f(0)
+		return
+	}
+	var wg sync.WaitGroup
+	for wk := range s.irange {
+		wg.Add(1)
+		go func() { defer wg.Done(); f(wk) }()
+	}
+	wg.Wait()
+}
+
+func (s *emState[F]) sumLL() float64 {
+	var t float64
+	for _, v := range s.ll {
+		t += v
+	}
+	return t
+}
+
+// shares sets the worker's items' posteriors to their share of labels per
+// class (gold clamped): the start of EM (Dawid & Skene 1979, eq. 3.1).
+func (s *emState[F]) shares(wk int) {
+	k := s.k
+	lo, hi := s.irange[wk][0], s.irange[wk][1]
+	acc := s.acc[lo*k : hi*k]
+	clear(acc)
+	for b := range s.seg[wk] {
+		sg := s.seg[wk][b]
+		items, codes := s.item[sg[0]:sg[1]], s.code[sg[0]:sg[1]]
+		codes = codes[:len(items)]
+		for j, it := range items {
+			s.acc[int(it)*k+int(codes[j])%k]++
+		}
+	}
+	pr := s.prior[wk]
+	clear(pr)
+	for i := lo; i < hi; i++ {
+		row := s.acc[i*k : (i+1)*k]
+		if g := goldOf(s.gold, i); g >= 0 {
+			clear(row)
+			row[g] = 1
+		} else if n := s.nlab[i]; n > 0 {
+			inv := 1 / F(n)
+			for c := range row {
+				row[c] *= inv
+			}
+		}
+		for c, v := range row {
+			pr[c] += float64(v)
+		}
+	}
+}
+
+// estep computes the worker's items' posteriors into acc, its part of the
+// log-likelihood into ll and its prior sums into prior; when post is not nil
+// it also writes the posteriors there (items with no labels: the prior).
+func (s *emState[F]) estep(wk int, post []float64) {
+	k := s.k
+	lo, hi := s.irange[wk][0], s.irange[wk][1]
+	for i := lo; i < hi; i++ {
+		row := s.acc[i*k : (i+1)*k]
+		for c := range row {
+			row[c] = F(s.logPrior[c])
+		}
+	}
+	for b := range s.seg[wk] {
+		sg := s.seg[wk][b]
+		items, codes := s.item[sg[0]:sg[1]], s.code[sg[0]:sg[1]]
+		codes = codes[:len(items)]
+		base := b * s.bsz * k * k
+		lt := s.logT[base:min(len(s.logT), base+s.bsz*k*k)]
+		acc := s.acc
+		if k == 5 {
+			for j, it := range items {
+				o := int(codes[j]) * 5
+				d := int(it) * 5
+				src := lt[o : o+5 : o+5]
+				dst := acc[d : d+5 : d+5]
+				dst[0] += src[0]
+				dst[1] += src[1]
+				dst[2] += src[2]
+				dst[3] += src[3]
+				dst[4] += src[4]
+			}
+			continue
+		}
+		for j, it := range items {
+			o := int(codes[j]) * k
+			d := int(it) * k
+			src := lt[o : o+k : o+k]
+			dst := acc[d : d+k : d+k]
+			for c := range dst {
+				dst[c] += src[c]
+			}
+		}
+	}
+	pr := s.prior[wk]
+	clear(pr)
+	var ll float64
+	sc := make([]float64, k)
+	for i := lo; i < hi; i++ {
+		row := s.acc[i*k : (i+1)*k]
+		g := goldOf(s.gold, i)
+		if s.nlab[i] == 0 && g < 0 {
+			for c := range row {
+				row[c] = 0 // no labels: no weight in the M-step
+			}
+			if post != nil {
+				p := post[i*k : (i+1)*k]
+				for c := range p {
+					p[c] = math.Exp(s.logPrior[c])
+				}
+			}
+			continue
+		}
+		m := math.Inf(-1)
+		for c, v := range row {
+			sc[c] = float64(v)
+			m = max(m, sc[c])
+		}
+		if g >= 0 {
+			ll += sc[g] // complete-data term of a clamped item: log p_g + Σ log π_a[g][c]
+			for c := range row {
+				row[c] = 0
+			}
+			row[g] = 1
+			pr[g]++
+		} else {
+			var z float64
+			for c, v := range sc {
+				e := math.Exp(v - m)
+				sc[c] = e
+				z += e
+			}
+			ll += m + math.Log(z)
+			inv := 1 / z
+			for c := range row {
+				p := sc[c] * inv
+				row[c] = F(p)
+				pr[c] += p
+			}
+		}
+		if post != nil {
+			p := post[i*k : (i+1)*k]
+			for c := range p {
+				p[c] = float64(row[c])
+			}
+		}
+	}
+	s.ll[wk] = ll
+}
+
+// accumulate adds each label's item posterior into the worker's count table.
+func (s *emState[F]) accumulate(wk int) {
+	k := s.k
+	cnt := s.counts[wk]
+	clear(cnt)
+	for b := range s.seg[wk] {
+		sg := s.seg[wk][b]
+		items, codes := s.item[sg[0]:sg[1]], s.code[sg[0]:sg[1]]
+		codes = codes[:len(items)]
+		base := b * s.bsz * k * k
+		cb := cnt[base:min(len(cnt), base+s.bsz*k*k)]
+		acc := s.acc
+		if k == 5 {
+			for j, it := range items {
+				o := int(codes[j]) * 5
+				d := int(it) * 5
+				src := acc[d : d+5 : d+5]
+				dst := cb[o : o+5 : o+5]
+				dst[0] += src[0]
+				dst[1] += src[1]
+				dst[2] += src[2]
+				dst[3] += src[3]
+				dst[4] += src[4]
+			}
+			continue
+		}
+		for j, it := range items {
+			o := int(codes[j]) * k
+			d := int(it) * k
+			src := acc[d : d+k : d+k]
+			dst := cb[o : o+k : o+k]
+			for c := range dst {
+				dst[c] += src[c]
+			}
+		}
+	}
+}
+
+// mstep reduces the workers' accumulators into a new prior and new log
+// tables; the workers share the annotators between them.
+func (s *emState[F]) mstep(method string, alpha, nItems float64) {
+	k := s.k
+	pr := s.prior[0]
+	for _, o := range s.prior[1:] {
+		for c, v := range o {
+			pr[c] += v
+		}
+	}
+	p := append([]float64(nil), pr...)
+	normPrior(p, nItems, alpha)
+	floor := floorFor[F]()
+	for c := range p {
+		s.logPrior[c] = math.Log(max(p[c], floor))
+	}
+	w := len(s.irange)
+	s.run(func(wk int) {
+		a0, a1 := s.nA*wk/w, s.nA*(wk+1)/w
+		cnt := s.counts[0][a0*k*k : a1*k*k]
+		for _, o := range s.counts[1:] {
+			for j, v := range o[a0*k*k : a1*k*k] {
+				cnt[j] += v
+			}
+		}
+		s.mstepRange(method, alpha, a0, a1)
+	})
+}
+
+func (s *emState[F]) mstepRange(method string, alpha float64, a0, a1 int) {
+	k := s.k
+	cnt := s.counts[0]
+	floor := floorFor[F]()
+	uni := F(math.Log(1 / float64(k)))
+	rowSum := make([]float64, k)
+	for a := a0; a < a1; a++ {
+		blk := cnt[a*k*k : (a+1)*k*k]
+		lt := s.logT[a*k*k : (a+1)*k*k]
+		if method == MethodOneCoin {
+			var diag, tot float64
+			for c := 0; c < k; c++ {
+				for t := 0; t < k; t++ {
+					v := float64(blk[c*k+t])
+					tot += v
+					if c == t {
+						diag += v
+					}
+				}
+			}
+			q := 1 / float64(k)
+			if tot+2*alpha > 0 {
+				q = (diag + alpha) / (tot + 2*alpha)
+			}
+			on := F(math.Log(max(q, floor)))
+			off := F(math.Log(max((1-q)/float64(k-1), floor)))
+			for c := 0; c < k; c++ {
+				for t := 0; t < k; t++ {
+					if c == t {
+						lt[c*k+t] = on
+					} else {
+						lt[c*k+t] = off
+					}
+				}
+			}
+			continue
+		}
+		clear(rowSum)
+		for c := 0; c < k; c++ {
+			for t := 0; t < k; t++ {
+				rowSum[t] += float64(blk[c*k+t]) + alpha
+			}
+		}
+		for c := 0; c < k; c++ {
+			for t := 0; t < k; t++ {
+				if rowSum[t] <= 0 {
+					lt[c*k+t] = uni
+					continue
+				}
+				lt[c*k+t] = F(math.Log(max((float64(blk[c*k+t])+alpha)/rowSum[t], floor)))
+			}
+		}
+	}
+}
