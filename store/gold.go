@@ -20,7 +20,7 @@ import (
 // gold replaces it (counted as Updated).
 func (s *Store) ImportGold(source string, next func() (handoff.Gold, error)) (ImportResult, error) {
 	var res ImportResult
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.write(func(tx *bolt.Tx) error {
 		res = ImportResult{}
 		gold, ids := tx.Bucket(bGold), tx.Bucket(bItemIDs)
 		seen := map[string]bool{}

@@ -88,37 +88,40 @@ func decodeLabel(v []byte, r *LabelRecord) error {
 // next is called inside the write transaction; it must not use the store.
 func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) (ImportResult, error) {
 	var res ImportResult
-	err := s.db.Update(func(tx *bolt.Tx) error {
-		res = ImportResult{}
+	chunk := s.chunk()
+	annIDs := map[string]uint32{}
+	err := s.chunked("labels", func(tx *bolt.Tx) (bool, error) {
 		labels, byItem, byAnn := tx.Bucket(bLabels), tx.Bucket(bLabelItem), tx.Bucket(bLabelAnn)
 		labels.FillPercent = 1
 		itemIDs := tx.Bucket(bItemIDs)
-		ann := newAnnotatorCache(tx)
+		ann := newAnnotatorCache(tx, annIDs)
 		seq := labels.Sequence()
-		for {
+		done := false
+		for n := 0; n < chunk; n++ {
 			l, err := next()
 			if err == io.EOF {
+				done = true
 				break
 			}
 			if err != nil {
-				return err
+				return false, err
 			}
 			var r LabelRecord
 			k := itemIDs.Get([]byte(l.Item))
 			if k == nil {
-				return dataErr("item", "unknown item %q (add it with `loop items add` first)", l.Item)
+				return false, dataErr("item", "unknown item %q (add it with `loop items add` first)", l.Item)
 			}
 			r.Item = uint32(binary.BigEndian.Uint64(k))
 			ci, ok := s.cbIx[l.Class]
 			if !ok {
-				return dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
+				return false, dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
 			}
 			r.Class = uint16(ci)
 			if l.Annotator == "" {
-				return dataErr("annotator", "empty annotator id")
+				return false, dataErr("annotator", "empty annotator id")
 			}
 			if math.IsNaN(l.Seconds) || math.IsInf(l.Seconds, 0) || l.Seconds < 0 {
-				return dataErr("seconds", "seconds %v is not a finite number ≥ 0", l.Seconds)
+				return false, dataErr("seconds", "seconds %v is not a finite number ≥ 0", l.Seconds)
 			}
 			r.Seconds = l.Seconds
 			if !l.Time.IsZero() {
@@ -126,25 +129,28 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 			}
 			a, err := ann.get(l.Annotator)
 			if err != nil {
-				return err
+				return false, err
 			}
 			r.Annotator = a
 			if err := labels.Put(u64(seq), encodeLabel(&r)); err != nil {
-				return err
+				return false, err
 			}
 			if err := byItem.Put(pair(uint64(r.Item), seq), nil); err != nil {
-				return err
+				return false, err
 			}
 			if err := byAnn.Put(pair(uint64(r.Annotator), seq), nil); err != nil {
-				return err
+				return false, err
 			}
 			seq++
 			res.Added++
 		}
 		if err := labels.SetSequence(seq); err != nil {
-			return err
+			return false, err
 		}
-		return s.audit(tx, source, "labels.add", res.String())
+		if done {
+			return true, s.audit(tx, source, "labels.add", res.String())
+		}
+		return false, nil
 	})
 	if err != nil {
 		return ImportResult{}, err
@@ -164,8 +170,10 @@ type annotatorCache struct {
 	records *bolt.Bucket
 }
 
-func newAnnotatorCache(tx *bolt.Tx) *annotatorCache {
-	return &annotatorCache{tx: tx, byID: map[string]uint32{},
+// newAnnotatorCache looks annotators up in tx, remembering them in byID
+// (which may be shared by the transactions of one import).
+func newAnnotatorCache(tx *bolt.Tx, byID map[string]uint32) *annotatorCache {
+	return &annotatorCache{tx: tx, byID: byID,
 		ids: tx.Bucket(bAnnotatorIDs), records: tx.Bucket(bAnnotators)}
 }
 
@@ -196,9 +204,9 @@ func (c *annotatorCache) get(id string) (uint32, error) {
 // keeping their numbers.
 func (s *Store) PutAnnotators(as []handoff.Annotator, source string) (ImportResult, error) {
 	var res ImportResult
-	err := s.db.Update(func(tx *bolt.Tx) error {
+	err := s.write(func(tx *bolt.Tx) error {
 		res = ImportResult{}
-		c := newAnnotatorCache(tx)
+		c := newAnnotatorCache(tx, map[string]uint32{})
 		for _, a := range as {
 			if a.ID == "" {
 				return dataErr("id", "empty annotator id")

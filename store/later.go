@@ -33,7 +33,7 @@ func (s *Store) audit(tx *bolt.Tx, source, action, detail string) error {
 // Record adds an entry to the audit trail for a change made outside the
 // store's own write methods (for example a file written next to the project).
 func (s *Store) Record(source, action, detail string) error {
-	return s.db.Update(func(tx *bolt.Tx) error { return s.audit(tx, source, action, detail) })
+	return s.write(func(tx *bolt.Tx) error { return s.audit(tx, source, action, detail) })
 }
 
 // Audit returns the audit trail, oldest first.
@@ -54,7 +54,7 @@ func (s *Store) Audit() ([]AuditEntry, error) {
 
 // update runs fn in a write transaction and records an audit entry with it.
 func (s *Store) update(source, action, detail string, fn func(tx *bolt.Tx) error) error {
-	return s.db.Update(func(tx *bolt.Tx) error {
+	return s.write(func(tx *bolt.Tx) error {
 		if err := fn(tx); err != nil {
 			return err
 		}

@@ -24,6 +24,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"sync"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -114,6 +115,11 @@ type Store struct {
 	dir  string
 	cb   handoff.Codebook
 	cbIx map[string]int
+	wmu  sync.Mutex // held by every write, for the whole of a chunked import
+
+	// ImportChunk is the number of records an import writes per
+	// transaction; DefaultImportChunk if ≤ 0.
+	ImportChunk int
 
 	// Now gives the time recorded in the audit trail; time.Now if nil.
 	Now func() time.Time
@@ -224,6 +230,10 @@ func Open(dir string) (*Store, error) {
 		return nil, err
 	}
 	s.setCodebook(cb)
+	if err := s.rollback(); err != nil {
+		db.Close()
+		return nil, fmt.Errorf("open %s: undoing an interrupted import: %w", p, err)
+	}
 	return s, nil
 }
 
