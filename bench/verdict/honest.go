@@ -24,13 +24,13 @@ type Project struct {
 }
 
 // Generate draws a project. Confidences are c = 1/2 + Beta(A, B)/2 (a binary
-// task), with A in [1, 6] and B in [0.5, 2.5] drawn per project, so models
+// task), with A in [1, 8] and B in [0.5, 2.5] drawn per project, so models
 // range from weak to strong. The chance that the machine is right at
 // confidence c is c^Gamma with Gamma in [0.8, 1.4]: calibrated when Gamma = 1,
 // over-confident above 1, under-confident below — imperfect either way. The
 // held-out set has nHeld items, the archive nArch.
 func Generate(r *rand.Rand, nHeld, nArch int) Project {
-	p := Project{Gamma: 0.8 + 0.6*r.Float64(), A: 1 + 5*r.Float64(), B: 0.5 + 2*r.Float64()}
+	p := Project{Gamma: 0.8 + 0.6*r.Float64(), A: 1 + 7*r.Float64(), B: 0.5 + 2*r.Float64()}
 	draw := func(n int) ([]float64, []bool) {
 		c := make([]float64, n)
 		w := make([]bool, n)
