@@ -324,4 +324,3 @@ func confusionFromCounts(r *Result, counts []float64, alpha float64, transposed 
 		r.Reliability[a] = rel
 	}
 }
-
