@@ -11,6 +11,7 @@ import (
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/text"
 	"gonum.org/v1/plot/vg"
 	"gonum.org/v1/plot/vg/draw"
 	"gonum.org/v1/plot/vg/vgsvg"
@@ -40,6 +41,11 @@ func newPlot(title, x, y string) *plot.Plot {
 		a.Tick.Color = ink
 	}
 	p.Legend.TextStyle.Color = ink
+	// Sans-serif text throughout, from the fonts gonum/plot embeds.
+	for _, st := range []*text.Style{&p.Title.TextStyle, &p.X.Label.TextStyle, &p.Y.Label.TextStyle, &p.X.Tick.Label, &p.Y.Tick.Label, &p.Legend.TextStyle} {
+		st.Font.Variant = "Sans"
+	}
+	p.Title.TextStyle.Font.Size = vg.Points(13)
 	p.Legend.Top = true
 	g := plotter.NewGrid()
 	g.Vertical.Color = color.Gray{0xe4}
@@ -163,19 +169,26 @@ func (r *Report) plotRisk() (template.HTML, error) {
 	var risk, upper plotter.XYs
 	for _, q := range r.CoverageRisk {
 		risk = append(risk, plotter.XY{X: q.Coverage, Y: q.Risk})
-		upper = append(upper, plotter.XY{X: q.Coverage, Y: q.Upper})
+		// The bound is drawn where thresholds may be tested; below the
+		// minimum count it is near 1 and says nothing.
+		if q.N >= r.Threshold.MinCount {
+			upper = append(upper, plotter.XY{X: q.Coverage, Y: q.Upper})
+		}
 	}
 	lr, err := line(risk, teal, vg.Points(1.5), false)
 	if err != nil {
 		return "", err
 	}
-	lu, err := line(upper, brick, vg.Points(1), false)
-	if err != nil {
-		return "", err
-	}
-	p.Add(lr, lu)
+	p.Add(lr)
 	p.Legend.Add("observed disagreement", lr)
-	p.Legend.Add(fmt.Sprintf("%.0f%% upper bound", 100*r.Threshold.Level), lu)
+	if len(upper) > 0 {
+		lu, err := line(upper, brick, vg.Points(1), false)
+		if err != nil {
+			return "", err
+		}
+		p.Add(lu)
+		p.Legend.Add(fmt.Sprintf("%s upper bound", pct(r.Threshold.Level)), lu)
+	}
 	if err := hline(p, r.Threshold.MaxError, 0, 1, slate, "max-error"); err != nil {
 		return "", err
 	}
@@ -187,6 +200,7 @@ func (r *Report) plotRisk() (template.HTML, error) {
 		p.Add(v)
 		p.Legend.Add(fmt.Sprintf("chosen threshold %.3g", r.Threshold.Threshold), v)
 	}
+	p.Legend.Left = true
 	p.X.Min, p.X.Max = 0, 1
 	p.Y.Min, p.Y.Max = 0, math.Min(1, math.Max(3*r.Threshold.MaxError, maxRisk(r.CoverageRisk)*1.1))
 	return svgOf(p, 16*vg.Centimeter, 10*vg.Centimeter)
@@ -195,7 +209,7 @@ func (r *Report) plotRisk() (template.HTML, error) {
 func maxRisk(ps []RiskPoint) float64 {
 	m := 0.0
 	for _, q := range ps {
-		if q.Tested {
+		if q.Tested && q.Upper < 1 {
 			m = math.Max(m, q.Upper)
 		}
 		m = math.Max(m, q.Risk)
@@ -269,7 +283,9 @@ func (r *Report) plotAnnotators() (template.HTML, error) {
 	} else {
 		p.HideY()
 	}
-	p.Legend.Left = true
+	// High kappas sit at the top right, low ones at the bottom left: the
+	// bottom right is free for the legend.
+	p.Legend.Top = false
 	p.X.Max = 1
 	h := vg.Length(math.Max(8, math.Min(30, 4+0.45*float64(n)))) * vg.Centimeter
 	return svgOf(p, 16*vg.Centimeter, h)

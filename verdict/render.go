@@ -15,7 +15,10 @@ func (r *Report) WriteJSON(w io.Writer) error {
 	return e.Encode(r)
 }
 
-func pct(v float64) string { return fmt.Sprintf("%.1f%%", 100*v) }
+// pct formats a share as a percentage with one decimal, dropping ".0".
+func pct(v float64) string {
+	return strings.Replace(fmt.Sprintf("%.1f%%", 100*v), ".0%", "%", 1)
+}
 
 func iv(v Interval) string { return fmt.Sprintf("%.3f [%.3f, %.3f]", v.Est, v.Lo, v.Hi) }
 

@@ -142,7 +142,7 @@ func CoverageRisk(conf []float64, wrong []bool, archive []float64, maxErr, level
 		pts[i].Tested = true
 		if pts[i].Upper > maxErr {
 			walking = false
-			th.Stop = fmt.Sprintf("stopped at threshold %.4g: %d errors in %d items, upper bound %.4f > max-error %.4g",
+			th.Stop = fmt.Sprintf("stopped at threshold %.6g: %d errors in %d items, upper bound %.4f > max-error %.4g",
 				pts[i].Threshold, pts[i].Errors, pts[i].N, pts[i].Upper, maxErr)
 			break
 		}
