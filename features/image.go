@@ -5,12 +5,12 @@ import (
 	"errors"
 	"fmt"
 	"image"
+	stddraw "image/draw"
 	_ "image/gif" // register decoders
 	_ "image/jpeg"
 	_ "image/png"
 	"math"
 	"os"
-	"slices"
 	"strconv"
 
 	_ "golang.org/x/image/bmp"
@@ -21,9 +21,10 @@ import (
 
 // ImageConfig says how images become dense rows of named features. It
 // serialises to JSON so a model file can carry it; DefaultImageConfig gives
-// the usual settings. Every image is first resized to Size×Size (bilinear,
-// golang.org/x/image/draw), alpha-premultiplied so that transparency reads as
-// black. Intensity I is the BT.601 luma (see GrayOf).
+// the usual settings. Every image is first resized to Size×Size,
+// alpha-premultiplied so that transparency reads as black: a square image
+// whose side is k·Size by averaging k×k blocks (rounded to 8 bits), any other
+// by bilinear resampling (golang.org/x/image/draw). Intensity I is the BT.601 luma (see GrayOf).
 //
 // The features, in the order of Names:
 //
@@ -224,18 +225,23 @@ func (c ImageConfig) run(n int, get func(i int) (image.Image, error)) (*Dense, e
 
 // imageScratch holds one goroutine's buffers.
 type imageScratch struct {
-	c      ImageConfig
-	cols   int
-	dst    *image.RGBA
-	ch     [6][]float64 // r g b h s v
-	gray   Gray
-	sorted []float64
-	q      []uint8
-	glcm   []float64
-	gx, gy []float64
-	radial []float64
-	counts [256]int32
-	hog    []float64
+	c       ImageConfig
+	cols    int
+	dst     *image.RGBA
+	ch      [6][]float64 // r g b h s v
+	gray    Gray
+	sorted  []float64
+	q       []uint8
+	glcm    []float64
+	gx, gy  []float64
+	radial  []float64
+	counts  [256]int32
+	hog     []float64
+	tmp     []float64
+	scaler  draw.Scaler
+	full    *image.RGBA
+	boxSums []uint32
+	sw, sh  int
 }
 
 func newImageScratch(c ImageConfig) *imageScratch {
@@ -252,6 +258,7 @@ func newImageScratch(c ImageConfig) *imageScratch {
 	s.gx, s.gy = make([]float64, n), make([]float64, n)
 	s.radial = make([]float64, int(float64(c.Size)*math.Sqrt2*4)+2)
 	s.hog = make([]float64, c.HOGGrid*c.HOGGrid*c.HOGBins)
+	s.tmp = make([]float64, n)
 	return s
 }
 
@@ -308,7 +315,17 @@ func meanStd(x []float64) (float64, float64) {
 func (s *imageScratch) features(img image.Image, out []float64) []float64 {
 	c := s.c
 	n := c.Size * c.Size
-	draw.BiLinear.Scale(s.dst, s.dst.Rect, img, img.Bounds(), draw.Src, nil)
+	sb := img.Bounds()
+	if k := sb.Dx() / c.Size; k >= 1 && sb.Dx() == k*c.Size && sb.Dy() == k*c.Size {
+		s.boxDown(img, k)
+	} else {
+		if s.scaler == nil || s.sw != sb.Dx() || s.sh != sb.Dy() {
+			// A Scaler keeps its weights and buffers: build one per source size.
+			s.sw, s.sh = sb.Dx(), sb.Dy()
+			s.scaler = draw.BiLinear.NewScaler(c.Size, c.Size, s.sw, s.sh)
+		}
+		s.scaler.Scale(s.dst, s.dst.Rect, img, sb, draw.Src, nil)
+	}
 	pix := s.dst.Pix
 	r, g, b, h, sat, v := s.ch[0], s.ch[1], s.ch[2], s.ch[3], s.ch[4], s.ch[5]
 	I := s.gray.Pix
@@ -343,8 +360,10 @@ func (s *imageScratch) features(img image.Image, out []float64) []float64 {
 		h[i], sat[i] = hue, sa
 	}
 	// colour
+	var means [6]float64
 	for k, x := range s.ch {
 		m, sd := meanStd(x)
+		means[k] = m
 		out = append(out, m, sd)
 		if k < 3 || k == 5 { // 8-bit values: quantiles from counts
 			clear(s.counts[:])
@@ -362,13 +381,10 @@ func (s *imageScratch) features(img image.Image, out []float64) []float64 {
 			continue
 		}
 		sorted := append(s.sorted[:0], x...)
-		slices.Sort(sorted)
+		sortNonNegative(sorted, s.tmp)
 		out = append(out, quantile(sorted, 0.1), quantile(sorted, 0.5), quantile(sorted, 0.9))
 	}
-	mr, _ := meanStd(r)
-	mg, _ := meanStd(g)
-	mb, _ := meanStd(b)
-	out = append(out, mb-mr, mg-mr)
+	out = append(out, means[2]-means[0], means[1]-means[0])
 	// intensity histogram
 	start := len(out)
 	for k := 0; k < c.HistBins; k++ {
@@ -447,7 +463,7 @@ func (s *imageScratch) features(img image.Image, out []float64) []float64 {
 		asym /= 2 * mo.M00
 	}
 	sorted := append(s.sorted[:0], I...)
-	slices.Sort(sorted)
+	sortNonNegative(sorted, s.tmp)
 	var gini float64
 	if mo.M00 > 0 && n > 1 {
 		for i, x := range sorted {
@@ -507,6 +523,56 @@ func (s *imageScratch) features(img image.Image, out []float64) []float64 {
 	return out
 }
 
+// boxDown writes into s.dst the k×k block means of img, whose side is k
+// times Size (area averaging, the exact resampling for an integer factor),
+// after converting it to premultiplied RGBA.
+func (s *imageScratch) boxDown(img image.Image, k int) {
+	b := img.Bounds()
+	src, ok := img.(*image.RGBA)
+	if !ok || k > 1 {
+		if !ok {
+			if s.full == nil || s.full.Rect.Size() != b.Size() {
+				s.full = image.NewRGBA(image.Rect(0, 0, b.Dx(), b.Dy()))
+			}
+			stddraw.Draw(s.full, s.full.Rect, img, b.Min, stddraw.Src)
+			src = s.full
+		}
+	}
+	N := s.c.Size
+	if k == 1 {
+		for y := 0; y < N; y++ {
+			o := src.PixOffset(src.Rect.Min.X, src.Rect.Min.Y+y)
+			copy(s.dst.Pix[y*s.dst.Stride:y*s.dst.Stride+4*N], src.Pix[o:o+4*N])
+		}
+		return
+	}
+	area := uint32(k * k)
+	if len(s.boxSums) != 4*N {
+		s.boxSums = make([]uint32, 4*N)
+	}
+	sums := s.boxSums
+	for y := 0; y < N; y++ {
+		clear(sums)
+		for dy := 0; dy < k; dy++ {
+			o := src.PixOffset(src.Rect.Min.X, src.Rect.Min.Y+y*k+dy)
+			row := src.Pix[o : o+4*N*k]
+			for x := 0; x < N; x++ {
+				px := row[4*k*x : 4*k*(x+1)]
+				for i := 0; i < len(px); i += 4 {
+					sums[4*x] += uint32(px[i])
+					sums[4*x+1] += uint32(px[i+1])
+					sums[4*x+2] += uint32(px[i+2])
+					sums[4*x+3] += uint32(px[i+3])
+				}
+			}
+		}
+		d := s.dst.Pix[y*s.dst.Stride : y*s.dst.Stride+4*N]
+		for i, v := range sums {
+			d[i] = uint8((v + area/2) / area) // rounded mean
+		}
+	}
+}
+
 func (s *imageScratch) quantize() {
 	L := s.c.Levels
 	for i, v := range s.gray.Pix {
@@ -537,5 +603,39 @@ func (s *imageScratch) sobel() {
 			s.gx[y*N+x] = (c + 2*f + k) - (a + 2*d + g)
 			s.gy[y*N+x] = (g + 2*h + k) - (a + 2*b + c)
 		}
+	}
+}
+
+// sortNonNegative sorts x (non-negative, not NaN) in increasing order by a
+// least-significant-digit radix sort on the bits of float32(v), which order
+// like the values for non-negative numbers. Values closer than float32
+// resolution (relative 6e-8) may keep their input order; values derived from
+// 8-bit channels (luma, hue, saturation) are always further apart, so for
+// them the order is exact. tmp has len(x).
+func sortNonNegative(x, tmp []float64) {
+	var counts [256]int
+	src, dst := x, tmp[:len(x)]
+	for shift := uint(0); shift < 32; shift += 8 {
+		clear(counts[:])
+		for _, v := range src {
+			counts[byte(math.Float32bits(float32(v))>>shift)]++
+		}
+		if counts[byte(math.Float32bits(float32(src[0]))>>shift)] == len(src) {
+			continue // every key has this byte: the pass would not move anything
+		}
+		sum := 0
+		for k, c := range counts {
+			counts[k] = sum
+			sum += c
+		}
+		for _, v := range src {
+			b := byte(math.Float32bits(float32(v)) >> shift)
+			dst[counts[b]] = v
+			counts[b]++
+		}
+		src, dst = dst, src
+	}
+	if &src[0] != &x[0] {
+		copy(x, src)
 	}
 }

@@ -12,6 +12,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
@@ -345,6 +346,53 @@ func TestImageTransformParallelEqualsSingle(t *testing.T) {
 		_, got := m.Row(i)
 		if want := mustFeatures(t, c, img); !reflect.DeepEqual(got, want) {
 			t.Fatalf("image %d differs between batch and single", i)
+		}
+	}
+}
+
+func TestSortNonNegative(t *testing.T) {
+	x := []float64{0.5, 0, 1, 0.25, 1e-30, 3, 0.5, 0.125, 2, 0}
+	want := slices.Clone(x)
+	slices.Sort(want)
+	sortNonNegative(x, make([]float64, len(x)))
+	if !reflect.DeepEqual(x, want) {
+		t.Errorf("sorted %v, want %v", x, want)
+	}
+}
+
+// TestResizePaths checks that an image whose side is a multiple of Size is
+// averaged in blocks, whatever its colour model.
+func TestResizePaths(t *testing.T) {
+	c := DefaultImageConfig()
+	c.Size = 8
+	pal := image.NewPaletted(image.Rect(0, 0, 16, 16), color.Palette{color.Black, color.White, color.RGBA{R: 255, A: 255}})
+	rgba := image.NewRGBA(pal.Rect)
+	for y := 0; y < 16; y++ {
+		for x := 0; x < 16; x++ {
+			k := uint8((x*7 + y*3) % 3)
+			pal.SetColorIndex(x, y, k)
+			rgba.Set(x, y, pal.Palette[k])
+		}
+	}
+	a, b := mustFeatures(t, c, pal), mustFeatures(t, c, rgba)
+	if !reflect.DeepEqual(a, b) {
+		t.Error("paletted and RGBA copies of one picture give different features")
+	}
+	s := newImageScratch(c)
+	s.boxDown(rgba, 2)
+	for _, p := range [][2]int{{0, 0}, {3, 5}, {7, 7}} {
+		var sum [3]int
+		for dy := 0; dy < 2; dy++ {
+			for dx := 0; dx < 2; dx++ {
+				q := rgba.RGBAAt(2*p[0]+dx, 2*p[1]+dy)
+				sum[0] += int(q.R)
+				sum[1] += int(q.G)
+				sum[2] += int(q.B)
+			}
+		}
+		got := s.dst.RGBAAt(p[0], p[1])
+		if int(got.R) != (sum[0]+2)/4 || int(got.G) != (sum[1]+2)/4 || int(got.B) != (sum[2]+2)/4 {
+			t.Errorf("block %v: %v, want the rounded means of %v", p, got, sum)
 		}
 	}
 }
