@@ -102,7 +102,8 @@ type Plan struct {
 	// consensus class.
 	ConflictAbove float64
 	// NoRefill keeps shortfalls empty. By default slots a reason cannot
-	// fill (too few candidates) go to model-unsure.
+	// fill (too few candidates) go to model-unsure, when the pool has model
+	// scores.
 	NoRefill bool
 	// Seed fixes tie-breaking and the random picks.
 	Seed uint64
@@ -316,7 +317,9 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 	}
 
 	want := plan.Unsure
-	if !plan.NoRefill {
+	// Refill only when model-unsure picks are possible at all: a plan
+	// without them may come with a pool without model scores.
+	if !plan.NoRefill && (plan.Unsure > 0 || pool.Proba != nil || len(pool.Committee) > 0) {
 		want += short
 	}
 	if want > 0 {

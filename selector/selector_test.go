@@ -275,6 +275,12 @@ func TestSelectMixRespectsQuotas(t *testing.T) {
 			t.Error("held-out item picked")
 		}
 	}
+	// An audit-only plan on a pool without model scores: no refill, no error.
+	small.Proba = nil
+	p3, err := Select(small, Plan{Audit: 5})
+	if err != nil || len(p3) != 3 {
+		t.Errorf("audit-only plan: %d picks, error %v (want 3, nil)", len(p3), err)
+	}
 }
 
 func TestPlanShares(t *testing.T) {

@@ -3,7 +3,7 @@ package verdict_test
 import (
 	"testing"
 
-	"handoff/bench/verdict"
+	honest "handoff/bench/verdict"
 )
 
 // TestHonestBound is issue 5's "an honest bound" (small version; the large
