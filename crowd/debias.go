@@ -131,6 +131,10 @@ type DebiasOptions struct {
 	// Smoothing is the pseudo-count pulling each gold-estimated confusion row
 	// towards "no confusion" (0 means 1).
 	Smoothing float64
+	// Prior is the class prior the posterior was computed with
+	// (Result.Prior); nil means the mean posterior over all items, which is
+	// what Dawid–Skene converges to.
+	Prior []float64
 }
 
 // Debiased is the result of Debias. Per stratum s: Confusion[s] is the K×K
@@ -155,11 +159,14 @@ type Debiased struct {
 // combining cannot remove. post is the consensus posterior (NItems×k, e.g.
 // Result.Posterior); it is not modified.
 //
-// Model: within stratum s the consensus reports class c for an item of true
-// class t with probability C_s[t][c]; the true classes have mix π_s. Given
-// consensus posterior q_i, Bayes' rule gives the corrected posterior
+// Model: within stratum s everyone perceives an item of true class t as
+// class c with probability C_s[t][c], and labels it from what they perceive;
+// the true classes have mix π_s. The consensus posterior q_i was computed
+// under a prior ρ (DebiasOptions.Prior), so the labels' likelihood of the
+// perceived class c is proportional to q_ic/ρ_c, and Bayes' rule gives the
+// corrected posterior
 //
-//	p_it ∝ π_s[t] · Σ_c C_s[t][c] q_ic.
+//	p_it ∝ π_s[t] · Σ_c C_s[t][c] q_ic/ρ_c.
 //
 // With gold (any Gold[i] ≥ 0): C_s[t] is estimated from the gold items of
 // stratum s as (Σ_{gold i = t} q_i + α e_t)/(n_st + α), α = Smoothing, so a
@@ -209,6 +216,27 @@ func Debias(post []float64, k int, s Strata, o DebiasOptions) (*Debiased, error)
 	if alpha < 0 || math.IsNaN(alpha) || math.IsInf(alpha, 0) {
 		return nil, fmt.Errorf("crowd: debias smoothing %v must be a finite number > 0", o.Smoothing)
 	}
+	rho := o.Prior
+	if rho == nil {
+		rho = make([]float64, k)
+		for i := 0; i < n; i++ {
+			for c := 0; c < k; c++ {
+				rho[c] += post[i*k+c] / float64(n)
+			}
+		}
+	} else if len(rho) != k {
+		panic(fmt.Sprintf("crowd: debias prior has %d classes, want %d", len(rho), k))
+	}
+	// lik holds q_ic/ρ_c, the labels' likelihood of each perceived class up
+	// to a factor per item.
+	lik := make([]float64, n*k)
+	for i := 0; i < n; i++ {
+		for c := 0; c < k; c++ {
+			if rho[c] > 0 {
+				lik[i*k+c] = post[i*k+c] / rho[c]
+			}
+		}
+	}
 	d := &Debiased{Posterior: append([]float64(nil), post...),
 		Confusion: make([][]float64, ns), Mix: make([][]float64, ns),
 		Before: make([][]float64, ns), After: make([][]float64, ns),
@@ -248,7 +276,7 @@ func Debias(post []float64, k int, s Strata, o DebiasOptions) (*Debiased, error)
 	case hasGold:
 		d.Method = "gold"
 		for st := range ns {
-			d.Confusion[st], d.Mix[st] = goldConfusion(post, k, members[st], o.Gold, alpha)
+			d.Confusion[st], d.Mix[st] = goldConfusion(post, lik, k, members[st], o.Gold, alpha)
 		}
 	case o.Reference >= 0:
 		if o.Reference >= ns {
@@ -278,7 +306,7 @@ func Debias(post []float64, k int, s Strata, o DebiasOptions) (*Debiased, error)
 				row[g] = 1
 				continue
 			}
-			bayes(d.Posterior[i*k:(i+1)*k], post[i*k:(i+1)*k], d.Mix[st], d.Confusion[st])
+			bayes(d.Posterior[i*k:(i+1)*k], lik[i*k:(i+1)*k], post[i*k:(i+1)*k], d.Mix[st], d.Confusion[st])
 		}
 		d.After[st] = mean(d.Posterior, members[st])
 	}
@@ -293,15 +321,15 @@ func identity(k int) []float64 {
 	return m
 }
 
-// bayes writes p_t ∝ π_t Σ_c C[t][c] q_c into dst; when every term is 0 it
-// keeps q.
-func bayes(dst, q, pi, conf []float64) {
+// bayes writes p_t ∝ π_t Σ_c C[t][c] lik_c into dst; when every term is 0
+// it keeps q.
+func bayes(dst, lik, q, pi, conf []float64) {
 	k := len(q)
 	var z float64
 	for t := 0; t < k; t++ {
 		var l float64
 		for c := 0; c < k; c++ {
-			l += conf[t*k+c] * q[c]
+			l += conf[t*k+c] * lik[c]
 		}
 		dst[t] = pi[t] * l
 		z += dst[t]
@@ -350,7 +378,7 @@ func minimalFlow(pi, m []float64) []float64 {
 
 // goldConfusion estimates one stratum's confusion from its gold items and
 // its true class mix by EM (Saerens et al. 2002).
-func goldConfusion(post []float64, k int, items []int, gold []int, alpha float64) (conf, mix []float64) {
+func goldConfusion(post, lik []float64, k int, items []int, gold []int, alpha float64) (conf, mix []float64) {
 	conf = make([]float64, k*k)
 	nt := make([]float64, k)
 	for _, i := range items {
@@ -388,7 +416,7 @@ func goldConfusion(post []float64, k int, items []int, gold []int, alpha float64
 				next[g]++
 				continue
 			}
-			bayes(w, post[i*k:(i+1)*k], mix, conf)
+			bayes(w, lik[i*k:(i+1)*k], post[i*k:(i+1)*k], mix, conf)
 			for t := range w {
 				next[t] += w[t]
 			}
