@@ -46,7 +46,7 @@ func FuzzItemsCSV(f *testing.F) {
 }
 
 func FuzzItemsJSONL(f *testing.F) {
-	f.Add([]byte(`{"id":"a","text":"One. Two.","n":1.5}` + "\n" + `{"id":2,"text":"x","b":true,"z":null}`), true)
+	f.Add([]byte(`{"id":"a","text":"One. Two.","n":1.5}`+"\n"+`{"id":2,"text":"x","b":true,"z":null}`), true)
 	f.Add([]byte(`{"id":"a","text":"\ud800"}`), false)
 	f.Fuzz(func(t *testing.T, data []byte, split bool) {
 		checkItems(t, "items.jsonl", JSONL, data, split)

@@ -16,9 +16,19 @@ import (
 	"handoff/store"
 )
 
+// importChunk, if > 0, overrides the store's records per import
+// transaction (tests set it small to exercise the rollback of chunked
+// imports).
+var importChunk int
+
 // openStore opens the project in dir.
 func openStore(dir string) (*store.Store, error) {
-	return store.Open(dir)
+	s, err := store.Open(dir)
+	if err != nil {
+		return nil, err
+	}
+	s.ImportChunk = importChunk
+	return s, nil
 }
 
 // createStore makes a new project in dir with codebook cb.

@@ -110,9 +110,13 @@ codebook, the crowd's labels and gold answers, and everything computed from them
 	for _, name := range sortedStrings(names) {
 		g := newGroup(name)
 		groups[name] = g
+		var examples []string
 		for _, f := range subcommands[name] {
-			g.AddCommand(f())
+			sub := f()
+			g.AddCommand(sub)
+			examples = append(examples, sub.Example)
 		}
+		g.Example = strings.Join(examples, "\n")
 		root.AddCommand(g)
 	}
 	for _, f := range commands {
