@@ -8,7 +8,8 @@ import (
 )
 
 // WriteJSON writes the report as indented JSON with the stable field names
-// documented in the package comment.
+// documented in the package comment. A Report decoded from it (encoding/json)
+// renders the same text and HTML, so a stored verdict can be shown again.
 func (r *Report) WriteJSON(w io.Writer) error {
 	e := json.NewEncoder(w)
 	e.SetIndent("", "  ")

@@ -421,6 +421,16 @@ func TestComputeAndRender(t *testing.T) {
 	if m["decision"].(map[string]any)["go"] != true {
 		t.Error("JSON decision.go is not true")
 	}
+	// A stored JSON report reads back into a Report that renders the same.
+	var back Report
+	if err := json.Unmarshal(js.Bytes(), &back); err != nil {
+		t.Fatal(err)
+	}
+	var txt2 bytes.Buffer
+	back.WriteText(&txt2)
+	if txt2.String() != txt.String() {
+		t.Error("text of the report read back from JSON differs")
+	}
 	if err := rep.WriteHTML(&html, "Verdict <for> test"); err != nil {
 		t.Fatal(err)
 	}
