@@ -81,7 +81,8 @@ type Plan struct {
 
 	Strategy Strategy // uncertainty score for model-unsure picks
 	// Beta is the density exponent: model-unsure scores are multiplied by
-	// Density^Beta (information density, Settles & Craven 2008).
+	// Density^Beta, the mean cosine similarity to the unlabelled candidates
+	// (information density, Settles & Craven 2008).
 	Beta float64
 	// Diversity spreads the model-unsure picks by greedy k-centre over
 	// the feature rows of the top Candidates×Unsure candidates.
