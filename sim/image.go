@@ -110,7 +110,7 @@ var stainNames = []string{"violet", "pink"}
 //
 // Rendering: one particle near the centre, in micrometres, at 0.15·mag pixels
 // per micrometre — a round cell (radius 2–3.2 µm, slightly oval), a chain of
-// 3–5 beads (radius 1.0–1.4 µm, spaced 1.85–1.95 radii apart, gently
+// 3–5 beads (radius 1.0–1.4 µm, spaced 1.9–2.0 radii apart, gently
 // curved), a rod (a capsule 4–8 µm between cap centres, radius 0.85–1.3 µm)
 // or debris (an irregular polygon with darker inclusions) — plus a few small
 // specks; 2×2 supersampled coverage; a Gaussian blur of σ = 0.35·(40/mag)^1.2
@@ -302,7 +302,7 @@ func particle(r *rand.Rand, class int, cx, cy float64) []*shape {
 		s := newShape(0.9 + 0.2*r.Float64())
 		n := 3 + categorical(r, []float64{.35, .4, .25})
 		rad := 1 + 0.4*r.Float64()
-		step := rad * (1.85 + 0.1*r.Float64())
+		step := rad * (1.9 + 0.1*r.Float64())
 		bend := 0.12 * r.NormFloat64()
 		// start so that the chain is centred
 		x, y := cx-math.Cos(theta)*step*float64(n-1)/2, cy-math.Sin(theta)*step*float64(n-1)/2
