@@ -4,7 +4,6 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
-	"sort"
 	"strings"
 	"time"
 
@@ -133,7 +132,7 @@ type Crowd struct {
 
 	cfg        CrowdConfig
 	seed       uint64
-	cum        []float64              // cumulative activity
+	activity   *aliasTable            // draws annotators in proportion to activity
 	conf       map[string][][]float64 // codebook signature → annotator → K×K row-major
 	asked      map[string]int         // labels (distinct annotators) given per item so far
 	clock      []time.Time
@@ -177,7 +176,7 @@ func NewCrowd(cfg CrowdConfig, seed uint64) (*Crowd, error) {
 		width = 3
 	}
 	c := &Crowd{cfg: cfg, seed: seed, conf: map[string][][]float64{}, asked: map[string]int{}, clockRound: -1}
-	var total float64
+	act := make([]float64, 0, len(types))
 	for i, t := range types {
 		a := Annotator{ID: fmt.Sprintf("a%0*d", width, i+1), Type: t}
 		if t == Spammer {
@@ -195,10 +194,10 @@ func NewCrowd(cfg CrowdConfig, seed uint64) (*Crowd, error) {
 		}
 		a.Seconds = lognormal(r, typeSeconds[t], 0.25)
 		a.offset = time.Duration(r.Float64() * float64(10*time.Hour)).Truncate(time.Second)
-		total += a.Activity
-		c.cum = append(c.cum, total)
+		act = append(act, a.Activity)
 		c.Annotators = append(c.Annotators, a)
 	}
+	c.activity = newAliasTable(act)
 	return c, nil
 }
 
@@ -304,12 +303,8 @@ func (c *Crowd) pickAnnotators(item string, need int) []int {
 	r := newRand(c.seed, 0xa551, hashString(item))
 	seen := make(map[int]bool, need)
 	out := make([]int, 0, need)
-	total := c.cum[n-1]
 	for tries := 0; len(out) < need && tries < 20*need+100; tries++ {
-		a := sort.SearchFloat64s(c.cum, r.Float64()*total)
-		if a >= n {
-			a = n - 1
-		}
+		a := c.activity.draw(r)
 		if !seen[a] {
 			seen[a] = true
 			out = append(out, a)

@@ -129,9 +129,22 @@ func (s CrowdSpec) Stream(seed uint64, fn func(item, annotator, class int)) (tru
 		cum[a] = c
 	}
 	n := len(crowd.Annotators)
-	total := crowd.cum[n-1]
 	who := make([]int, 0, s.LabelsPerItem)
-	seen := make(map[int]bool)
+	var seen map[int]bool // for many labels per item; a scan of who otherwise
+	if s.LabelsPerItem > 64 {
+		seen = make(map[int]bool)
+	}
+	taken := func(a int) bool {
+		if seen != nil {
+			return seen[a]
+		}
+		for _, b := range who {
+			if b == a {
+				return true
+			}
+		}
+		return false
+	}
 	pcg := rand.NewPCG(0, 0)
 	ir := rand.New(pcg)
 	for item := range s.Items {
@@ -142,12 +155,14 @@ func (s CrowdSpec) Stream(seed uint64, fn func(item, annotator, class int)) (tru
 		for tries := 0; len(who) < s.LabelsPerItem; tries++ {
 			var a int
 			if tries < 20*s.LabelsPerItem+100 {
-				a = min(n-1, sort.SearchFloat64s(crowd.cum, ir.Float64()*total))
+				a = crowd.activity.draw(ir)
 			} else {
 				a = ir.IntN(n)
 			}
-			if !seen[a] {
-				seen[a] = true
+			if !taken(a) {
+				if seen != nil {
+					seen[a] = true
+				}
 				who = append(who, a)
 			}
 		}

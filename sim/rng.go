@@ -100,3 +100,51 @@ func allocate(n int, shares []float64) []int {
 	}
 	return counts
 }
+
+// aliasTable draws indices with probability proportional to fixed weights in
+// O(1) per draw (Vose's alias method).
+type aliasTable struct {
+	prob  []float64
+	alias []int32
+}
+
+func newAliasTable(w []float64) *aliasTable {
+	n := len(w)
+	var sum float64
+	for _, v := range w {
+		sum += v
+	}
+	t := &aliasTable{prob: make([]float64, n), alias: make([]int32, n)}
+	scaled := make([]float64, n)
+	var small, large []int32
+	for i, v := range w {
+		scaled[i] = v * float64(n) / sum
+		if scaled[i] < 1 {
+			small = append(small, int32(i))
+		} else {
+			large = append(large, int32(i))
+		}
+	}
+	for len(small) > 0 && len(large) > 0 {
+		s, l := small[len(small)-1], large[len(large)-1]
+		small = small[:len(small)-1]
+		t.prob[s], t.alias[s] = scaled[s], l
+		scaled[l] -= 1 - scaled[s]
+		if scaled[l] < 1 {
+			large = large[:len(large)-1]
+			small = append(small, l)
+		}
+	}
+	for _, i := range append(small, large...) {
+		t.prob[i], t.alias[i] = 1, i
+	}
+	return t
+}
+
+func (t *aliasTable) draw(r *rand.Rand) int {
+	i := r.IntN(len(t.prob))
+	if r.Float64() < t.prob[i] {
+		return i
+	}
+	return int(t.alias[i])
+}
