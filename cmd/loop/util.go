@@ -1,0 +1,8 @@
+package main
+
+import "sort"
+
+// sortBy sorts xs stably by less.
+func sortBy[T any](xs []T, less func(a, b T) bool) {
+	sort.SliceStable(xs, func(i, j int) bool { return less(xs[i], xs[j]) })
+}

@@ -1,0 +1,114 @@
+// Package round runs the steps of the job on a project's store: clean and
+// combine the crowd labels (Consensus), train the machine on the consensus
+// (Train), and one whole round (Run): consensus → train → score the pool →
+// pick the next batch → verdict. It is the only package that calls crowd,
+// features, learner, selector and verdict together; cmd/loop and api both call
+// it.
+//
+// Every step is deterministic given the store's contents and Config.Seed: the
+// same store and seed give byte-identical stored results.
+package round
+
+import (
+	"errors"
+	"fmt"
+
+	"handoff"
+	"handoff/crowd"
+	"handoff/store"
+)
+
+// project is what a step reads from the store: the codebook, every item in
+// store order, the labels in column form aligned with those items, and gold.
+type project struct {
+	cb     handoff.Codebook
+	items  []handoff.Item
+	index  map[string]int // item id → position in items
+	labels *crowd.Labels
+	anns   []string // annotator index → id
+	gold   []int    // per item: expert class or -1
+	golds  []handoff.Gold
+	hasG   bool
+}
+
+// load reads the project. Items are in store order; labels reference them by
+// position.
+func load(st *store.Store) (*project, error) {
+	p := &project{cb: st.Codebook()}
+	err := st.EachItem(func(n int, it handoff.Item) error {
+		p.items = append(p.items, it)
+		return nil
+	})
+	if err != nil {
+		return nil, fmt.Errorf("reading items: %w", err)
+	}
+	p.index = make(map[string]int, len(p.items))
+	for i, it := range p.items {
+		p.index[it.ID] = i
+	}
+	t, err := st.LabelTable()
+	if err != nil {
+		return nil, fmt.Errorf("reading labels: %w", err)
+	}
+	// Map the table's item numbers to positions in p.items.
+	pos := make([]int32, len(t.ItemIDs))
+	for n, id := range t.ItemIDs {
+		j, ok := p.index[id]
+		if !ok {
+			pos[n] = -1
+			continue
+		}
+		pos[n] = int32(j)
+	}
+	l := &crowd.Labels{
+		NItems:      len(p.items),
+		NAnnotators: len(t.AnnotatorIDs),
+		NClasses:    len(p.cb.Classes),
+		Item:        make([]int32, 0, t.Len()),
+		Annotator:   make([]int32, 0, t.Len()),
+		Class:       make([]uint8, 0, t.Len()),
+		Seconds:     make([]float32, 0, t.Len()),
+		Time:        make([]int64, 0, t.Len()),
+	}
+	if l.NClasses > 255 {
+		return nil, fmt.Errorf("codebook has %d classes; at most 255 are supported", l.NClasses)
+	}
+	for i := range t.Item {
+		it := pos[t.Item[i]]
+		if it < 0 {
+			return nil, fmt.Errorf("label %d names item number %d, which is not in the store; the file may be damaged", i, t.Item[i])
+		}
+		l.Item = append(l.Item, it)
+		l.Annotator = append(l.Annotator, int32(t.Annotator[i]))
+		l.Class = append(l.Class, uint8(t.Class[i]))
+		l.Seconds = append(l.Seconds, t.Seconds[i])
+		l.Time = append(l.Time, t.Time[i])
+	}
+	p.labels = l
+	p.anns = t.AnnotatorIDs
+	p.golds, err = st.Gold()
+	if err != nil {
+		return nil, fmt.Errorf("reading gold: %w", err)
+	}
+	p.gold = make([]int, len(p.items))
+	for i := range p.gold {
+		p.gold[i] = -1
+	}
+	for _, g := range p.golds {
+		i, ok := p.index[g.Item]
+		if !ok {
+			continue
+		}
+		c, ok := p.cb.Index(g.Class)
+		if !ok {
+			return nil, fmt.Errorf("gold for item %q has class %q, which is not in the codebook", g.Item, g.Class)
+		}
+		p.gold[i] = c
+		p.hasG = true
+	}
+	return p, nil
+}
+
+// ErrNothing is returned by a step that has nothing to work on; its message
+// says what is missing and what to do.
+var ErrNothing = errors.New("nothing to do")
