@@ -28,9 +28,10 @@ type DemoConfig struct {
 // water-sample images, one crowd that labelled a share of both, and gold
 // answers for a few.
 //
-// With the defaults it has about 3,200 items (about 2,300 sentences and 900
-// images), about 11,000 labels from 40 annotators and about 100 gold items,
-// and generates in about a second.
+// With the defaults it has about 2,900 items (about 2,300 sentences and 600
+// images), about 11,000 round-0 labels from 40 annotators on 70% of the items,
+// and about 100 gold items; it takes about 3 CPU-seconds to generate (mostly
+// drawing and writing the PNG files, spread over all cores).
 type Demo struct {
 	Text   *TextSet
 	Images *ImageSet
