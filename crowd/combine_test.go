@@ -118,3 +118,65 @@ func checkFinite(t *testing.T, r *Result) {
 		}
 	}
 }
+
+func TestMajorityTieBreakSeeded(t *testing.T) {
+	// 200 items, each a 1–1 tie between classes 0 and 1.
+	l := &Labels{NItems: 200, NAnnotators: 2, NClasses: 3}
+	for i := 0; i < 200; i++ {
+		l.Item = append(l.Item, int32(i), int32(i))
+		l.Annotator = append(l.Annotator, 0, 1)
+		l.Class = append(l.Class, 0, 1)
+	}
+	a, _ := Majority(l, Options{Seed: 1})
+	b, _ := Majority(l, Options{Seed: 1})
+	c, _ := Majority(l, Options{Seed: 2})
+	if a.Ties != 200 {
+		t.Errorf("ties = %d, want 200", a.Ties)
+	}
+	same, zeros := 0, 0
+	for i := range a.Class {
+		if a.Class[i] != b.Class[i] {
+			t.Fatalf("same seed, different tie-break at item %d", i)
+		}
+		if a.Class[i] == c.Class[i] {
+			same++
+		}
+		if a.Class[i] == 0 {
+			zeros++
+		}
+		if a.Class[i] == 2 {
+			t.Fatalf("tie broken towards a class with no votes")
+		}
+	}
+	if same == 200 || zeros < 60 || zeros > 140 {
+		t.Errorf("tie-break not a fair seeded draw: %d of 200 equal across seeds, %d zeros", same, zeros)
+	}
+}
+
+// The order of the labels does not matter (the EM sorts them itself).
+func TestDawidSkeneOrderInvariant(t *testing.T) {
+	l, _ := loadDS1979(t)
+	r1, err := DawidSkene(l, Options{Tol: 1e-10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	n := l.Len()
+	p := &Labels{NItems: l.NItems, NAnnotators: l.NAnnotators, NClasses: l.NClasses}
+	for j := n - 1; j >= 0; j-- {
+		p.Item = append(p.Item, l.Item[j])
+		p.Annotator = append(p.Annotator, l.Annotator[j])
+		p.Class = append(p.Class, l.Class[j])
+	}
+	r2, err := DawidSkene(p, Options{Tol: 1e-10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if math.Abs(r1.LogLik-r2.LogLik) > 1e-9 {
+		t.Errorf("log-likelihood %v sorted, %v reversed", r1.LogLik, r2.LogLik)
+	}
+	for i := range r1.Posterior {
+		if math.Abs(r1.Posterior[i]-r2.Posterior[i]) > 1e-9 {
+			t.Fatalf("posterior %d differs: %v vs %v", i, r1.Posterior[i], r2.Posterior[i])
+		}
+	}
+}
