@@ -1,0 +1,177 @@
+package main
+
+import (
+	"bufio"
+	"fmt"
+	"io"
+	"os"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"handoff/round"
+)
+
+func init() {
+	register(newExportCmd)
+	register(newRollupCmd)
+}
+
+// openOutput returns a writer for path ("-" or "" is stdout) and a function
+// that finishes it: the file is written to a temporary name and renamed into
+// place only when everything succeeded, so a failed export leaves no half
+// file behind.
+func openOutput(cmd *cobra.Command, path string) (io.Writer, func(ok bool) error, error) {
+	if path == "" || path == "-" {
+		bw := bufio.NewWriter(cmd.OutOrStdout())
+		return bw, func(bool) error { return bw.Flush() }, nil
+	}
+	tmp := path + ".partial"
+	f, err := os.Create(tmp)
+	if err != nil {
+		return nil, nil, err
+	}
+	bw := bufio.NewWriter(f)
+	return bw, func(ok bool) error {
+		ferr := bw.Flush()
+		if cerr := f.Close(); ferr == nil {
+			ferr = cerr
+		}
+		if !ok || ferr != nil {
+			os.Remove(tmp)
+			return ferr
+		}
+		return os.Rename(tmp, path)
+	}, nil
+}
+
+func newExportCmd() *cobra.Command {
+	var format, out string
+	c := &cobra.Command{
+		Use:   "export DIR",
+		Short: "Write every item's final label with its provenance",
+		Long: `export writes one row per item: the final class and its source — gold (an
+expert answer), crowd (the consensus) or machine (an autolabel) — with its
+confidence, the consensus posterior, the number of labels, the model version
+and round of a machine label, the parent and position, and the covariates.
+Items with no answer yet have an empty class and source.`,
+		Example: `  loop export proj --format csv --out labels.csv
+  loop export proj --format parquet --out labels.parquet
+  loop export proj --format jsonl | head`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			switch format {
+			case "csv", "jsonl", "parquet":
+			default:
+				return usageErrorf("--format %q: want csv, jsonl or parquet", format)
+			}
+			if format == "parquet" && (out == "" || out == "-") {
+				return usageErrorf("--format parquet needs --out FILE")
+			}
+			s, err := openStore(args[0])
+			if err != nil {
+				return err
+			}
+			defer s.Close()
+			rows, err := round.Rows(s)
+			if err != nil {
+				return err
+			}
+			w, done, err := openOutput(cmd, out)
+			if err != nil {
+				return err
+			}
+			err = round.WriteRows(w, format, rows, cbKeys(s))
+			if derr := done(err == nil); err == nil {
+				err = derr
+			}
+			if err != nil {
+				return err
+			}
+			if out != "" && out != "-" {
+				by := map[string]int{}
+				for _, r := range rows {
+					src := r.Source
+					if src == "" {
+						src = "none yet"
+					}
+					by[src]++
+				}
+				infof(cmd, "exported %d items to %s (gold %d, crowd %d, machine %d, none yet %d)\n",
+					len(rows), out, by["gold"], by["crowd"], by["machine"], by["none yet"])
+				return s.Record(source(cmd), "export", fmt.Sprintf("%d rows as %s to %s", len(rows), format, out))
+			}
+			return nil
+		},
+	}
+	c.Flags().StringVar(&format, "format", "csv", "csv, jsonl or parquet")
+	c.Flags().StringVarP(&out, "out", "o", "", "output file (default: standard output)")
+	return c
+}
+
+func newRollupCmd() *cobra.Command {
+	var (
+		by     string
+		cfg    round.RollupConfig
+		asJSON bool
+	)
+	c := &cobra.Command{
+		Use:   "rollup DIR --by parent",
+		Short: "Roll item labels up to their parents, with bootstrap intervals",
+		Long: `rollup gives, for each parent (the document or source items were split
+from), the share of each class among its items' final labels and, for an
+ordinal codebook, the mean position (1 = lowest class), each with a bootstrap
+95% interval that resamples items within the parent.`,
+		Example: `  loop rollup proj --by parent
+  loop rollup proj --by parent --json > shares.json`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if by != "parent" {
+				return usageErrorf("--by %q: only parent is supported", by)
+			}
+			s, err := openStore(args[0])
+			if err != nil {
+				return err
+			}
+			defer s.Close()
+			rows, err := round.Rows(s)
+			if err != nil {
+				return err
+			}
+			cb := s.Codebook()
+			ps, err := round.Rollup(rows, cb.Keys(), cb.IsOrdinal(), cfg)
+			if err != nil {
+				return err
+			}
+			if asJSON {
+				return printJSON(cmd, ps)
+			}
+			var b strings.Builder
+			fmt.Fprintf(&b, "%-16s %6s", "parent", "items")
+			for _, k := range cb.Keys() {
+				fmt.Fprintf(&b, "  %-22s", k)
+			}
+			if cb.IsOrdinal() {
+				fmt.Fprintf(&b, "  %-22s", "mean position")
+			}
+			b.WriteString("\n")
+			for _, p := range ps {
+				fmt.Fprintf(&b, "%-16s %3d/%-3d", p.Parent, p.Answered, p.Items)
+				for _, sh := range p.Shares {
+					fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]      ", sh.Value, sh.Lo, sh.Hi)
+				}
+				if p.Position != nil {
+					fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]", p.Position.Value, p.Position.Lo, p.Position.Hi)
+				}
+				b.WriteString("\n")
+			}
+			outf(cmd, "%s", b.String())
+			return nil
+		},
+	}
+	c.Flags().StringVar(&by, "by", "parent", "what to roll up by (parent)")
+	c.Flags().IntVar(&cfg.Reps, "reps", 1000, "bootstrap replicates")
+	c.Flags().Uint64Var(&cfg.Seed, "seed", 1, "bootstrap seed")
+	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
+	return c
+}

@@ -1,0 +1,164 @@
+package round
+
+import (
+	"bufio"
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"sort"
+	"strconv"
+
+	"github.com/parquet-go/parquet-go"
+
+	"handoff"
+	"handoff/store"
+)
+
+// Row is one item of an export: its final class and where it came from.
+//
+// Rules: Source is gold (an expert answer), crowd (the consensus of at least
+// one label), machine (an autolabel at or above the threshold) or "" (no
+// answer yet: the item waits for people). Confidence is the gold answer's 1,
+// the consensus posterior of Class, or the machine's calibrated probability.
+// Posterior is the consensus posterior (nil without labels). Model and Round
+// are set for machine labels.
+type Row struct {
+	Item       string            `json:"item" parquet:"item"`
+	Kind       string            `json:"kind" parquet:"kind"`
+	Class      string            `json:"class" parquet:"class"`
+	Source     string            `json:"source" parquet:"source"`
+	Confidence float64           `json:"confidence" parquet:"confidence"`
+	Posterior  []float64         `json:"posterior,omitempty" parquet:"posterior,list"`
+	Labels     int               `json:"labels" parquet:"labels"`
+	Model      string            `json:"model,omitempty" parquet:"model"`
+	Round      int               `json:"round,omitempty" parquet:"round"`
+	Parent     string            `json:"parent,omitempty" parquet:"parent"`
+	Position   int               `json:"position" parquet:"position"`
+	Covariates map[string]string `json:"covariates,omitempty" parquet:"covariates"`
+}
+
+// Rows returns one export row per item, in store order: gold first, then
+// the crowd's consensus, then machine labels.
+func Rows(st *store.Store) ([]Row, error) {
+	cb := st.Codebook()
+	cons := map[string]handoff.Consensus{}
+	cs, _, err := st.Consensus()
+	if err != nil {
+		return nil, err
+	}
+	for _, c := range cs {
+		cons[c.Item] = c
+	}
+	gold := map[string]string{}
+	gs, err := st.Gold()
+	if err != nil {
+		return nil, err
+	}
+	for _, g := range gs {
+		gold[g.Item] = g.Class
+	}
+	machine := map[string]handoff.MachineLabel{}
+	if err := st.MachineLabels(func(m handoff.MachineLabel) error { machine[m.Item] = m; return nil }); err != nil {
+		return nil, err
+	}
+	var rows []Row
+	err = st.EachItem(func(_ int, it handoff.Item) error {
+		r := Row{Item: it.ID, Kind: string(it.Kind), Parent: it.Parent, Position: it.Position, Covariates: it.Covariates}
+		c, hasC := cons[it.ID]
+		if hasC && c.Labels > 0 {
+			r.Posterior = c.Posterior
+			r.Labels = c.Labels
+		}
+		switch g, ok := gold[it.ID]; {
+		case ok:
+			r.Class, r.Source, r.Confidence = g, string(handoff.SourceGold), 1
+		case hasC && c.Labels > 0:
+			r.Class, r.Source = c.Class, string(handoff.SourceCrowd)
+			if k, ok := cb.Index(c.Class); ok && k < len(c.Posterior) {
+				r.Confidence = c.Posterior[k]
+			}
+		default:
+			if m, ok := machine[it.ID]; ok {
+				r.Class, r.Source, r.Confidence, r.Model, r.Round = m.Class, string(handoff.SourceMachine), m.Confidence, m.Model, m.Round
+			}
+		}
+		rows = append(rows, r)
+		return nil
+	})
+	return rows, err
+}
+
+// WriteRows writes rows in format csv, jsonl or parquet. CSV has one column
+// per codebook class for the posterior (p_KEY) and one per covariate
+// (cov_NAME), in sorted order.
+func WriteRows(w io.Writer, format string, rows []Row, classes []string) error {
+	switch format {
+	case "jsonl":
+		bw := bufio.NewWriter(w)
+		enc := json.NewEncoder(bw)
+		for i := range rows {
+			if err := enc.Encode(&rows[i]); err != nil {
+				return err
+			}
+		}
+		return bw.Flush()
+	case "csv":
+		return writeCSV(w, rows, classes)
+	case "parquet":
+		pw := parquet.NewGenericWriter[Row](w)
+		if _, err := pw.Write(rows); err != nil {
+			return err
+		}
+		return pw.Close()
+	}
+	return fmt.Errorf("unknown export format %q: want csv, jsonl or parquet", format)
+}
+
+func writeCSV(w io.Writer, rows []Row, classes []string) error {
+	covs := map[string]bool{}
+	for _, r := range rows {
+		for k := range r.Covariates {
+			covs[k] = true
+		}
+	}
+	names := make([]string, 0, len(covs))
+	for k := range covs {
+		names = append(names, k)
+	}
+	sort.Strings(names)
+	cw := csv.NewWriter(w)
+	head := []string{"item", "kind", "class", "source", "confidence", "labels", "model", "round", "parent", "position"}
+	for _, c := range classes {
+		head = append(head, "p_"+c)
+	}
+	for _, n := range names {
+		head = append(head, "cov_"+n)
+	}
+	if err := cw.Write(head); err != nil {
+		return err
+	}
+	f := func(x float64) string { return strconv.FormatFloat(x, 'g', 10, 64) }
+	for _, r := range rows {
+		rec := []string{r.Item, r.Kind, r.Class, r.Source, f(r.Confidence), strconv.Itoa(r.Labels), r.Model, strconv.Itoa(r.Round), r.Parent, strconv.Itoa(r.Position)}
+		for k := range classes {
+			if k < len(r.Posterior) {
+				rec = append(rec, f(r.Posterior[k]))
+			} else {
+				rec = append(rec, "")
+			}
+		}
+		for _, n := range names {
+			rec = append(rec, r.Covariates[n])
+		}
+		if err := cw.Write(rec); err != nil {
+			return err
+		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// errNoRows is returned when an export would be empty.
+var errNoRows = errors.New("the project has no items to export")
