@@ -383,7 +383,7 @@ func (v *TextVectorizer) row(t *tokenizer, s string) {
 		h := hs[i]
 		tf := float64(j - i)
 		i = j
-		if cfg.Sublinear {
+		if cfg.Sublinear && tf > 1 {
 			tf = 1 + math.Log(tf)
 		}
 		if cfg.HashBits > 0 {
@@ -466,6 +466,7 @@ func (c TextConfig) Fit(texts []string) (*TextVectorizer, error) {
 		m   map[uint64]*stat
 		t   *tokenizer
 		doc int32
+		err error
 	}
 	states := make([]*fitState, workers)
 	parallel(len(texts), workers, func(w, lo, hi int) {
@@ -477,6 +478,8 @@ func (c TextConfig) Fit(texts []string) (*TextVectorizer, error) {
 				if s == nil {
 					s = &stat{last: -1, name: gramName(g, char)}
 					st.m[h] = s
+				} else if !sameName(s.name, g, char) && st.err == nil {
+					st.err = fmt.Errorf("features: terms %q and %q share the 64-bit hash %#x; use hashing", s.name, gramName(g, char), h)
 				}
 				if s.last != st.doc {
 					s.df++
@@ -494,6 +497,9 @@ func (c TextConfig) Fit(texts []string) (*TextVectorizer, error) {
 	locals := make([]map[uint64]*stat, 0, workers)
 	for _, st := range states {
 		if st != nil {
+			if st.err != nil {
+				return nil, st.err
+			}
 			locals = append(locals, st.m)
 		}
 	}
@@ -568,6 +574,14 @@ func gramName(g []byte, char bool) string {
 		return "[" + string(g) + "]"
 	}
 	return string(g)
+}
+
+// sameName reports whether name is the name of gram g.
+func sameName(name string, g []byte, char bool) bool {
+	if char {
+		return len(name) == len(g)+2 && name[1:len(name)-1] == string(g)
+	}
+	return name == string(g)
 }
 
 // smoothIDF returns ln((1+n)/(1+df)) + 1.
