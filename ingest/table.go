@@ -306,6 +306,11 @@ func scalar(raw json.RawMessage) (string, bool, error) {
 	}
 	switch raw[0] {
 	case '"':
+		if len(raw) >= 2 && raw[len(raw)-1] == '"' && bytes.IndexByte(raw, '\\') < 0 {
+			// No escapes: the text between the quotes is the value.
+			// (Control characters are refused by the outer decode.)
+			return string(raw[1 : len(raw)-1]), true, nil
+		}
 		var s string
 		if err := json.Unmarshal(raw, &s); err != nil {
 			return "", false, err

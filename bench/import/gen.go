@@ -1,7 +1,10 @@
 //go:build ignore
 
-// gen writes N short text items as CSV (id,text,site,year) to stdout,
-// deterministic given the seed: go run gen.go -n 1000000 > items.csv
+// gen writes N short text items as CSV (id,text,site,year) or JSONL to
+// stdout, deterministic given the seed:
+//
+//	go run gen.go -n 1000000 > items.csv
+//	go run gen.go -n 1000000 -format jsonl > items.jsonl
 package main
 
 import (
@@ -19,20 +22,33 @@ var words = []string{"river", "bank", "oil", "foam", "heron", "litter", "bottle"
 func main() {
 	n := flag.Int("n", 1_000_000, "number of items")
 	seed := flag.Uint64("seed", 1, "random seed")
+	format := flag.String("format", "csv", "csv or jsonl")
 	flag.Parse()
 	rng := rand.New(rand.NewPCG(*seed, 2))
 	w := bufio.NewWriterSize(os.Stdout, 1<<20)
 	defer w.Flush()
-	fmt.Fprintln(w, "id,text,site,year")
+	jsonl := *format == "jsonl"
+	if !jsonl {
+		fmt.Fprintln(w, "id,text,site,year")
+	}
 	for i := 0; i < *n; i++ {
 		k := 6 + rng.IntN(10)
-		fmt.Fprintf(w, "r%07d,", i)
+		if jsonl {
+			fmt.Fprintf(w, `{"id":"r%07d","text":"`, i)
+		} else {
+			fmt.Fprintf(w, "r%07d,", i)
+		}
 		for j := 0; j < k; j++ {
 			if j > 0 {
 				w.WriteByte(' ')
 			}
 			w.WriteString(words[rng.IntN(len(words))])
 		}
-		fmt.Fprintf(w, ".,site%03d,%d\n", rng.IntN(400), 2015+rng.IntN(10))
+		site, year := rng.IntN(400), 2015+rng.IntN(10)
+		if jsonl {
+			fmt.Fprintf(w, `.","site":"site%03d","year":%d}`+"\n", site, year)
+		} else {
+			fmt.Fprintf(w, ".,site%03d,%d\n", site, year)
+		}
 	}
 }
