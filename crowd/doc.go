@@ -11,6 +11,11 @@
 // labels fit in memory; Build maps the string ids of handoff.Label to those
 // indices and Index maps them back.
 //
+// Written by hand, and why: Dawid–Skene EM, one-coin EM, the kappas and
+// Krippendorff's alpha have no maintained Go implementation (gonum has
+// none), and the EM kernel must be cache-blocked and parallel to handle tens
+// of millions of labels (see em.go); quantiles and matrices come from gonum.
+//
 // Conventions: class, item and annotator indices are 0-based; a gold slice
 // has one entry per item holding the expert class or -1 (nil means no gold);
 // posteriors are stored row-major, NItems×NClasses; confusion matrices are
