@@ -316,3 +316,34 @@ func TestTextConfigErrors(t *testing.T) {
 		}
 	}
 }
+
+// FuzzTextTransform checks that any input, including invalid UTF-8, gives a
+// well-formed row: increasing columns in range, finite values, unit norm or
+// empty.
+func FuzzTextTransform(f *testing.F) {
+	for _, s := range []string{"", "Hello, World!", "\xff\xfe bad utf8 \xc3", "ΣΊΣΥΦΟΣ straße 👍🏽 x-ray", "a\u0301\u200d b"} {
+		f.Add(s)
+	}
+	cfg := TextConfig{WordNGrams: [2]int{1, 2}, CharNGrams: [2]int{2, 4}, Language: "english", StopWords: true, Stem: true, HashBits: 10, Sublinear: true, Norm: true}
+	v, err := cfg.Fit(nil)
+	if err != nil {
+		f.Fatal(err)
+	}
+	f.Fuzz(func(t *testing.T, s string) {
+		m := v.Transform([]string{s, s})
+		idx, val := m.Row(1)
+		var ss float64
+		for k, j := range idx {
+			if j < 0 || int(j) >= m.Cols() || (k > 0 && j <= idx[k-1]) {
+				t.Fatalf("bad columns %v", idx)
+			}
+			if math.IsNaN(val[k]) || math.IsInf(val[k], 0) {
+				t.Fatalf("value %v", val[k])
+			}
+			ss += val[k] * val[k]
+		}
+		if len(idx) > 0 && math.Abs(ss-1) > 1e-9 {
+			t.Fatalf("norm² %v", ss)
+		}
+	})
+}
