@@ -128,26 +128,34 @@ func (ir *ImageReader) Next() (handoff.Item, error) {
 		if p == "" || strings.HasPrefix(p, "#") {
 			continue
 		}
-		abs := p
-		if !filepath.IsAbs(abs) {
-			abs = filepath.Join(ir.listDir, p)
-		}
-		abs, err := filepath.Abs(abs)
-		if err != nil {
-			return handoff.Item{}, errf(ir.loc, "path", "%v", err)
-		}
-		return ir.read(p, abs)
+		return readImage(ir.loc, "path", p, ir.listDir)
 	}
 }
 
 func (ir *ImageReader) read(id, abs string) (handoff.Item, error) {
+	it, err := readImage(ir.loc, "path", abs, "")
+	it.ID = id
+	return it, err
+}
+
+// readImage reads the image at p (relative to baseDir unless absolute),
+// decodes it in full and hashes it. The item's id is p as given.
+func readImage(loc Location, field, p, baseDir string) (handoff.Item, error) {
+	abs := p
+	if !filepath.IsAbs(abs) {
+		abs = filepath.Join(baseDir, p)
+	}
+	abs, err := filepath.Abs(abs)
+	if err != nil {
+		return handoff.Item{}, errf(loc, field, "%v", err)
+	}
 	data, err := os.ReadFile(abs)
 	if err != nil {
-		return handoff.Item{}, errf(ir.loc, "path", "unreadable image: %v", err)
+		return handoff.Item{}, errf(loc, field, "unreadable image: %v", err)
 	}
 	if _, _, err := image.Decode(bytes.NewReader(data)); err != nil {
-		return handoff.Item{}, errf(ir.loc, "path", "corrupt image %s: %v", abs, err)
+		return handoff.Item{}, errf(loc, field, "corrupt image %s: %v", abs, err)
 	}
 	sum := sha256.Sum256(data)
-	return handoff.Item{ID: id, Kind: handoff.KindImage, Path: abs, SHA256: hex.EncodeToString(sum[:])}, nil
+	return handoff.Item{ID: p, Kind: handoff.KindImage, Path: abs, SHA256: hex.EncodeToString(sum[:])}, nil
 }

@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"fmt"
 	"io"
 	"strconv"
 	"strings"
@@ -17,6 +18,7 @@ type ItemOptions struct {
 	TextField     string // default "text"; required, non-empty
 	ParentField   string // default "parent"; optional
 	PositionField string // default "position"; optional, an integer ≥ 0
+	PathField     string // default "path"; image tables only (NewImageTable)
 
 	// Covariates lists the fields kept as covariates. nil means every field
 	// that is not one of the above; an empty non-nil slice means none. A
@@ -45,6 +47,9 @@ func (o *ItemOptions) defaults() {
 	if o.PositionField == "" {
 		o.PositionField = "position"
 	}
+	if o.PathField == "" {
+		o.PathField = "path"
+	}
 }
 
 // ItemReader reads text items from a CSV or JSONL stream, one at a time.
@@ -54,6 +59,9 @@ type ItemReader struct {
 	covSet  map[string]bool
 	pending []handoff.Item
 	loc     Location
+
+	images  bool   // records list image files (NewImageTable)
+	baseDir string // for relative image paths
 }
 
 // NewItemReader reads items from r, a CSV or JSONL file called name (used
@@ -73,6 +81,38 @@ func NewItemReader(r io.Reader, name string, format Format, opt ItemOptions) (*I
 		}
 	}
 	ir := &ItemReader{t: t, opt: opt, loc: t.where()}
+	if opt.Covariates != nil {
+		ir.covSet = map[string]bool{}
+		for _, c := range opt.Covariates {
+			ir.covSet[c] = true
+		}
+	}
+	return ir, nil
+}
+
+// NewImageTable reads image items from a CSV or JSONL file called name
+// that lists them with metadata: field "path" (opt.PathField; relative
+// paths are taken from baseDir) is required; "id" defaults to the path as
+// written; parent, position and covariates are read as for text items. Each
+// image is decoded once and hashed, as NewImageFolder does.
+func NewImageTable(r io.Reader, name string, format Format, baseDir string, opt ItemOptions) (*ItemReader, error) {
+	opt.defaults()
+	if opt.SplitSentences {
+		return nil, fmt.Errorf("%s: images cannot be split into sentences", name)
+	}
+	t, err := newTable(r, name, format)
+	if err != nil {
+		return nil, err
+	}
+	if err := requireColumns(t, opt.PathField); err != nil {
+		return nil, err
+	}
+	if opt.Covariates != nil {
+		if err := requireColumns(t, opt.Covariates...); err != nil {
+			return nil, err
+		}
+	}
+	ir := &ItemReader{t: t, opt: opt, loc: t.where(), images: true, baseDir: baseDir}
 	if opt.Covariates != nil {
 		ir.covSet = map[string]bool{}
 		for _, c := range opt.Covariates {
@@ -117,6 +157,28 @@ func (ir *ItemReader) Next() (handoff.Item, error) {
 func (ir *ItemReader) item(rec *record) (handoff.Item, error) {
 	o := &ir.opt
 	it := handoff.Item{Kind: handoff.KindText}
+	if ir.images {
+		p, ok := rec.get(o.PathField)
+		if !ok {
+			return it, errf(rec.loc, o.PathField, "missing image path")
+		}
+		p = strings.TrimSpace(p)
+		if p == "" {
+			return it, errf(rec.lineOf(o.PathField), o.PathField, "empty image path")
+		}
+		img, err := readImage(rec.lineOf(o.PathField), o.PathField, p, ir.baseDir)
+		if err != nil {
+			return it, err
+		}
+		it = img
+		if id, ok := rec.get(o.IDField); ok {
+			if strings.TrimSpace(id) == "" {
+				return it, errf(rec.lineOf(o.IDField), o.IDField, "empty item id")
+			}
+			it.ID = id
+		}
+		return it, ir.meta(rec, &it)
+	}
 	id, ok := rec.get(o.IDField)
 	if !ok {
 		return it, errf(rec.loc, o.IDField, "missing item id")
@@ -133,18 +195,25 @@ func (ir *ItemReader) item(rec *record) (handoff.Item, error) {
 		return it, errf(rec.lineOf(o.TextField), o.TextField, "empty text")
 	}
 	it.Text = text
+	return it, ir.meta(rec, &it)
+}
+
+// meta fills an item's parent, position and covariates from rec.
+func (ir *ItemReader) meta(rec *record, it *handoff.Item) error {
+	o := &ir.opt
 	if p, ok := rec.get(o.ParentField); ok {
 		it.Parent = p
 	}
 	if p, ok := rec.get(o.PositionField); ok && strings.TrimSpace(p) != "" {
 		n, err := strconv.Atoi(strings.TrimSpace(p))
 		if err != nil || n < 0 {
-			return it, errf(rec.lineOf(o.PositionField), o.PositionField, "position %q is not an integer ≥ 0", p)
+			return errf(rec.lineOf(o.PositionField), o.PositionField, "position %q is not an integer ≥ 0", p)
 		}
 		it.Position = n
 	}
 	for i, name := range rec.names {
-		if name == o.IDField || name == o.TextField || name == o.ParentField || name == o.PositionField {
+		if name == o.IDField || name == o.TextField || name == o.ParentField || name == o.PositionField ||
+			(ir.images && name == o.PathField) {
 			continue
 		}
 		if ir.covSet != nil && !ir.covSet[name] {
@@ -155,14 +224,14 @@ func (ir *ItemReader) item(rec *record) (handoff.Item, error) {
 			continue
 		}
 		if err := handoff.CheckCovariate(v); err != nil {
-			return it, errf(rec.lineOf(name), name, "%v", err)
+			return errf(rec.lineOf(name), name, "%v", err)
 		}
 		if it.Covariates == nil {
 			it.Covariates = map[string]string{}
 		}
 		it.Covariates[name] = v
 	}
-	return it, nil
+	return nil
 }
 
 // splitItem splits a text item into sentence items (see

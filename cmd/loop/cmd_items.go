@@ -39,10 +39,12 @@ and reports) unless --covariates lists which to keep. With --split sentences
 each record is a document that is cut into sentence items "ID#0", "ID#1", …
 whose parent is the document id.
 
-Images are a folder (walked recursively; .png, .jpg, .jpeg, .gif) or a text
-file listing image paths, one per line. Each image is decoded once to refuse
-broken files; it stays where it is and the item records its absolute path and
-SHA-256.
+Images are a folder (walked recursively; .png, .jpg, .jpeg, .gif), a text
+file listing image paths one per line, or — with --format images — a CSV or
+JSONL file with a "path" field (relative to the file's folder), an optional
+"id" (default: the path), "parent", "position" and covariates such as the
+magnification. Each image is decoded once to refuse broken files; it stays
+where it is and the item records its absolute path and SHA-256.
 
 The format is guessed from the name (.csv, .jsonl/.ndjson/.json, a folder or
 .txt/.list for images) unless --format says.`,
@@ -50,6 +52,7 @@ The format is guessed from the name (.csv, .jsonl/.ndjson/.json, a folder or
   loop items add proj reports.jsonl --split sentences --covariates site,year
   loop items add proj docs.csv --id-field doc_id --text-field body
   loop items add proj photos/                 # every image under photos/
+  loop items add proj --format images slides.csv   # path,magnification,…
   loop items add proj fixed.csv --update      # replace items with the same id`,
 		Args: cobra.MinimumNArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -87,6 +90,9 @@ The format is guessed from the name (.csv, .jsonl/.ndjson/.json, a folder or
 				}
 				if fi.IsDir() && ff != ingest.Images {
 					return usageErrorf("%s is a folder; only --format images reads folders", f)
+				}
+				if ff == ingest.Images && opt.SplitSentences {
+					return usageErrorf("--split applies to text, not images (%s)", f)
 				}
 				srcs = append(srcs, itemSource{path: f, format: ff})
 			}
@@ -167,6 +173,14 @@ func (m *multiItems) open(src itemSource) error {
 	}
 	m.file, m.bar, m.count = r, bar, false
 	if src.format == ingest.Images {
+		if tf := ingest.GuessFormat(src.path, false); tf == ingest.CSV || tf == ingest.JSONL {
+			ir, err := ingest.NewImageTable(r, src.path, tf, filepath.Dir(src.path), m.opt)
+			if err != nil {
+				return err
+			}
+			m.next1, m.where = ir.Next, ir.Where
+			return nil
+		}
 		ir := ingest.NewImageList(r, src.path, filepath.Dir(src.path))
 		m.next1, m.where = ir.Next, ir.Where
 		return nil

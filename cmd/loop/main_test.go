@@ -99,6 +99,7 @@ func TestBadInputChangesNothing(t *testing.T) {
 		{"gold for unknown item", map[string]string{"g.csv": "item,label\nr1,other\nr9,other\n"}, []string{"labels", "add", "@g.csv", "--gold"}, `g\.csv:3: field "item": unknown item "r9"`},
 		{"gold not in codebook", map[string]string{"g.jsonl": `{"item":"r1","label":"fish"}`}, []string{"labels", "add", "@g.jsonl", "--gold"}, `g\.jsonl:1: field "label": label "fish"`},
 		{"unreadable image", map[string]string{"imgs.txt": "ok1.png\nok2.png\nok3.png\nnot-there.png\n"}, []string{"items", "add", "@imgs.txt"}, `imgs\.txt:4: field "path": unreadable image`},
+		{"corrupt image in a table", map[string]string{"imgs.csv": "path,mag\nok1.png,10\nbad.png,40\n", "bad.png": "GIF89a..."}, []string{"items", "add", "--format", "images", "@imgs.csv"}, `imgs\.csv:3: field "path": corrupt image`},
 		{"corrupt image", map[string]string{"imgs.txt": "ok1.png\nok2.png\nok3.png\nbad.png\n", "bad.png": "\x89PNG\r\n\x1a\ngarbage"}, []string{"items", "add", "@imgs.txt"}, `imgs\.txt:4: field "path": corrupt image`},
 		{"text not UTF-8", map[string]string{"items.csv": "id,text\nn1,a\nn2,b\nn3,c\nn4,caf\xe9\n"}, []string{"items", "add", "@items.csv"}, `items\.csv:5: field "text": not UTF-8 text`},
 		{"empty text", map[string]string{"items.jsonl": `{"id":"n1","text":"a"}` + "\n" + `{"id":"n2","text":"b"}` + "\n" + `{"id":"n3","text":"c"}` + "\n" + `{"id":"n4","text":" "}` + "\n"}, []string{"items", "add", "@items.jsonl"}, `items\.jsonl:4: field "text": empty text`},
@@ -232,8 +233,15 @@ func TestImagesUpdateAndStatusText(t *testing.T) {
 	if !strings.Contains(out, "1 added, 1 updated") {
 		t.Errorf("update: %s", out)
 	}
+	// An image table with covariates.
+	writePNG(t, filepath.Join(dir, "slides", "s1.png"))
+	tab := write(t, dir, "slides/slides.csv", "path,magnification,parent\ns1.png,40,slide1\n")
+	out = mustLoop(t, "items", "add", proj, "--format", "images", tab)
+	if !strings.Contains(out, "1 added") {
+		t.Errorf("image table: %s", out)
+	}
 	text := mustLoop(t, "status", proj)
-	for _, w := range []string{"items: 6 (text 4, image 2)", "labels: 2 on 2 items by 2 annotators", "gold: 1", "labels per item: 0×4 1×2"} {
+	for _, w := range []string{"items: 7 (text 4, image 3)", "labels: 2 on 2 items by 2 annotators", "gold: 1", "labels per item: 0×5 1×2"} {
 		if !strings.Contains(text, w) {
 			t.Errorf("status text lacks %q:\n%s", w, text)
 		}
@@ -247,8 +255,12 @@ func TestImagesUpdateAndStatusText(t *testing.T) {
 	if it.Kind != "image" || !filepath.IsAbs(it.Path) || len(it.SHA256) != 64 {
 		t.Errorf("image item %+v", it)
 	}
+	it, _, _ = s.Item("s1.png")
+	if it.Kind != "image" || it.Path != filepath.Join(dir, "slides", "s1.png") || it.Covariates["magnification"] != "40" || it.Parent != "slide1" {
+		t.Errorf("image table item %+v", it)
+	}
 	log, _ := s.Audit()
-	last := log[len(log)-1]
+	last := log[len(log)-2] // the --update import; the image table came after
 	if last.Action != "items.add" || !strings.HasPrefix(last.Source, "loop items add "+proj) || !strings.HasSuffix(last.Source, "--update") {
 		t.Errorf("audit entry %+v", last)
 	}
@@ -263,13 +275,13 @@ func TestExitCodes(t *testing.T) {
 		{[]string{"status", proj}, 0},
 		{[]string{"--help"}, 0},
 		{[]string{"items", "add", "--help"}, 0},
-		{[]string{"status"}, 2},                           // missing DIR
-		{[]string{"status", proj, "--bogus"}, 2},          // unknown flag
-		{[]string{"nonsense"}, 2},                         // unknown command
-		{[]string{"items"}, 2},                            // group without subcommand
-		{[]string{"items", "frobnicate", proj}, 2},        // unknown subcommand
-		{[]string{"items", "add", proj}, 2},               // no FILE
-		{[]string{"init", filepath.Join(dir, "x")}, 2},    // no --codebook
+		{[]string{"status"}, 2},                        // missing DIR
+		{[]string{"status", proj, "--bogus"}, 2},       // unknown flag
+		{[]string{"nonsense"}, 2},                      // unknown command
+		{[]string{"items"}, 2},                         // group without subcommand
+		{[]string{"items", "frobnicate", proj}, 2},     // unknown subcommand
+		{[]string{"items", "add", proj}, 2},            // no FILE
+		{[]string{"init", filepath.Join(dir, "x")}, 2}, // no --codebook
 		{[]string{"items", "add", proj, "--split", "paragraphs", filepath.Join(dir, "base.csv")}, 2},
 		{[]string{"items", "add", proj, write(t, dir, "x.xlsx", "")}, 2}, // unknown format
 		{[]string{"status", filepath.Join(dir, "nowhere")}, 1},           // no project
@@ -321,5 +333,11 @@ func TestQuietAndProgressSilent(t *testing.T) {
 	code, out, errs := loop(t, "items", "add", proj, items, "--quiet")
 	if code != 0 || errs != "" || !strings.Contains(out, "1 added") {
 		t.Errorf("quiet: %d %q %q", code, out, errs)
+	}
+	// Without --quiet, stdout is not a terminal here: no progress bar either.
+	items = write(t, dir, "more2.csv", "id,text\nq2,a\n")
+	code, _, errs = loop(t, "items", "add", proj, items)
+	if code != 0 || errs != "" {
+		t.Errorf("not a terminal: %d, stderr %q", code, errs)
 	}
 }
