@@ -354,6 +354,8 @@ func (s *emState[F]) estep(wk int, post []float64) {
 	pr := s.prior[wk]
 	clear(pr)
 	var ll float64
+	prod := 1.0 // Π z over items since ll was last updated: one log per hundreds of items
+	fast := isFloat32[F]()
 	sc := make([]float64, k)
 	for i := lo; i < hi; i++ {
 		row := s.acc[i*k : (i+1)*k]
@@ -384,12 +386,24 @@ func (s *emState[F]) estep(wk int, post []float64) {
 			pr[g]++
 		} else {
 			var z float64
-			for c, v := range sc {
-				e := math.Exp(v - m)
-				sc[c] = e
-				z += e
+			if fast {
+				for c, v := range sc {
+					e := expNeg(v - m)
+					sc[c] = e
+					z += e
+				}
+			} else {
+				for c, v := range sc {
+					e := math.Exp(v - m)
+					sc[c] = e
+					z += e
+				}
 			}
-			ll += m + math.Log(z)
+			ll += m
+			if prod *= z; prod > 1e200 {
+				ll += math.Log(prod)
+				prod = 1
+			}
 			inv := 1 / z
 			for c := range row {
 				p := sc[c] * inv
@@ -404,7 +418,27 @@ func (s *emState[F]) estep(wk int, post []float64) {
 			}
 		}
 	}
-	s.ll[wk] = ll
+	s.ll[wk] = ll + math.Log(prod)
+}
+
+func isFloat32[F float]() bool {
+	var x F
+	_, ok := any(x).(float32)
+	return ok
+}
+
+// expNeg is e^x for x ≤ 0 with a relative error below 2e-7, enough for the
+// float32 tables: e^x = 2^n·√2·2^g with n = ⌊x·log₂e⌋ and g in [−½, ½),
+// 2^g by its Taylor series to degree 6.
+func expNeg(x float64) float64 {
+	t := x * math.Log2E
+	if t < -1021 { // below the smallest normal float64: 0 is within 1e-307 of the truth
+		return 0
+	}
+	n := math.Floor(t)
+	g := (t - n - 0.5) * math.Ln2
+	p := 1 + g*(1+g*(1.0/2+g*(1.0/6+g*(1.0/24+g*(1.0/120+g*(1.0/720))))))
+	return p * math.Sqrt2 * math.Float64frombits(uint64(int64(n)+1023)<<52)
 }
 
 // accumulate adds each label's item posterior into the worker's count table.
