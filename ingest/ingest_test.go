@@ -313,6 +313,20 @@ func TestImages(t *testing.T) {
 	if _, err := lr.Next(); err == nil || !strings.HasPrefix(err.Error(), `list.txt:1: field "path": unreadable image`) {
 		t.Errorf("missing image: %v", err)
 	}
+	// An image table: path, id and covariates; relative to the base folder.
+	tr, err := NewImageTable(strings.NewReader("path,id,magnification\nsub/b.JPG,slide-b,40\n"), "t.csv", CSV, dir, ItemOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	it, err := tr.Next()
+	if err != nil || it.ID != "slide-b" || it.Kind != handoff.KindImage || it.Path != filepath.Join(dir, "sub", "b.JPG") ||
+		!reflect.DeepEqual(it.Covariates, map[string]string{"magnification": "40"}) {
+		t.Errorf("image table item %+v %v", it, err)
+	}
+	if _, err := NewImageTable(strings.NewReader("file\nx.png\n"), "t.csv", CSV, dir, ItemOptions{}); err == nil ||
+		!strings.Contains(err.Error(), `t.csv:1: field "path": missing required column`) {
+		t.Errorf("image table without path: %v", err)
+	}
 	// A broken image in a folder names the image file.
 	fr, _ := NewImageFolder(dir)
 	for err == nil || err.Error() == "" {

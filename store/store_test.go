@@ -257,7 +257,10 @@ func TestLabelsAndTable(t *testing.T) {
 	if len(by) != 3 || by[1].Item != "i002" {
 		t.Errorf("LabelsBy(ann) = %+v", by)
 	}
-	tab, err := s.LabelTable()
+	if tab, err := s.LabelTable(false); err != nil || tab.Time != nil || tab.Seconds != nil || tab.Len() != 5 {
+		t.Fatalf("LabelTable(false): %+v %v", tab, err)
+	}
+	tab, err := s.LabelTable(true)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,0 +1,400 @@
+package store
+
+import (
+	"bytes"
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"handoff"
+)
+
+// What the HTTP service writes: labels sent one at a time with an
+// idempotency key, and the leases that hand items out to people. These writes
+// are group-committed with bbolt's DB.Batch: many concurrent calls share one
+// transaction and one fsync, and each call returns only after that
+// transaction has committed.
+//
+// The service's buckets are created on first use, so files made before they
+// existed open as usual.
+var (
+	bSvcKeys   = []byte("svc_idempotency") // annotator id ‖ 0 ‖ key → label number (8 bytes BE) ‖ class index (2 bytes BE) ‖ item id
+	bSvcLeases = []byte("svc_leases")      // lease id → JSON ServiceLease
+	bSvcUnsure = []byte("svc_unsure")      // item id ‖ 0 ‖ annotator id → time (Unix ns, 8 bytes BE)
+)
+
+// ServiceLease is an item handed out to one person until Expires. While a
+// lease is live the item counts as taken by that person; once it expires the
+// item returns to the pool.
+type ServiceLease struct {
+	ID        string    `json:"id"`
+	Item      string    `json:"item"`
+	Annotator string    `json:"annotator"`
+	Expires   time.Time `json:"expires"`
+}
+
+// Submission is one label sent through the service.
+//
+// Rules: Label follows the handoff.Label rules. Key is the idempotency key
+// chosen by the sender, non-empty and at most 200 bytes, scoped to
+// Label.Annotator: sending the same key again never writes a second label.
+// Lease is the id of the lease the item was handed out under, or "" for a
+// label sent without one.
+type Submission struct {
+	Label handoff.Label
+	Key   string
+	Lease string
+}
+
+// SubmitResult says what Submit did.
+type SubmitResult struct {
+	// N is the label's number (its place in order of arrival).
+	N uint64
+	// Duplicate is true when the key had been used before with the same
+	// item and class: nothing was written and N is the number of the label
+	// written the first time.
+	Duplicate bool
+	// Label is the stored label (for a duplicate, as first stored).
+	Label handoff.Label
+}
+
+// Errors returned by Submit (wrapped, test with errors.Is). Each means
+// nothing was written.
+var (
+	ErrLeaseUnknown    = errors.New("no such lease: fetch the next item again")
+	ErrLeaseExpired    = errors.New("the lease has expired: fetch the next item again")
+	ErrLeaseMismatch   = errors.New("the lease was given for another item or person")
+	ErrAlreadyLabelled = errors.New("this person has already labelled this item")
+	ErrKeyReused       = errors.New("the idempotency key was already used for a different label")
+)
+
+// errImportRunning makes a batched write step aside while a chunked import
+// holds the project (see batch).
+var errImportRunning = errors.New("store: an import is in progress")
+
+// maxKey is the longest idempotency key accepted, in bytes.
+const maxKey = 200
+
+// SetBatch sets how group commit gathers writes: at most size calls share a
+// transaction, and a transaction starts at most delay after its first call.
+// Values ≤ 0 keep bbolt's defaults (1000 calls, 10 ms). Call it before the
+// store is in use.
+func (s *Store) SetBatch(size int, delay time.Duration) {
+	if size > 0 {
+		s.db.MaxBatchSize = size
+	}
+	if delay > 0 {
+		s.db.MaxBatchDelay = delay
+	}
+}
+
+// batch runs fn in a group-committed write transaction (bbolt's DB.Batch)
+// and returns once it has committed. fn may be called more than once and
+// must reset whatever it records outside the transaction on each call. While
+// a chunked import is half-way (its mark is set) fn does not run in a batch;
+// it waits for the import to finish and then runs on its own, so it never
+// lands among rows an import rollback would remove.
+func (s *Store) batch(fn func(tx *bolt.Tx) error) error {
+	err := s.db.Batch(func(tx *bolt.Tx) error {
+		if tx.Bucket(bMeta).Get(kPending) != nil {
+			return errImportRunning
+		}
+		return fn(tx)
+	})
+	if errors.Is(err, errImportRunning) {
+		return s.write(fn)
+	}
+	return err
+}
+
+func svcKey(annotator, key string) []byte {
+	k := make([]byte, 0, len(annotator)+1+len(key))
+	k = append(k, annotator...)
+	k = append(k, 0)
+	return append(k, key...)
+}
+
+// Submit writes one label unless its idempotency key has been seen, and
+// returns only after the write has committed (group commit: concurrent calls
+// share transactions). In the same transaction it checks and ends the lease:
+// the lease must exist, belong to the label's annotator and item, and not
+// have expired at the time of the transaction; it is deleted when the label
+// is written. A person may label an item once (ErrAlreadyLabelled).
+//
+// A Submission that breaks the label rules returns a *DataError; the lease
+// and key problems return the Err… values above (wrapped). The key is looked
+// up first, so a retry of an acknowledged label succeeds (Duplicate) even
+// though its lease is gone.
+func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
+	l := sub.Label
+	if sub.Key == "" || len(sub.Key) > maxKey {
+		return SubmitResult{}, dataErr("idempotency_key", "the idempotency key must have 1 to %d bytes, has %d", maxKey, len(sub.Key))
+	}
+	if l.Annotator == "" {
+		return SubmitResult{}, dataErr("annotator", "empty annotator id")
+	}
+	if bytes.IndexByte([]byte(l.Annotator), 0) >= 0 {
+		return SubmitResult{}, dataErr("annotator", "annotator id contains a NUL byte")
+	}
+	ci, ok := s.cbIx[l.Class]
+	if !ok {
+		return SubmitResult{}, dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
+	}
+	if math.IsNaN(l.Seconds) || math.IsInf(l.Seconds, 0) || l.Seconds < 0 {
+		return SubmitResult{}, dataErr("seconds", "seconds %v is not a finite number ≥ 0", l.Seconds)
+	}
+	var (
+		res     SubmitResult
+		outcome error
+	)
+	err := s.batch(func(tx *bolt.Tx) error {
+		res, outcome = SubmitResult{}, nil
+		keys, err := tx.CreateBucketIfNotExists(bSvcKeys)
+		if err != nil {
+			return err
+		}
+		ik := svcKey(l.Annotator, sub.Key)
+		if v := keys.Get(ik); v != nil {
+			if len(v) < 10 || binary.BigEndian.Uint16(v[8:10]) != uint16(ci) || string(v[10:]) != l.Item {
+				outcome = fmt.Errorf("key %q: %w", sub.Key, ErrKeyReused)
+				return nil
+			}
+			n := binary.BigEndian.Uint64(v[:8])
+			var r LabelRecord
+			if err := decodeLabel(tx.Bucket(bLabels).Get(u64(n)), &r); err != nil {
+				return fmt.Errorf("store: label %d of idempotency key %q: %w", n, sub.Key, err)
+			}
+			first, err := s.toLabel(tx, &r, map[uint32]string{}, map[uint32]string{})
+			if err != nil {
+				return err
+			}
+			res = SubmitResult{N: n, Duplicate: true, Label: first}
+			return nil
+		}
+		itemNum := tx.Bucket(bItemIDs).Get([]byte(l.Item))
+		if itemNum == nil {
+			outcome = dataErr("item", "unknown item %q", l.Item)
+			return nil
+		}
+		leases, err := tx.CreateBucketIfNotExists(bSvcLeases)
+		if err != nil {
+			return err
+		}
+		if sub.Lease != "" {
+			v := leases.Get([]byte(sub.Lease))
+			if v == nil {
+				outcome = fmt.Errorf("lease %q: %w", sub.Lease, ErrLeaseUnknown)
+				return nil
+			}
+			var ls ServiceLease
+			if err := json.Unmarshal(v, &ls); err != nil {
+				return fmt.Errorf("store: damaged lease %q: %w", sub.Lease, err)
+			}
+			if ls.Annotator != l.Annotator || ls.Item != l.Item {
+				outcome = fmt.Errorf("lease %q: %w", sub.Lease, ErrLeaseMismatch)
+				return nil
+			}
+			if !s.now().Before(ls.Expires) {
+				outcome = fmt.Errorf("lease %q expired at %s: %w", sub.Lease, ls.Expires.Format(time.RFC3339), ErrLeaseExpired)
+				return nil
+			}
+		}
+		// Has this person labelled the item? Walk the item's labels (a
+		// handful) rather than the person's (possibly thousands).
+		item := binary.BigEndian.Uint64(itemNum)
+		ann, hasAnn := uint64(0), false
+		if k := tx.Bucket(bAnnotatorIDs).Get([]byte(l.Annotator)); k != nil {
+			ann, hasAnn = binary.BigEndian.Uint64(k), true
+		}
+		labels := tx.Bucket(bLabels)
+		if hasAnn {
+			prefix := u64(item)
+			c := tx.Bucket(bLabelItem).Cursor()
+			var r LabelRecord
+			for k, _ := c.Seek(prefix); k != nil && bytes.HasPrefix(k, prefix); k, _ = c.Next() {
+				if err := decodeLabel(labels.Get(k[8:]), &r); err != nil {
+					return err
+				}
+				if uint64(r.Annotator) == ann {
+					outcome = fmt.Errorf("item %q: %w", l.Item, ErrAlreadyLabelled)
+					return nil
+				}
+			}
+		}
+		a, err := newAnnotatorCache(tx, map[string]uint32{}).get(l.Annotator)
+		if err != nil {
+			return err
+		}
+		r := LabelRecord{Item: uint32(item), Annotator: a, Class: uint16(ci), Seconds: l.Seconds}
+		if !l.Time.IsZero() {
+			r.Time = l.Time.UnixNano()
+		}
+		labels.FillPercent = 1
+		seq := labels.Sequence()
+		if err := labels.Put(u64(seq), encodeLabel(&r)); err != nil {
+			return err
+		}
+		if err := tx.Bucket(bLabelItem).Put(pair(uint64(r.Item), seq), nil); err != nil {
+			return err
+		}
+		if err := tx.Bucket(bLabelAnn).Put(pair(uint64(r.Annotator), seq), nil); err != nil {
+			return err
+		}
+		if err := labels.SetSequence(seq + 1); err != nil {
+			return err
+		}
+		v := make([]byte, 10, 10+len(l.Item))
+		binary.BigEndian.PutUint64(v, seq)
+		binary.BigEndian.PutUint16(v[8:], uint16(ci))
+		v = append(v, l.Item...)
+		if err := keys.Put(ik, v); err != nil {
+			return err
+		}
+		if sub.Lease != "" {
+			if err := leases.Delete([]byte(sub.Lease)); err != nil {
+				return err
+			}
+		}
+		res = SubmitResult{N: seq, Label: l}
+		if !l.Time.IsZero() {
+			res.Label.Time = time.Unix(0, r.Time).UTC()
+		}
+		return s.audit(tx, source, "labels.add", fmt.Sprintf("label %d: item %q, class %q, by %q", seq, l.Item, l.Class, l.Annotator))
+	})
+	if err != nil {
+		return SubmitResult{}, err
+	}
+	return res, outcome
+}
+
+// GrantLease stores a lease (group commit, like Submit) and returns once it
+// has committed. A lease with the same id is replaced. Leases are not
+// recorded in the audit trail: they change no data, only who is working on
+// what.
+func (s *Store) GrantLease(l ServiceLease) error {
+	if l.ID == "" || l.Item == "" || l.Annotator == "" {
+		return dataErr("lease", "a lease needs an id, an item and an annotator")
+	}
+	v, err := json.Marshal(l)
+	if err != nil {
+		return err
+	}
+	return s.batch(func(tx *bolt.Tx) error {
+		if tx.Bucket(bItemIDs).Get([]byte(l.Item)) == nil {
+			return dataErr("item", "unknown item %q", l.Item)
+		}
+		b, err := tx.CreateBucketIfNotExists(bSvcLeases)
+		if err != nil {
+			return err
+		}
+		return b.Put([]byte(l.ID), v)
+	})
+}
+
+// EndLeases deletes the leases with the given ids (absent ones are ignored)
+// in one group-committed transaction.
+func (s *Store) EndLeases(ids []string) error {
+	if len(ids) == 0 {
+		return nil
+	}
+	return s.batch(func(tx *bolt.Tx) error {
+		b := tx.Bucket(bSvcLeases)
+		if b == nil {
+			return nil
+		}
+		for _, id := range ids {
+			if err := b.Delete([]byte(id)); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
+// ServiceLeases returns every stored lease, live or expired, ordered by id.
+func (s *Store) ServiceLeases() ([]ServiceLease, error) {
+	var out []ServiceLease
+	err := s.db.View(func(tx *bolt.Tx) error {
+		b := tx.Bucket(bSvcLeases)
+		if b == nil {
+			return nil
+		}
+		return b.ForEach(func(k, v []byte) error {
+			var l ServiceLease
+			if err := json.Unmarshal(v, &l); err != nil {
+				return fmt.Errorf("store: damaged lease %q: %w", k, err)
+			}
+			out = append(out, l)
+			return nil
+		})
+	})
+	return out, err
+}
+
+// IdempotencyKeys returns the number of idempotency keys stored.
+func (s *Store) IdempotencyKeys() (int, error) {
+	n := 0
+	err := s.db.View(func(tx *bolt.Tx) error {
+		if b := tx.Bucket(bSvcKeys); b != nil {
+			n = b.Stats().KeyN
+		}
+		return nil
+	})
+	return n, err
+}
+
+// MarkUnsure records that a person looked at an item and could not decide
+// (group commit; recorded in the audit trail). Marking the same item twice
+// by the same person keeps the latest time.
+func (s *Store) MarkUnsure(item, annotator, source string) error {
+	if annotator == "" || bytes.IndexByte([]byte(item), 0) >= 0 {
+		return dataErr("annotator", "empty annotator id or NUL in the item id")
+	}
+	return s.batch(func(tx *bolt.Tx) error {
+		if tx.Bucket(bItemIDs).Get([]byte(item)) == nil {
+			return dataErr("item", "unknown item %q", item)
+		}
+		b, err := tx.CreateBucketIfNotExists(bSvcUnsure)
+		if err != nil {
+			return err
+		}
+		if err := b.Put(svcKey(item, annotator), u64(uint64(s.now().UnixNano()))); err != nil {
+			return err
+		}
+		return s.audit(tx, source, "labels.unsure", fmt.Sprintf("item %q: %q was unsure", item, annotator))
+	})
+}
+
+// EachUnsure calls fn for every unsure mark (item, person), ordered by item
+// id then person.
+func (s *Store) EachUnsure(fn func(item, annotator string) error) error {
+	return s.db.View(func(tx *bolt.Tx) error {
+		b := tx.Bucket(bSvcUnsure)
+		if b == nil {
+			return nil
+		}
+		return b.ForEach(func(k, _ []byte) error {
+			i := bytes.IndexByte(k, 0)
+			if i < 0 {
+				return fmt.Errorf("store: damaged unsure mark %q", k)
+			}
+			return fn(string(k[:i]), string(k[i+1:]))
+		})
+	})
+}
+
+// UnsureCounts returns, per item, how many people marked it unsure (items
+// nobody marked are absent).
+func (s *Store) UnsureCounts() (map[string]int, error) {
+	out := map[string]int{}
+	err := s.EachUnsure(func(item, _ string) error {
+		out[item]++
+		return nil
+	})
+	return out, err
+}
