@@ -1,0 +1,441 @@
+package api
+
+import (
+	"encoding/csv"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"mime"
+	"net/http"
+	"sort"
+	"strconv"
+	"time"
+
+	"github.com/labstack/echo/v4"
+
+	"handoff"
+	"handoff/crowd"
+	"handoff/ingest"
+	"handoff/round"
+	"handoff/store"
+)
+
+// StatusReply is the project at a glance.
+type StatusReply struct {
+	store.Stats
+	Pool   PoolStatus `json:"pool"`
+	People int        `json:"people"`
+	Round  RoundJob   `json:"round_job"`
+	Rounds int        `json:"rounds"`
+}
+
+func (sv *Server) getStatus(c echo.Context) error {
+	st, err := sv.st.Stats()
+	if err != nil {
+		return err
+	}
+	people, err := People(sv.st)
+	if err != nil {
+		return err
+	}
+	rounds, err := sv.st.Rounds()
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, StatusReply{Stats: st, Pool: sv.pool.status(), People: len(people),
+		Round: sv.rounds.job(), Rounds: len(rounds)})
+}
+
+// DayCount is the number of labels given on one UTC day.
+type DayCount struct {
+	Day    string `json:"day"` // YYYY-MM-DD
+	Labels int    `json:"labels"`
+}
+
+func (sv *Server) getLabelsPerDay(c echo.Context) error {
+	days := map[string]int{}
+	unknown := 0
+	err := sv.st.EachLabel(func(r *store.LabelRecord) error {
+		if r.Time == 0 {
+			unknown++
+			return nil
+		}
+		days[time.Unix(0, r.Time).UTC().Format(time.DateOnly)]++
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	out := make([]DayCount, 0, len(days))
+	for d, n := range days {
+		out = append(out, DayCount{d, n})
+	}
+	sort.Slice(out, func(i, j int) bool { return out[i].Day < out[j].Day })
+	return c.JSON(http.StatusOK, map[string]any{"days": out, "without_time": unknown})
+}
+
+func (sv *Server) getPeople(c echo.Context) error {
+	people, err := People(sv.st)
+	if err != nil {
+		return err
+	}
+	if people == nil {
+		people = []Person{}
+	}
+	return c.JSON(http.StatusOK, map[string]any{"people": people})
+}
+
+// PersonRequest is the body of POST /api/v1/people.
+type PersonRequest struct {
+	ID    string `json:"id"`
+	Admin bool   `json:"admin"`
+}
+
+// postPeople adds a person and returns their token, shown this once (the
+// server holds the project file, so `loop people add` cannot run beside
+// it).
+func (sv *Server) postPeople(c echo.Context) error {
+	var req PersonRequest
+	if err := decodeJSON(c, &req); err != nil {
+		return err
+	}
+	tok, err := AddPerson(sv.st, req.ID, req.Admin, sv.source(c))
+	if errors.Is(err, ErrPersonExists) {
+		return jsonError(http.StatusConflict, "%v", err)
+	}
+	if err != nil {
+		if !personID.MatchString(req.ID) {
+			return jsonError(http.StatusUnprocessableEntity, "%v", err)
+		}
+		return err
+	}
+	return c.JSON(http.StatusCreated, map[string]any{"id": req.ID, "admin": req.Admin, "token": tok})
+}
+
+// importFormat reads the body's format from its Content-Type: CSV
+// (text/csv) or JSONL (application/jsonl, application/x-ndjson).
+func importFormat(c echo.Context) (ingest.Format, error) {
+	mt, _, err := mime.ParseMediaType(c.Request().Header.Get("Content-Type"))
+	if err != nil {
+		mt = ""
+	}
+	switch mt {
+	case "text/csv":
+		return ingest.CSV, nil
+	case "application/jsonl", "application/x-ndjson", "application/x-jsonlines":
+		return ingest.JSONL, nil
+	}
+	return "", jsonError(http.StatusUnsupportedMediaType, "send CSV (Content-Type: text/csv) or JSON lines (Content-Type: application/jsonl)")
+}
+
+// ImportReply says what an import added.
+type ImportReply struct {
+	Added   int `json:"added"`
+	Updated int `json:"updated"`
+}
+
+func (sv *Server) postItems(c echo.Context) error {
+	f, err := importFormat(c)
+	if err != nil {
+		return err
+	}
+	q := c.QueryParams()
+	opt := ingest.ItemOptions{SplitSentences: q.Get("split") == "sentences"}
+	if s := q.Get("split"); s != "" && s != "sentences" && s != "none" {
+		return jsonError(http.StatusBadRequest, "split=%q: use split=sentences or split=none", s)
+	}
+	update := q.Get("update") == "true"
+	r, err := ingest.NewItemReader(c.Request().Body, "request body", f, opt)
+	if err != nil {
+		return bodyError(err)
+	}
+	res, err := sv.st.ImportItems(sv.source(c), update, r.Next)
+	if err != nil {
+		return bodyError(err)
+	}
+	if err := sv.pool.rebuild(); err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, ImportReply{res.Added, res.Updated})
+}
+
+func (sv *Server) postLabelsImport(c echo.Context) error {
+	f, err := importFormat(c)
+	if err != nil {
+		return err
+	}
+	cb := sv.st.Codebook()
+	r, err := ingest.NewLabelReader(c.Request().Body, "request body", f, ingest.LabelOptions{Codebook: &cb})
+	if err != nil {
+		return bodyError(err)
+	}
+	res, err := sv.st.ImportLabels(sv.source(c), r.Next)
+	if err != nil {
+		return bodyError(err)
+	}
+	if err := sv.pool.rebuild(); err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, ImportReply{res.Added, res.Updated})
+}
+
+func (sv *Server) postGold(c echo.Context) error {
+	f, err := importFormat(c)
+	if err != nil {
+		return err
+	}
+	cb := sv.st.Codebook()
+	r, err := ingest.NewGoldReader(c.Request().Body, "request body", f, ingest.GoldOptions{Codebook: &cb, SourceField: "source"})
+	if err != nil {
+		return bodyError(err)
+	}
+	res, err := sv.st.ImportGold(sv.source(c), r.Next)
+	if err != nil {
+		return bodyError(err)
+	}
+	sv.forgetTraining()
+	if err := sv.pool.rebuild(); err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, ImportReply{res.Added, res.Updated})
+}
+
+// bodyError turns a reader or import error into a 4xx: too large (413) or
+// bad data (422, naming the line and field).
+func bodyError(err error) error {
+	var mb *http.MaxBytesError
+	if errors.As(err, &mb) {
+		return err
+	}
+	var ie *ingest.Error
+	var de *store.DataError
+	if errors.As(err, &ie) || errors.As(err, &de) {
+		return jsonError(http.StatusUnprocessableEntity, "nothing was imported: %v", err)
+	}
+	return err
+}
+
+// agreement measures the crowd's agreement with itself over every label,
+// after the default cleaning rules (round.Agreement): Fleiss' kappa,
+// Krippendorff's alpha and each person's kappa against the others'
+// majority, with bootstrap 95% intervals (200 replicates seeded by
+// Config.Seed). The agreement between the machine and the crowd is in the
+// verdict.
+func (sv *Server) agreement() (*round.AgreementReport, error) {
+	a, err := round.Agreement(sv.st, round.AgreementConfig{Rules: crowd.DefaultRules(), Reps: 200, Seed: sv.cfg.Seed})
+	if errors.Is(err, round.ErrNothing) {
+		return nil, codedError(http.StatusConflict, "nothing_yet", "%v", err)
+	}
+	return a, err
+}
+
+func (sv *Server) getAgreement(c echo.Context) error {
+	a, err := sv.agreement()
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, a)
+}
+
+// AnnotatorRow is one line of the reliability table: labels given, kappa
+// against the others' majority (absent when undefined or before any
+// labels), mean seconds per label, unsure marks, and the training state.
+type AnnotatorRow struct {
+	Annotator string          `json:"annotator"`
+	Labels    int             `json:"labels"`
+	Kappa     *crowd.Estimate `json:"kappa,omitempty"`
+	MeanSecs  float64         `json:"mean_seconds,omitempty"`
+	Unsure    int             `json:"unsure"`
+	Quiz      *TrainingState  `json:"quiz,omitempty"`
+}
+
+func (sv *Server) getAnnotators(c echo.Context) error {
+	t, err := sv.st.LabelTable(true)
+	if err != nil {
+		return err
+	}
+	rows := make([]AnnotatorRow, len(t.AnnotatorIDs))
+	secs := make([]float64, len(t.AnnotatorIDs))
+	timed := make([]int, len(t.AnnotatorIDs))
+	ix := map[string]int{}
+	for i, id := range t.AnnotatorIDs {
+		rows[i].Annotator = id
+		ix[id] = i
+	}
+	for i := range t.Annotator {
+		x := t.Annotator[i]
+		rows[x].Labels++
+		if t.Seconds[i] > 0 {
+			secs[x] += float64(t.Seconds[i])
+			timed[x]++
+		}
+	}
+	for i := range rows {
+		if timed[i] > 0 {
+			rows[i].MeanSecs = secs[i] / float64(timed[i])
+		}
+	}
+	if t.Len() > 0 {
+		a, err := sv.agreement()
+		if err != nil {
+			return err
+		}
+		for _, k := range a.LeaveOneOut {
+			if i, ok := ix[k.ID]; ok && k.Kappa.Defined {
+				e := k.Kappa
+				rows[i].Kappa = &e
+			}
+		}
+	}
+	people, err := People(sv.st)
+	if err != nil {
+		return err
+	}
+	for _, p := range people {
+		i, ok := ix[p.ID]
+		if !ok {
+			ix[p.ID] = len(rows)
+			i = len(rows)
+			rows = append(rows, AnnotatorRow{Annotator: p.ID})
+		}
+		tr := p.Training
+		rows[i].Quiz = &tr
+	}
+	if err := sv.st.EachUnsure(func(item, annotator string) error {
+		if i, ok := ix[annotator]; ok {
+			rows[i].Unsure++
+		}
+		return nil
+	}); err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, map[string]any{"annotators": rows})
+}
+
+// UnsureItem is an item people marked unsure, with how many did.
+type UnsureItem struct {
+	Item   string `json:"item"`
+	People int    `json:"people"`
+}
+
+func (sv *Server) getUnsure(c echo.Context) error {
+	m, err := sv.st.UnsureCounts()
+	if err != nil {
+		return err
+	}
+	out := make([]UnsureItem, 0, len(m))
+	for k, n := range m {
+		out = append(out, UnsureItem{k, n})
+	}
+	sort.Slice(out, func(i, j int) bool {
+		if out[i].People != out[j].People {
+			return out[i].People > out[j].People
+		}
+		return out[i].Item < out[j].Item
+	})
+	return c.JSON(http.StatusOK, map[string]any{"items": out})
+}
+
+func (sv *Server) getNextBatch(c echo.Context) error {
+	sels, err := sv.st.Selections()
+	if err != nil {
+		return err
+	}
+	if len(sels) == 0 {
+		return c.JSON(http.StatusOK, map[string]any{"round": nil, "batch": []any{}})
+	}
+	last := sels[len(sels)-1]
+	var v any
+	if err := json.Unmarshal(last.Data, &v); err != nil {
+		return fmt.Errorf("the stored next batch of round %d is not JSON: %w", last.N, err)
+	}
+	return c.JSON(http.StatusOK, map[string]any{"round": last.N, "batch": v})
+}
+
+// getExportLabels writes every crowd label, one row each: item, annotator,
+// label, time, seconds — in CSV (the default) or JSON lines.
+func (sv *Server) getExportLabels(c echo.Context) error {
+	format := c.QueryParam("format")
+	if format == "" {
+		format = "csv"
+	}
+	if format != "csv" && format != "jsonl" {
+		return jsonError(http.StatusBadRequest, "format=%q: use csv or jsonl", format)
+	}
+	t, err := sv.st.LabelTable(true)
+	if err != nil {
+		return err
+	}
+	w := c.Response()
+	if format == "csv" {
+		w.Header().Set("Content-Type", "text/csv; charset=utf-8")
+	} else {
+		w.Header().Set("Content-Type", "application/jsonl")
+	}
+	w.Header().Set("Content-Disposition", fmt.Sprintf("attachment; filename=labels.%s", format))
+	w.WriteHeader(http.StatusOK)
+	return writeLabels(w, t, format)
+}
+
+func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
+	when := func(i int) string {
+		if t.Time[i] == 0 {
+			return ""
+		}
+		return time.Unix(0, t.Time[i]).UTC().Format(time.RFC3339Nano)
+	}
+	if format == "csv" {
+		cw := csv.NewWriter(w)
+		if err := cw.Write([]string{"item", "annotator", "label", "time", "seconds"}); err != nil {
+			return err
+		}
+		for i := range t.Item {
+			secs := ""
+			if t.Seconds[i] != 0 {
+				secs = strconv.FormatFloat(float64(t.Seconds[i]), 'g', -1, 32)
+			}
+			if err := cw.Write([]string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], t.Classes[t.Class[i]], when(i), secs}); err != nil {
+				return err
+			}
+		}
+		cw.Flush()
+		return cw.Error()
+	}
+	enc := json.NewEncoder(w)
+	for i := range t.Item {
+		l := handoff.Label{Item: t.ItemIDs[t.Item[i]], Annotator: t.AnnotatorIDs[t.Annotator[i]], Class: t.Classes[t.Class[i]],
+			Seconds: float64(t.Seconds[i])}
+		if t.Time[i] != 0 {
+			l.Time = time.Unix(0, t.Time[i]).UTC()
+		}
+		if err := enc.Encode(l); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// getExport writes one row per item — final class, source, confidence,
+// consensus posterior, labels, model, round, parent, covariates — in CSV
+// (the default), JSON lines or Parquet (round.Rows, round.WriteRows).
+func (sv *Server) getExport(c echo.Context) error {
+	format := c.QueryParam("format")
+	if format == "" {
+		format = "csv"
+	}
+	ctype := map[string]string{"csv": "text/csv; charset=utf-8", "jsonl": "application/jsonl", "parquet": "application/vnd.apache.parquet"}[format]
+	if ctype == "" {
+		return jsonError(http.StatusBadRequest, "format=%q: use csv, jsonl or parquet", format)
+	}
+	rows, err := round.Rows(sv.st)
+	if err != nil {
+		return err
+	}
+	w := c.Response()
+	w.Header().Set("Content-Type", ctype)
+	w.Header().Set("Content-Disposition", "attachment; filename=export."+format)
+	w.WriteHeader(http.StatusOK)
+	cb := sv.st.Codebook()
+	return round.WriteRows(w, format, rows, cb.Keys())
+}

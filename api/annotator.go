@@ -1,0 +1,426 @@
+package api
+
+import (
+	"errors"
+	"mime"
+	"net/http"
+	"net/url"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
+
+	"github.com/labstack/echo/v4"
+
+	"handoff"
+	"handoff/store"
+)
+
+// ItemView is an item as a person sees it: its id and text, or the address
+// of its image. Parent, covariates and the file path are never shown.
+type ItemView struct {
+	ID    string       `json:"id"`
+	Kind  handoff.Kind `json:"kind"`
+	Text  string       `json:"text,omitempty"`
+	Image string       `json:"image,omitempty"`
+}
+
+func itemView(it handoff.Item) ItemView {
+	v := ItemView{ID: it.ID, Kind: it.Kind}
+	switch it.Kind {
+	case handoff.KindText:
+		v.Text = it.Text
+	case handoff.KindImage:
+		v.Image = "/api/v1/items/" + url.PathEscape(it.ID) + "/image"
+	}
+	return v
+}
+
+// LeaseView is a lease as its holder sees it.
+type LeaseView struct {
+	ID      string    `json:"id"`
+	Item    string    `json:"item"`
+	Expires time.Time `json:"expires"`
+}
+
+// NextReply is the answer to GET /api/v1/next. Item and Lease are nil when
+// nothing is waiting for this person.
+type NextReply struct {
+	Lease    *LeaseView `json:"lease"`
+	Item     *ItemView  `json:"item"`
+	Progress Progress   `json:"progress"`
+	Message  string     `json:"message,omitempty"`
+}
+
+// LabelRequest is the body of POST /api/v1/labels.
+type LabelRequest struct {
+	Lease          string  `json:"lease"`
+	Item           string  `json:"item"`
+	Label          string  `json:"label"`
+	Seconds        float64 `json:"seconds,omitempty"`
+	IdempotencyKey string  `json:"idempotency_key,omitempty"` // or the Idempotency-Key header
+}
+
+// LabelReply acknowledges a stored label.
+type LabelReply struct {
+	Number    uint64        `json:"number"`
+	Duplicate bool          `json:"duplicate"`
+	Label     handoff.Label `json:"label"`
+	Progress  Progress      `json:"progress"`
+}
+
+// SkipRequest is the body of POST /api/v1/leases/{id}/skip.
+type SkipRequest struct {
+	Reason string `json:"reason"` // "skip" or "unsure"
+}
+
+func (sv *Server) source(c echo.Context) string {
+	s := "api " + c.Request().Method + " " + c.Path()
+	if p := who(c); p != nil {
+		s += " by " + p.ID
+	}
+	return s
+}
+
+func (sv *Server) getCodebook(c echo.Context) error {
+	return c.JSON(http.StatusOK, sv.st.Codebook())
+}
+
+// MeReply describes the signed-in person.
+type MeReply struct {
+	ID       string       `json:"id"`
+	Admin    bool         `json:"admin"`
+	Progress Progress     `json:"progress"`
+	Training TrainingView `json:"training"`
+	Now      time.Time    `json:"now"`
+}
+
+func (sv *Server) getMe(c echo.Context) error {
+	pr := who(c)
+	now := sv.cfg.Now()
+	pg, err := sv.pool.progress(pr.ID, now)
+	if err != nil {
+		return err
+	}
+	tv, err := sv.trainingView(pr.ID)
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, MeReply{ID: pr.ID, Admin: pr.Admin, Progress: pg, Training: tv, Now: now.UTC()})
+}
+
+func (sv *Server) getMyLabels(c echo.Context) error {
+	pr := who(c)
+	labels, err := sv.st.LabelsBy(pr.ID)
+	if err != nil && !errors.Is(err, store.ErrNotFound) {
+		return err
+	}
+	if labels == nil {
+		labels = []handoff.Label{}
+	}
+	return c.JSON(http.StatusOK, map[string]any{"labels": labels})
+}
+
+func (sv *Server) getNext(c echo.Context) error {
+	pr := who(c)
+	if !pr.Admin {
+		ok, err := sv.trainingDone(pr.ID)
+		if err != nil {
+			return err
+		}
+		if !ok {
+			return codedError(http.StatusForbidden, "training_required", "finish the training and the quiz first (see /api/v1/training)")
+		}
+	}
+	now := sv.cfg.Now()
+	g, err := sv.pool.next(pr.ID, now)
+	if err != nil {
+		return err
+	}
+	if g.lease != nil && !g.renewed {
+		sl := store.ServiceLease{ID: g.lease.id, Item: g.itemID, Annotator: pr.ID, Expires: g.lease.expires.UTC()}
+		if err := sv.st.GrantLease(sl); err != nil {
+			sv.pool.cancel(g.lease)
+			return err
+		}
+		sv.metrics.leases.WithLabelValues("granted").Inc()
+	}
+	pg, err := sv.pool.progress(pr.ID, now)
+	if err != nil {
+		return err
+	}
+	if g.lease == nil {
+		return c.JSON(http.StatusOK, NextReply{Progress: pg,
+			Message: "Nothing is waiting for you right now: every item has its answers or is in someone's hands. Try again later."})
+	}
+	it, _, err := sv.st.Item(g.itemID)
+	if err != nil {
+		return err
+	}
+	v := itemView(it)
+	return c.JSON(http.StatusOK, NextReply{Lease: &LeaseView{ID: g.lease.id, Item: g.itemID, Expires: g.lease.expires.UTC()},
+		Item: &v, Progress: pg})
+}
+
+func (sv *Server) postLabel(c echo.Context) error {
+	pr := who(c)
+	var req LabelRequest
+	if err := decodeJSON(c, &req); err != nil {
+		sv.metrics.labels.WithLabelValues("refused").Inc()
+		return err
+	}
+	err := sv.checkLabel(c, &req)
+	if err != nil {
+		sv.metrics.labels.WithLabelValues("refused").Inc()
+		return err
+	}
+	now := sv.cfg.Now().UTC()
+	l := handoff.Label{Item: req.Item, Annotator: pr.ID, Class: req.Label, Time: now, Seconds: req.Seconds}
+	res, err := sv.st.Submit(store.Submission{Label: l, Key: req.IdempotencyKey, Lease: req.Lease}, sv.source(c))
+	if err != nil {
+		sv.metrics.labels.WithLabelValues("refused").Inc()
+		switch {
+		case errors.Is(err, store.ErrLeaseExpired):
+			sv.pool.drop(pr.ID, req.Lease, false)
+			return codedError(http.StatusGone, "lease_expired", "%v", err)
+		case errors.Is(err, store.ErrLeaseUnknown):
+			return codedError(http.StatusConflict, "lease_unknown", "%v", err)
+		case errors.Is(err, store.ErrLeaseMismatch):
+			return codedError(http.StatusConflict, "lease_mismatch", "%v", err)
+		case errors.Is(err, store.ErrAlreadyLabelled):
+			if _, ok := sv.pool.drop(pr.ID, req.Lease, false); ok {
+				_ = sv.st.EndLeases([]string{req.Lease})
+			}
+			sv.pool.markDone(pr.ID, req.Item)
+			return codedError(http.StatusConflict, "already_labelled", "%v", err)
+		case errors.Is(err, store.ErrKeyReused):
+			return codedError(http.StatusUnprocessableEntity, "key_reused", "%v", err)
+		}
+		return err
+	}
+	status := http.StatusCreated
+	if res.Duplicate {
+		status = http.StatusOK
+		sv.metrics.labels.WithLabelValues("duplicate").Inc()
+	} else {
+		sv.pool.record(pr.ID, req.Item, req.Lease, res.N, now)
+		sv.metrics.labels.WithLabelValues("stored").Inc()
+	}
+	pg, err := sv.pool.progress(pr.ID, now)
+	if err != nil {
+		return err
+	}
+	return c.JSON(status, LabelReply{Number: res.N, Duplicate: res.Duplicate, Label: res.Label, Progress: pg})
+}
+
+// checkLabel validates a label request before it reaches the store.
+func (sv *Server) checkLabel(c echo.Context, req *LabelRequest) error {
+	if h := c.Request().Header.Get("Idempotency-Key"); h != "" {
+		if req.IdempotencyKey != "" && req.IdempotencyKey != h {
+			return jsonError(http.StatusBadRequest, "the Idempotency-Key header and the idempotency_key field differ")
+		}
+		req.IdempotencyKey = h
+	}
+	if req.IdempotencyKey == "" {
+		return jsonError(http.StatusBadRequest, "idempotency key missing: send an Idempotency-Key header (any unique string per label, reused on retries)")
+	}
+	if len(req.IdempotencyKey) > 200 {
+		return jsonError(http.StatusBadRequest, "the idempotency key is longer than 200 bytes")
+	}
+	if req.Item == "" {
+		return jsonError(http.StatusBadRequest, "field \"item\": missing")
+	}
+	if req.Lease == "" {
+		return jsonError(http.StatusBadRequest, "field \"lease\": missing (fetch the item with GET /api/v1/next)")
+	}
+	if !sv.pool.known(req.Item) {
+		return jsonError(http.StatusNotFound, "unknown item %q", req.Item)
+	}
+	cb := sv.st.Codebook()
+	if _, ok := cb.Index(req.Label); !ok {
+		return jsonError(http.StatusUnprocessableEntity, "field \"label\": %q is not a class of the codebook (classes: %s)", req.Label, strings.Join(cb.Keys(), ", "))
+	}
+	if req.Seconds < 0 || req.Seconds > 86400 || req.Seconds != req.Seconds {
+		return jsonError(http.StatusUnprocessableEntity, "field \"seconds\": %v is not between 0 and 86400", req.Seconds)
+	}
+	return nil
+}
+
+func (sv *Server) postSkip(c echo.Context) error {
+	pr := who(c)
+	var req SkipRequest
+	if err := decodeJSON(c, &req); err != nil {
+		return err
+	}
+	if req.Reason != "skip" && req.Reason != "unsure" {
+		return jsonError(http.StatusUnprocessableEntity, "field \"reason\": %q is not \"skip\" or \"unsure\"", req.Reason)
+	}
+	id := c.Param("id")
+	item, ok := sv.pool.drop(pr.ID, id, true)
+	if !ok {
+		return jsonError(http.StatusNotFound, "no live lease %q of yours", id)
+	}
+	if err := sv.st.EndLeases([]string{id}); err != nil {
+		return err
+	}
+	if req.Reason == "unsure" {
+		if err := sv.st.MarkUnsure(item, pr.ID, sv.source(c)); err != nil {
+			return err
+		}
+	}
+	pg, err := sv.pool.progress(pr.ID, sv.cfg.Now())
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, map[string]any{"item": item, "reason": req.Reason, "progress": pg})
+}
+
+// getImage serves an image item's file. The client names the item only;
+// the path comes from the store. Annotators may fetch the image of an item
+// they hold, have labelled, or meet in the training; admins any.
+func (sv *Server) getImage(c echo.Context) error {
+	pr := who(c)
+	if len(c.QueryParams()) > 0 {
+		return jsonError(http.StatusBadRequest, "image requests take no parameters: name the item in the path only")
+	}
+	id, err := url.PathUnescape(c.Param("id"))
+	if err != nil || id == "" {
+		return jsonError(http.StatusBadRequest, "bad item id in the path")
+	}
+	if strings.ContainsAny(id, `/\`) || strings.Contains(id, "..") || filepath.IsAbs(id) {
+		return jsonError(http.StatusBadRequest, "images are served by item id, not by path")
+	}
+	it, _, err := sv.st.Item(id)
+	if errors.Is(err, store.ErrNotFound) {
+		return jsonError(http.StatusNotFound, "unknown item %q", id)
+	}
+	if err != nil {
+		return err
+	}
+	if it.Kind != handoff.KindImage {
+		return jsonError(http.StatusNotFound, "item %q is not an image", id)
+	}
+	if !pr.Admin {
+		ok, err := sv.maySee(pr.ID, id)
+		if err != nil {
+			return err
+		}
+		if !ok {
+			return jsonError(http.StatusForbidden, "you may see the images of items you hold or have labelled")
+		}
+	}
+	f, err := os.Open(it.Path)
+	if err != nil {
+		return jsonError(http.StatusNotFound, "the image file of item %q is missing on the server", id)
+	}
+	defer f.Close()
+	fi, err := f.Stat()
+	if err != nil || !fi.Mode().IsRegular() {
+		return jsonError(http.StatusNotFound, "the image file of item %q is missing on the server", id)
+	}
+	ct := mime.TypeByExtension(strings.ToLower(filepath.Ext(it.Path)))
+	if !strings.HasPrefix(ct, "image/") {
+		var head [512]byte
+		n, _ := f.ReadAt(head[:], 0)
+		ct = http.DetectContentType(head[:n])
+	}
+	if !strings.HasPrefix(ct, "image/") || strings.Contains(ct, "svg") {
+		return jsonError(http.StatusUnsupportedMediaType, "the file of item %q is not a raster image", id)
+	}
+	c.Response().Header().Set("Content-Type", ct)
+	c.Response().Header().Set("Cache-Control", "private, max-age=600")
+	http.ServeContent(c.Response(), c.Request(), "", fi.ModTime(), f)
+	return nil
+}
+
+// maySee reports whether an annotator may see an item's image.
+func (sv *Server) maySee(person, item string) (bool, error) {
+	if sv.pool.holds(person, item, sv.cfg.Now()) {
+		return true, nil
+	}
+	tr, err := sv.trainingItems()
+	if err != nil {
+		return false, err
+	}
+	for _, g := range tr.all() {
+		if g.Item == item {
+			return true, nil
+		}
+	}
+	labels, err := sv.st.LabelsBy(person)
+	if err != nil && !errors.Is(err, store.ErrNotFound) {
+		return false, err
+	}
+	for _, l := range labels {
+		if l.Item == item {
+			return true, nil
+		}
+	}
+	return false, nil
+}
+
+// SessionRequest is the body of POST /api/v1/session.
+type SessionRequest struct {
+	Token string `json:"token"`
+}
+
+// SessionReply says who is signed in and gives the session's CSRF token,
+// to be sent as the X-CSRF-Token header with every request that changes
+// something.
+type SessionReply struct {
+	ID    string `json:"id"`
+	Admin bool   `json:"admin"`
+	CSRF  string `json:"csrf"`
+}
+
+func (sv *Server) postSession(c echo.Context) error {
+	if o := c.Request().Header.Get("Origin"); o != "" {
+		u, err := url.Parse(o)
+		if err != nil || u.Host != c.Request().Host {
+			return jsonError(http.StatusForbidden, "sign-in from another site is refused")
+		}
+	}
+	addr := c.RealIP()
+	if sv.auth.blocked(addr) {
+		return jsonError(http.StatusTooManyRequests, "too many failed sign-ins from this address: wait a few seconds")
+	}
+	var req SessionRequest
+	if err := decodeJSON(c, &req); err != nil {
+		return err
+	}
+	id, err := sv.auth.check(strings.TrimSpace(req.Token))
+	if errors.Is(err, errBadToken) {
+		sv.auth.failed(addr)
+		return jsonError(http.StatusUnauthorized, "%v", err)
+	}
+	if err != nil {
+		return err
+	}
+	p, err := sv.auth.person(id)
+	if err != nil {
+		return jsonError(http.StatusUnauthorized, "the token's person is no longer in the project")
+	}
+	s := sv.auth.newSession(p.ID)
+	c.SetCookie(&http.Cookie{Name: sessionCookie, Value: s.id, Path: "/", HttpOnly: true,
+		SameSite: http.SameSiteStrictMode, Secure: c.Request().TLS != nil, Expires: s.expires})
+	return c.JSON(http.StatusOK, SessionReply{ID: p.ID, Admin: p.Admin, CSRF: s.csrf})
+}
+
+func (sv *Server) getSession(c echo.Context) error {
+	pr := who(c)
+	r := SessionReply{ID: pr.ID, Admin: pr.Admin}
+	if pr.Session != nil {
+		r.CSRF = pr.Session.csrf
+	}
+	return c.JSON(http.StatusOK, r)
+}
+
+func (sv *Server) deleteSession(c echo.Context) error {
+	pr := who(c)
+	if pr.Session != nil {
+		sv.auth.endSession(pr.Session.id)
+	}
+	c.SetCookie(&http.Cookie{Name: sessionCookie, Value: "", Path: "/", HttpOnly: true,
+		SameSite: http.SameSiteStrictMode, MaxAge: -1})
+	return c.JSON(http.StatusOK, map[string]any{"signed_out": true})
+}

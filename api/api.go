@@ -1,0 +1,235 @@
+// Package api is the HTTP service of a project: people fetch items to label
+// and send their answers; the team reads the project's state and runs rounds.
+// It is the only package that imports github.com/labstack/echo/v4.
+//
+// Everything is JSON under /api/v1 (described by the OpenAPI 3 document at
+// /api/v1/openapi.json); the embedded pages of package web are served at /,
+// /signin, /label and /board; Prometheus metrics at /metrics.
+//
+// Rules the service keeps:
+//
+//   - An item is handed out as a lease that expires (Config.LeaseTime). An
+//     item is never handed out beyond its target number of labels
+//     (Config.Redundancy) counting its labels and its live leases, never to
+//     a person who has labelled it, and returns to the pool when its lease
+//     expires.
+//   - A label is acknowledged (2xx) only after the transaction that wrote it
+//     has committed; concurrent labels share transactions (group commit). A
+//     label carries an idempotency key: sending it again returns the first
+//     answer and writes nothing.
+//   - People sign in with a token (`loop people add`), kept only as an
+//     argon2id hash. Annotators see items, the codebook and their own labels,
+//     never gold answers (outside the training), the consensus, machine
+//     labels or other people's labels. The team's routes need an admin
+//     token.
+//   - Pages use a cookie session with a CSRF token; API clients send the
+//     token as a bearer token. Bodies are size-limited, each person is
+//     rate-limited, and requests time out.
+//   - Images are served by item id only; the file path comes from the store.
+package api
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"net"
+	"net/http"
+	"sync"
+	"time"
+
+	"github.com/labstack/echo/v4"
+
+	"handoff/store"
+)
+
+// Config sets how the service runs. Zero values mean the defaults.
+type Config struct {
+	// LeaseTime is how long a person holds an item (default 10 minutes).
+	LeaseTime time.Duration
+	// Redundancy is the number of labels wanted per item (default 3).
+	Redundancy int
+	// Training and Quiz are the numbers of gold items shown as training
+	// (the answer is shown after each) and then as a quiz (answers never
+	// shown) before an annotator gets real work. Negative means none; 0
+	// means the defaults (3 and 5). Projects without gold skip both.
+	Training, Quiz int
+	// PassMark is the share of quiz answers that must match the gold answer
+	// (default 0.8).
+	PassMark float64
+	// Rate and Burst limit each person's requests: Rate per second on
+	// average, Burst at once (defaults 200 and 400).
+	Rate  float64
+	Burst int
+	// MaxBody limits JSON request bodies (default 64 KiB); MaxImport limits
+	// item, label and gold imports (default 256 MiB).
+	MaxBody, MaxImport int64
+	// RequestTimeout bounds the work of one ordinary request (default 30 s;
+	// imports and exports are bounded by the server's write timeout).
+	RequestTimeout time.Duration
+	// TokenCache is how long a verified token is remembered (default 5 min).
+	TokenCache time.Duration
+	// SessionTime is how long a page session lasts (default 12 hours).
+	SessionTime time.Duration
+	// Seed seeds rounds run from the board.
+	Seed uint64
+	// BatchSize and BatchDelay tune group commit (see store.SetBatch);
+	// ≤ 0 keeps the defaults (1000 writes, 2 ms).
+	BatchSize  int
+	BatchDelay time.Duration
+	// Now gives the time (time.Now if nil); tests set it.
+	Now func() time.Time
+	// Logf, if set, receives one line per server event (not per request).
+	Logf func(format string, a ...any)
+}
+
+func (c *Config) defaults() {
+	if c.LeaseTime <= 0 {
+		c.LeaseTime = 10 * time.Minute
+	}
+	if c.Redundancy <= 0 {
+		c.Redundancy = 3
+	}
+	if c.Training == 0 {
+		c.Training = 3
+	}
+	if c.Quiz == 0 {
+		c.Quiz = 5
+	}
+	if c.Training < 0 {
+		c.Training = 0
+	}
+	if c.Quiz < 0 {
+		c.Quiz = 0
+	}
+	if c.PassMark <= 0 || c.PassMark > 1 {
+		c.PassMark = 0.8
+	}
+	if c.Rate <= 0 {
+		c.Rate = 200
+	}
+	if c.Burst <= 0 {
+		c.Burst = 400
+	}
+	if c.MaxBody <= 0 {
+		c.MaxBody = 64 << 10
+	}
+	if c.MaxImport <= 0 {
+		c.MaxImport = 256 << 20
+	}
+	if c.RequestTimeout <= 0 {
+		c.RequestTimeout = 30 * time.Second
+	}
+	if c.TokenCache <= 0 {
+		c.TokenCache = 5 * time.Minute
+	}
+	if c.SessionTime <= 0 {
+		c.SessionTime = 12 * time.Hour
+	}
+	if c.BatchDelay <= 0 {
+		c.BatchDelay = 2 * time.Millisecond
+	}
+	if c.Now == nil {
+		c.Now = time.Now
+	}
+	if c.Logf == nil {
+		c.Logf = func(string, ...any) {}
+	}
+}
+
+// Server is the HTTP service of one open project.
+type Server struct {
+	st      *store.Store
+	cfg     Config
+	e       *echo.Echo
+	pool    *pool
+	auth    *auth
+	metrics *metrics
+	rounds  *roundRunner
+
+	trMu  sync.Mutex
+	trSet *trainingSet // cached training split (nil: read gold again)
+
+	stop     chan struct{}
+	stopOnce sync.Once
+	wg       sync.WaitGroup
+}
+
+// New builds the service for an open store: it loads the work pool (items,
+// label counts, live leases) and starts the lease sweeper. Call Close when
+// done; the store stays open and is the caller's to close.
+func New(st *store.Store, cfg Config) (*Server, error) {
+	cfg.defaults()
+	st.SetBatch(cfg.BatchSize, cfg.BatchDelay)
+	sv := &Server{st: st, cfg: cfg, stop: make(chan struct{})}
+	sv.metrics = newMetrics()
+	p, err := newPool(st, cfg, sv.metrics)
+	if err != nil {
+		return nil, fmt.Errorf("loading the work pool: %w", err)
+	}
+	sv.pool = p
+	sv.auth = newAuth(st, cfg)
+	sv.rounds = newRoundRunner(sv)
+	sv.e = sv.routes()
+	sv.wg.Add(1)
+	go sv.sweep()
+	return sv, nil
+}
+
+// Handler returns the service's HTTP handler.
+func (sv *Server) Handler() http.Handler { return sv.e }
+
+// Close stops the lease sweeper and waits for a running round to finish.
+func (sv *Server) Close() {
+	sv.stopOnce.Do(func() { close(sv.stop) })
+	sv.wg.Wait()
+	sv.rounds.wait()
+}
+
+// sweep returns expired leases to the pool once a second and forgets
+// stored leases an hour after they expired (until then a late answer under
+// one is refused as expired rather than unknown).
+func (sv *Server) sweep() {
+	defer sv.wg.Done()
+	t := time.NewTicker(time.Second)
+	defer t.Stop()
+	for {
+		select {
+		case <-sv.stop:
+			return
+		case <-t.C:
+			old := sv.pool.expire(sv.cfg.Now())
+			if len(old) > 0 {
+				if err := sv.st.EndLeases(old); err != nil {
+					sv.cfg.Logf("forgetting %d old leases: %v", len(old), err)
+				}
+			}
+		}
+	}
+}
+
+// Serve answers requests on ln until ctx is done, then shuts down
+// gracefully (in-flight requests get up to 10 seconds).
+func (sv *Server) Serve(ctx context.Context, ln net.Listener) error {
+	hs := &http.Server{
+		Handler:           sv.e,
+		ReadHeaderTimeout: 10 * time.Second,
+		ReadTimeout:       5 * time.Minute,
+		WriteTimeout:      10 * time.Minute,
+		IdleTimeout:       2 * time.Minute,
+		MaxHeaderBytes:    64 << 10,
+	}
+	errc := make(chan error, 1)
+	go func() { errc <- hs.Serve(ln) }()
+	select {
+	case err := <-errc:
+		return err
+	case <-ctx.Done():
+		sctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+		defer cancel()
+		err := hs.Shutdown(sctx)
+		if e := <-errc; e != nil && !errors.Is(e, http.ErrServerClosed) && err == nil {
+			err = e
+		}
+		return err
+	}
+}
