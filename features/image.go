@@ -639,3 +639,20 @@ func sortNonNegative(x, tmp []float64) {
 		copy(x, src)
 	}
 }
+
+// CheckNames reports whether names (for example those stored with a model's
+// Scaler) are exactly this configuration's feature names in order, and if
+// not, where they first differ — so that a model file written by another
+// version of the features is refused instead of silently misread.
+func (c ImageConfig) CheckNames(names []string) error {
+	want := c.Names()
+	for j := 0; j < min(len(names), len(want)); j++ {
+		if names[j] != want[j] {
+			return fmt.Errorf("features: image feature %d is %q in the model but %q here; refit the model", j, names[j], want[j])
+		}
+	}
+	if len(names) != len(want) {
+		return fmt.Errorf("features: the model has %d image features, this configuration makes %d; refit the model", len(names), len(want))
+	}
+	return nil
+}

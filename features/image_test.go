@@ -396,3 +396,18 @@ func TestResizePaths(t *testing.T) {
 		}
 	}
 }
+
+func TestCheckNames(t *testing.T) {
+	c := DefaultImageConfig()
+	if err := c.CheckNames(c.Names()); err != nil {
+		t.Error(err)
+	}
+	other := c
+	other.HistBins = 8
+	if err := c.CheckNames(other.Names()); err == nil || !strings.Contains(err.Error(), "hist_8") {
+		t.Errorf("different bins: %v", err)
+	}
+	if err := c.CheckNames(c.Names()[:10]); err == nil {
+		t.Error("short list: want an error")
+	}
+}

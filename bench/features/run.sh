@@ -25,7 +25,7 @@ echo "texts: $(wc -l < "$work/texts.txt")" >&2
 
 go run ./bench/features -texts "$work/texts.txt" -images "$work/png" -n "${IMAGES:-2000}" > "$work/ours.json"
 cat "$work/ours.json" >&2
-$PY bench/features/peer.py "$work/texts.txt" "$work/png" > "$work/peer.json"
+OMP_NUM_THREADS=1 OPENBLAS_NUM_THREADS=1 $PY bench/features/peer.py "$work/texts.txt" "$work/png" > "$work/peer.json"
 cat "$work/peer.json" >&2
 $PY bench/features/report.py "$work/ours.json" "$work/peer.json" > bench/features/RESULTS.md
 cat bench/features/RESULTS.md
