@@ -146,13 +146,18 @@ func Clean(l *Labels, gold []int, r Rules) (*Labels, *Cleaning, error) {
 	g := groupByItem(l, true)
 	dropAnnotators := func(rule string, reasons map[int]string) (int, int) {
 		// One sweep over the labels for all annotators at once.
+		if len(reasons) == 0 {
+			return 0, 0
+		}
+		hit := make([]bool, l.NAnnotators)
+		for a := range reasons {
+			hit[a] = true
+		}
 		cnt := make(map[int]int, len(reasons))
 		for j := range n {
-			if a := int(l.Annotator[j]); cl.Keep[j] {
-				if _, ok := reasons[a]; ok {
-					cl.Keep[j] = false
-					cnt[a]++
-				}
+			if a := int(l.Annotator[j]); cl.Keep[j] && hit[a] {
+				cl.Keep[j] = false
+				cnt[a]++
 			}
 		}
 		as := make([]int, 0, len(reasons))
@@ -339,6 +344,10 @@ func Clean(l *Labels, gold []int, r Rules) (*Labels, *Cleaning, error) {
 			}
 		}
 		if len(cand) > 0 {
+			isCand := make([]bool, l.NAnnotators)
+			for a := range cand {
+				isCand[a] = true
+			}
 			agree := map[int][2]int{} // annotator → (consensus equals favourite, consensus defined)
 			row := make([]int32, k)
 			for j := range n {
@@ -346,10 +355,10 @@ func Clean(l *Labels, gold []int, r Rules) (*Labels, *Cleaning, error) {
 					continue
 				}
 				a := int(l.Annotator[j])
-				fav, ok := cand[a]
-				if !ok {
+				if !isCand[a] {
 					continue
 				}
+				fav := cand[a]
 				copy(row, counts[int(l.Item[j])*k:][:k])
 				row[l.Class[j]]-- // the others' labels only
 				best, nb, bc := int32(0), 0, -1
