@@ -99,7 +99,7 @@ func (c ImageConfig) Validate() error {
 var glcmAngles = []struct {
 	name   string
 	dx, dy int
-}{{"0", 1, 0}, {"45", 1, -1}, {"90", 0, -1}, {"135", -1, -1}}
+}{{"0", 1, 0}, {"45", 1, 1}, {"90", 0, 1}, {"135", -1, 1}} // scikit-image's angles; see GLCM
 
 // Names returns the feature names in column order.
 func (c ImageConfig) Names() []string {

@@ -152,7 +152,7 @@ func TestImageFeaturesOfKnownImages(t *testing.T) {
 
 	// The texture features are GLCMProps of the quantised image.
 	q := Quantize(GrayOf(grayImage(disk)), c.Levels)
-	p := GLCMProps(GLCM(q, 64, 64, 1, -1, c.Levels), c.Levels)
+	p := GLCMProps(GLCM(q, 64, 64, 1, 1, c.Levels), c.Levels)
 	if got := featureOf(t, c, row, "glcm_homogeneity_45"); got != p.Homogeneity {
 		t.Errorf("glcm_homogeneity_45 %v, GLCMProps %v", got, p.Homogeneity)
 	}
@@ -409,5 +409,48 @@ func TestCheckNames(t *testing.T) {
 	}
 	if err := c.CheckNames(c.Names()[:10]); err == nil {
 		t.Error("short list: want an error")
+	}
+}
+
+// TestDigitAgainstScikitImage checks GLCM properties at the four angles and
+// the Hu invariants of a real image — UCI digit row 0 (a zero) rendered by
+// RenderGray at scale 8 — against scikit-image 0.19.3 (Debian 12's
+// python3-skimage), computed once with:
+//
+//	d = rows[0,:64].reshape(8,8); b = floor(255*clip(d/16,0,1)+0.5)
+//	img = kron(b, ones((8,8)))/255; q = minimum((img*8).astype(uint8), 7)
+//	P = graycomatrix(q, [1], [0, pi/4, pi/2, 3*pi/4], levels=8, symmetric=True, normed=True)
+//	graycoprops(P, prop); moments_hu(moments_normalized(moments_central(img)))
+func TestDigitAgainstScikitImage(t *testing.T) {
+	px, labels := readDigits(t)
+	if labels[0] != 0 {
+		t.Fatalf("row 0 is a %d", labels[0])
+	}
+	g := GrayOf(RenderGray(px[0], 8, 8, 8))
+	q := Quantize(g, 8)
+	want := map[string][4]float64{
+		"contrast":      {1.0952380952, 1.5228017133, 0.4464285714, 1.4965986395},
+		"dissimilarity": {0.2777777778, 0.3935500126, 0.125, 0.3885109599},
+		"homogeneity":   {0.9278542602, 0.8936406656, 0.9623428228, 0.8946063544},
+		"ASM":           {0.2444708207, 0.2291914199, 0.2653041541, 0.2297088465},
+		"energy":        {0.4944399061, 0.4787394071, 0.5150768429, 0.4792795077},
+		"correlation":   {0.9010336035, 0.8625478772, 0.9595614594, 0.8649130362},
+	}
+	for a, ang := range glcmAngles {
+		p := GLCMProps(GLCM(q, g.W, g.H, ang.dx, ang.dy, 8), 8)
+		got := map[string]float64{"contrast": p.Contrast, "dissimilarity": p.Dissimilarity, "homogeneity": p.Homogeneity,
+			"ASM": p.ASM, "energy": p.Energy, "correlation": p.Correlation}
+		for name, w := range want {
+			if math.Abs(got[name]-w[a]) > 1e-9 {
+				t.Errorf("%s at %s°: %.10f, scikit-image %.10f", name, ang.name, got[name], w[a])
+			}
+		}
+	}
+	hu := HuMoments(g)
+	wantHu := []float64{4.1722666761e-01, 2.2369660931e-02, 1.5141816351e-03, 4.1940734493e-04, 3.1952953633e-07, 5.5605599382e-05, -9.8027224648e-08}
+	for k, w := range wantHu {
+		if relErr(hu[k], w) > 1e-6 {
+			t.Errorf("φ%d = %.10g, scikit-image %.10g", k+1, hu[k], w)
+		}
 	}
 }

@@ -78,9 +78,12 @@ func Quantize(g Gray, levels int) []uint8 {
 // quantised image q (levels 0..levels−1, row by row) at offset (dx, dy):
 // entry [a*levels+b] counts the pixel pairs p, p+(dx,dy) (both inside the
 // image) with levels (a, b), plus the same pairs reversed, so the matrix is
-// symmetric (Haralick, Shanmugam & Dinstein 1973). With y growing downwards,
-// the angles 0°, 45°, 90°, 135° at distance 1 are (1,0), (1,−1), (0,−1),
-// (−1,−1), as in scikit-image's graycomatrix.
+// symmetric (Haralick, Shanmugam & Dinstein 1973). Angles follow
+// scikit-image's graycomatrix, which pairs pixel (row r, column c) with
+// (r + round(d·sin θ), c + round(d·cos θ)): with y growing downwards, 0°, 45°,
+// 90°, 135° at distance 1 are (dx, dy) = (1,0), (1,1), (0,1), (−1,1). (On
+// symmetric matrices 90° is the same either way up, and scikit-image's 45°
+// and 135° are Haralick's 135° and 45°.)
 func GLCM(q []uint8, w, h, dx, dy, levels int) []float64 {
 	if len(q) != w*h {
 		panic(fmt.Sprintf("features: GLCM of %d pixels for a %d×%d image", len(q), w, h))

@@ -32,6 +32,17 @@ func TestGLCMHaralickFig2(t *testing.T) {
 			t.Errorf("%s: GLCM = %v, want %v", tc.angle, got, tc.want)
 		}
 	}
+	// The 45° and 135° directions follow scikit-image 0.19.3: graycomatrix of
+	// [[0,1],[2,3]] at distance 1 counts only the pair (0,3) at π/4 and only
+	// (1,2) at 3π/4 (run on Debian 12's python3-skimage); symmetric adds the
+	// reverse pairs.
+	two := []uint8{0, 1, 2, 3}
+	if got := GLCM(two, 2, 2, 1, 1, 4); got[0*4+3] != 1 || got[3*4+0] != 1 || sum(got) != 2 {
+		t.Errorf("45°: %v, want only (0,3) and (3,0)", got)
+	}
+	if got := GLCM(two, 2, 2, -1, 1, 4); got[1*4+2] != 1 || got[2*4+1] != 1 || sum(got) != 2 {
+		t.Errorf("135°: %v, want only (1,2) and (2,1)", got)
+	}
 	// Symmetric counts do not depend on the offset's sign.
 	if a, b := GLCM(haralickFig2, 4, 4, 1, -1, 4), GLCM(haralickFig2, 4, 4, -1, 1, 4); !reflect.DeepEqual(a, b) {
 		t.Errorf("45° counts differ by offset sign: %v vs %v", a, b)
@@ -108,6 +119,14 @@ func triangle(c, s, theta float64, v [3][2]float64) func(x, y float64) bool {
 		d1, d2, d3 := side(p[0], p[1], x, y), side(p[1], p[2], x, y), side(p[2], p[0], x, y)
 		return (d1 >= 0 && d2 >= 0 && d3 >= 0) || (d1 <= 0 && d2 <= 0 && d3 <= 0)
 	}
+}
+
+func sum(x []float64) float64 {
+	var s float64
+	for _, v := range x {
+		s += v
+	}
+	return s
 }
 
 func relErr(got, want float64) float64 { return math.Abs(got-want) / math.Abs(want) }
