@@ -14,7 +14,7 @@ const (
 	MethodDawidSkene  = "dawid-skene"
 	MethodOneCoin     = "one-coin"
 	defaultMaxIter    = 200
-	defaultTol        = 1e-6
+	defaultTol        = 1e-9
 	float32Threshold  = 1 << 22 // labels from which EM tables are held in float32
 	logFloorProb      = 1e-300  // probabilities below this count as this in logs
 	logFloorProbSmall = 1e-30   // the same for float32 tables
@@ -26,8 +26,9 @@ type Options struct {
 	Seed uint64
 	// MaxIter bounds the EM iterations (0 means 200).
 	MaxIter int
-	// Tol stops EM when the log-likelihood changes by less than Tol between
-	// iterations (0 means 1e-6; negative means run all MaxIter iterations).
+	// Tol stops EM when the log-likelihood changes by less than
+	// Tol·max(1, |log-likelihood|) between iterations, a relative change (0
+	// means 1e-9; negative means run all MaxIter iterations).
 	Tol float64
 	// Smoothing is a Dirichlet pseudo-count α ≥ 0 added to every cell of
 	// every confusion matrix and to every class of the prior (0: plain
@@ -69,7 +70,7 @@ type Result struct {
 
 	LogLik     float64 // EM: log-likelihood of the labels at the final parameters
 	Iterations int     // EM: number of E+M passes run
-	Converged  bool    // EM: |ΔLogLik| < Tol was reached
+	Converged  bool    // EM: |ΔLogLik| < Tol·max(1, |LogLik|) was reached
 }
 
 // Row returns item i's posterior (a view, not a copy).
@@ -227,7 +228,8 @@ func Majority(l *Labels, o Options) (*Result, error) {
 //
 // EM starts from each item's share of labels per class (their eq. 3.1), with
 // gold items clamped to their expert class throughout, and stops when the
-// log-likelihood Σ_i log Σ_k p_k Π π_a[k][c] changes by less than Tol or after
+// log-likelihood Σ_i log Σ_k p_k Π π_a[k][c] changes by less than
+// Tol·max(1, |log-likelihood|) or after
 // MaxIter passes. A zero probability enters the logs as 1e-300 (1e-30 when
 // the tables are held in float32, from 4,194,304 labels up), so every
 // posterior stays finite. The posterior returned is the E-step at the final

@@ -187,7 +187,7 @@ func emRun[F float](method string, l *Labels, o Options) (*Result, error) {
 		r.Iterations++
 		ll := s.sumLL()
 		s.mstep(method, o.Smoothing, nItems)
-		if math.Abs(ll-prev) < tol {
+		if math.Abs(ll-prev) < tol*max(1, math.Abs(ll)) {
 			r.Converged = true
 			break
 		}
