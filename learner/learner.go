@@ -265,8 +265,8 @@ type subset struct {
 	rows []int
 }
 
-func (s *subset) Rows() int                        { return len(s.rows) }
-func (s *subset) Cols() int                        { return s.m.Cols() }
+func (s *subset) Rows() int                      { return len(s.rows) }
+func (s *subset) Cols() int                      { return s.m.Cols() }
 func (s *subset) Row(i int) ([]int32, []float64) { return s.m.Row(s.rows[i]) }
 
 func subsetTargets(t [][]float64, rows []int) [][]float64 {

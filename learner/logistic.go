@@ -49,13 +49,14 @@ type Logistic struct {
 
 // LogisticModel is a fitted multinomial logistic regression.
 type LogisticModel struct {
-	Config     Logistic
-	K, D       int
-	W          []float64 // weights W_jc at [j*K+c], length D*K; Σ_c W_jc = 0
-	B          []float64 // intercepts b_c, length K; Σ_c b_c = 0
-	Objective  float64   // f(W, b) at the solution
-	Iterations int       // L-BFGS major iterations used
-	Status     string    // why the optimiser stopped
+	Config      Logistic
+	K, D        int
+	W           []float64 // weights W_jc at [j*K+c], length D*K; Σ_c W_jc = 0
+	B           []float64 // intercepts b_c, length K; Σ_c b_c = 0
+	Objective   float64   // f(W, b) at the solution
+	Iterations  int       // L-BFGS major iterations used
+	Evaluations int       // objective and gradient evaluations used
+	Status      string    // why the optimiser stopped
 }
 
 // Fit trains the logistic regression; see Learner for the rules on its
@@ -89,10 +90,13 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 		x0[d*k+c] = math.Log(o.mass[c] / o.wsum)
 	}
 	prob := optimize.Problem{Func: o.fn, Grad: o.grad}
+	// gonum's own gradient test is switched off (NaN) in favour of conv,
+	// which checks the same ∞-norm once per iteration.
 	settings := &optimize.Settings{
-		GradientThreshold: cfg.Tol * o.wsum,
+		GradientThreshold: math.NaN(),
 		MajorIterations:   cfg.MaxIter,
-		Converger:         &optimize.FunctionConverge{Relative: cfg.Tol * 1e-3, Iterations: 10},
+		Converger: &converger{gradTol: cfg.Tol * o.wsum,
+			f: optimize.FunctionConverge{Relative: cfg.Tol * 1e-3, Iterations: 10}},
 	}
 	res, err := optimize.Minimize(prob, x0, settings, &optimize.LBFGS{Store: cfg.Memory})
 	if res == nil {
@@ -115,11 +119,12 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 	}
 	m := &LogisticModel{
 		Config: cfg, K: k, D: d,
-		W:          append([]float64(nil), res.X[:d*k]...),
-		B:          append([]float64(nil), res.X[d*k:]...),
-		Objective:  res.F,
-		Iterations: res.Stats.MajorIterations,
-		Status:     status,
+		W:           append([]float64(nil), res.X[:d*k]...),
+		B:           append([]float64(nil), res.X[d*k:]...),
+		Objective:   res.F,
+		Iterations:  res.Stats.MajorIterations,
+		Evaluations: res.Stats.FuncEvaluations,
+		Status:      status,
 	}
 	// Softmax is unchanged by adding a constant to every class's score, so
 	// the unpenalised intercepts (and for λ = 0 the weights) are identified
@@ -130,6 +135,30 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 		centre(m.W[j*k : j*k+k])
 	}
 	return m, nil
+}
+
+// converger stops L-BFGS when max_j |g_j| < gradTol, or when f says the
+// objective has stopped improving.
+type converger struct {
+	gradTol float64
+	f       optimize.FunctionConverge
+}
+
+func (c *converger) Init(dim int) { c.f.Init(dim) }
+
+func (c *converger) Converged(loc *optimize.Location) optimize.Status {
+	var m float64
+	for _, v := range loc.Gradient {
+		if v > m {
+			m = v
+		} else if -v > m {
+			m = -v
+		}
+	}
+	if m < c.gradTol {
+		return optimize.GradientThreshold
+	}
+	return c.f.Converged(loc)
 }
 
 // centre subtracts the mean from v.
@@ -155,8 +184,11 @@ func (m *LogisticModel) PredictProbaInto(dst []float64, X features.Matrix) {
 	linearPredict(dst, X, m.K, m.D, m.W, m.B, 1, m.Config.Threads)
 }
 
-// logObjective evaluates f and ∇f. It keeps X twice, by rows (CSR) for the
-// scores and by columns (CSC) for X^T R, so both passes split without locks.
+// logObjective evaluates f and ∇f in one pass over the rows of X (CSR):
+// each row's scores, log-sum-exp and residual r_i = w_i (p_i − t_i) are
+// formed and at once scattered into the gradient, ∇_W += x_i r_iᵀ. Each of
+// the nthreads goroutines takes a block of rows and its own gradient buffer;
+// a second pass over the columns adds the buffers and the penalty λ W.
 type logObjective struct {
 	n, d, k  int
 	lambda   float64
@@ -165,19 +197,16 @@ type logObjective struct {
 	rowptr []int
 	rowcol []int32
 	rowval []float64
-
-	colptr []int
-	colrow []int32
-	colval []float64
-	colcut []int // column chunk boundaries balanced by entries
+	rowcut []int // row block boundaries, about equal entries per block
 
 	t    []float64 // targets, n*k
 	w    []float64 // weights, n
 	wsum float64
 	mass []float64 // Σ_i w_i t_ic
 
-	r    []float64 // residuals w_i (p_ic − t_ic), n*k
-	part [][]float64
+	gbuf [][]float64 // gradient buffers of goroutines 1..nthreads-1
+	part [][]float64 // per goroutine: intercept gradient (k) and loss
+	regs []float64
 
 	xc    []float64 // cached point
 	fc    float64
@@ -187,6 +216,9 @@ type logObjective struct {
 
 func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, k int, lambda float64, nthreads int) *logObjective {
 	n, d := X.Rows(), X.Cols()
+	if nthreads > n {
+		nthreads = n
+	}
 	o := &logObjective{n: n, d: d, k: k, lambda: lambda, nthreads: nthreads}
 	o.rowptr = make([]int, n+1)
 	nnz := 0
@@ -201,7 +233,6 @@ func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, 
 	}
 	o.rowcol = make([]int32, nnz)
 	o.rowval = make([]float64, nnz)
-	colcount := make([]int, d+1)
 	q := 0
 	for i := 0; i < n; i++ {
 		idx, val := X.Row(i)
@@ -214,35 +245,23 @@ func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, 
 				j = idx[p]
 			}
 			o.rowcol[q], o.rowval[q] = j, v
-			colcount[j+1]++
 			q++
 		}
 	}
-	for j := 0; j < d; j++ {
-		colcount[j+1] += colcount[j]
-	}
-	o.colptr = colcount
-	o.colrow = make([]int32, nnz)
-	o.colval = make([]float64, nnz)
-	next := append([]int(nil), o.colptr[:d]...)
-	for i := 0; i < n; i++ {
-		for p := o.rowptr[i]; p < o.rowptr[i+1]; p++ {
-			j := o.rowcol[p]
-			o.colrow[next[j]], o.colval[next[j]] = int32(i), o.rowval[p]
-			next[j]++
-		}
-	}
-	// Column chunks with about equal entries + columns.
-	o.colcut = []int{0}
-	total := nnz + d
+	// Row blocks with about equal (entries + rows).
+	o.rowcut = []int{0}
+	total := nnz + n
 	c := 1
-	for j := 0; j < d && c < nthreads; j++ {
-		if o.colptr[j+1]+j+1 >= c*total/nthreads {
-			o.colcut = append(o.colcut, j+1)
+	for i := 0; i < n && c < nthreads; i++ {
+		if o.rowptr[i+1]+i+1 >= c*total/nthreads {
+			o.rowcut = append(o.rowcut, i+1)
 			c++
 		}
 	}
-	o.colcut = append(o.colcut, d)
+	for len(o.rowcut) < nthreads+1 {
+		o.rowcut = append(o.rowcut, n)
+	}
+	o.rowcut[nthreads] = n
 
 	o.t = make([]float64, n*k)
 	o.w = make([]float64, n)
@@ -259,11 +278,15 @@ func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, 
 			o.mass[c] += w * v
 		}
 	}
-	o.r = make([]float64, n*k)
+	o.gbuf = make([][]float64, nthreads-1)
+	for i := range o.gbuf {
+		o.gbuf[i] = make([]float64, d*k)
+	}
 	o.part = make([][]float64, nthreads)
 	for i := range o.part {
-		o.part[i] = make([]float64, k+1)
+		o.part[i] = make([]float64, 2*k+1)
 	}
+	o.regs = make([]float64, nthreads)
 	o.gc = make([]float64, d*k+k)
 	o.xc = make([]float64, d*k+k)
 	return o
@@ -290,29 +313,30 @@ func (o *logObjective) grad(g, x []float64) {
 
 // eval returns f(x) and writes ∇f(x) into g.
 func (o *logObjective) eval(x, g []float64) float64 {
-	n, d, k := o.n, o.d, o.k
+	d, k, nt := o.d, o.k, o.nthreads
 	W, b := x[:d*k], x[d*k:]
-	nt := o.nthreads
-	if nt > n {
-		nt = n
-	}
 	var wg sync.WaitGroup
-	// Pass 1 over rows: residuals r_i = w_i (softmax(z_i) − t_i), the loss
-	// Σ_i w_i Σ_c t_ic (lse(z_i) − z_ic) and the intercept gradient Σ_i r_i.
+	// Pass 1 over rows: the loss Σ_i w_i Σ_c t_ic (lse(z_i) − z_ic), the
+	// intercept gradient Σ_i r_i and each block's X_blockᵀ R_block.
 	for c := 0; c < nt; c++ {
-		lo, hi := c*n/nt, (c+1)*n/nt
+		lo, hi := o.rowcut[c], o.rowcut[c+1]
 		part := o.part[c]
+		gw := g[:d*k]
+		if c > 0 {
+			gw = o.gbuf[c-1]
+		}
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
+			clear(gw)
 			clear(part)
+			gb, z := part[:k], part[k:2*k]
 			var loss float64
 			for i := lo; i < hi; i++ {
-				z := o.r[i*k : (i+1)*k]
 				copy(z, b)
-				for p := o.rowptr[i]; p < o.rowptr[i+1]; p++ {
-					j := int(o.rowcol[p])
-					axpy(z, o.rowval[p], W[j*k:j*k+k])
+				cols, vals := o.rowcol[o.rowptr[i]:o.rowptr[i+1]], o.rowval[o.rowptr[i]:o.rowptr[i+1]]
+				for p, j := range cols {
+					axpy(z, vals[p], W[int(j)*k:int(j)*k+k])
 				}
 				mx := z[0]
 				for _, v := range z[1:] {
@@ -320,67 +344,65 @@ func (o *logObjective) eval(x, g []float64) float64 {
 						mx = v
 					}
 				}
-				var s float64
-				for _, v := range z {
-					s += math.Exp(v - mx)
-				}
-				lse := mx + math.Log(s)
+				// Loss with the log-sum-exp shift: Σ_c t_c (mx − z_c) + log s.
 				t := o.t[i*k : (i+1)*k]
-				w := o.w[i]
-				var li float64
+				var s, li, ts float64
 				for c, v := range z {
 					if t[c] != 0 {
-						li += t[c] * (lse - v)
+						li += t[c] * (mx - v)
+						ts += t[c]
 					}
-					z[c] = w * (math.Exp(v-lse) - t[c])
-					part[c] += z[c]
+					e := math.Exp(v - mx)
+					z[c] = e
+					s += e
 				}
-				loss += w * li
+				w := o.w[i]
+				loss += w * (li + ts*math.Log(s))
+				ws := w / s
+				for c, e := range z {
+					r := ws*e - w*t[c]
+					z[c] = r
+					gb[c] += r
+				}
+				for p, j := range cols {
+					axpy(gw[int(j)*k:int(j)*k+k], vals[p], z)
+				}
 			}
-			part[k] = loss
+			part[2*k] = loss
 		}()
 	}
 	wg.Wait()
 	var f float64
-	for c := range b {
-		g[d*k+c] = 0
-	}
-	for _, part := range o.part[:nt] {
+	gb := g[d*k:]
+	clear(gb)
+	for _, part := range o.part {
 		for c := 0; c < k; c++ {
-			g[d*k+c] += part[c]
+			gb[c] += part[c]
 		}
-		f += part[k]
+		f += part[2*k]
 	}
-	// Pass 2 over columns: ∇_W = X^T R + λ W and the penalty λ/2 ‖W‖².
-	regs := make([]float64, len(o.colcut)-1)
-	for c := 0; c+1 < len(o.colcut); c++ {
-		lo, hi := o.colcut[c], o.colcut[c+1]
+	// Pass 2 over columns: ∇_W = Σ blocks + λ W and the penalty λ/2 ‖W‖².
+	for c := 0; c < nt; c++ {
+		lo, hi := c*d*k/nt, (c+1)*d*k/nt
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
+			gw := g[lo:hi]
+			for _, buf := range o.gbuf {
+				floats.Add(gw, buf[lo:hi])
+			}
 			var reg float64
-			lam := o.lambda
-			for j := lo; j < hi; j++ {
-				gj := g[j*k : j*k+k]
-				wj := W[j*k : j*k+k]
-				if lam != 0 {
-					for c, v := range wj {
-						gj[c] = lam * v
-						reg += v * v
-					}
-				} else {
-					clear(gj)
-				}
-				for p := o.colptr[j]; p < o.colptr[j+1]; p++ {
-					i := int(o.colrow[p])
-					axpy(gj, o.colval[p], o.r[i*k:i*k+k])
+			if lam := o.lambda; lam != 0 {
+				for p, v := range W[lo:hi] {
+					gw[p] += lam * v
+					reg += v * v
 				}
 			}
-			regs[c] = reg
+			o.regs[c] = reg
 		}()
 	}
 	wg.Wait()
-	for _, r := range regs {
+	for _, r := range o.regs {
 		f += 0.5 * o.lambda * r
 	}
 	return f
