@@ -402,7 +402,7 @@ func (sv *Server) postSession(c echo.Context) error {
 	}
 	s := sv.auth.newSession(p.ID)
 	c.SetCookie(&http.Cookie{Name: sessionCookie, Value: s.id, Path: "/", HttpOnly: true,
-		SameSite: http.SameSiteStrictMode, Secure: c.Request().TLS != nil, Expires: s.expires})
+		SameSite: http.SameSiteStrictMode, Secure: c.Request().TLS != nil, MaxAge: int(sv.cfg.SessionTime.Seconds())})
 	return c.JSON(http.StatusOK, SessionReply{ID: p.ID, Admin: p.Admin, CSRF: s.csrf})
 }
 

@@ -59,6 +59,8 @@ func newMetrics() *metrics {
 	for _, e := range []string{"granted", "answered", "skipped", "expired"} {
 		m.leases.WithLabelValues(e)
 	}
+	m.rounds.WithLabelValues("ok")
+	m.rounds.WithLabelValues("error")
 	return m
 }
 

@@ -1,0 +1,463 @@
+package api
+
+import (
+	"encoding/json"
+	"fmt"
+	"net/http"
+	"net/http/cookiejar"
+	"strings"
+	"sync"
+	"testing"
+	"time"
+
+	"handoff"
+)
+
+func TestLabelFlowAndRetry(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1}, 5, nil, 2)
+	lease, item := f.next("ann1")
+	if item != "t000" {
+		t.Fatalf("first item %q, want t000 (order of arrival)", item)
+	}
+	// Asking again while the lease is live gives the same lease.
+	if l2, i2 := f.next("ann1"); l2 != lease || i2 != item {
+		t.Errorf("second next = %s %s, want the live lease %s %s", l2, i2, lease, item)
+	}
+	r := f.label("ann1", lease, item, "roads", "k-1")
+	if r.status != http.StatusCreated {
+		t.Fatalf("label: %d %s", r.status, r.body)
+	}
+	var lr LabelReply
+	json.Unmarshal(r.body, &lr)
+	if lr.Duplicate || lr.Label.Class != "roads" || lr.Label.Annotator != "ann1" || lr.Progress.Labelled != 1 {
+		t.Errorf("reply %+v", lr)
+	}
+	// A retry with the same key returns the first answer and writes nothing.
+	before := f.snapshot()
+	r = f.label("ann1", lease, item, "roads", "k-1")
+	if r.status != http.StatusOK {
+		t.Fatalf("retry: %d %s", r.status, r.body)
+	}
+	var dup LabelReply
+	json.Unmarshal(r.body, &dup)
+	if !dup.Duplicate || dup.Number != lr.Number || !dup.Label.Time.Equal(lr.Label.Time) {
+		t.Errorf("retry reply %+v, want duplicate of %+v", dup, lr)
+	}
+	if after := f.snapshot(); after != before {
+		t.Errorf("retry changed the store:\n%s\n%s", before, after)
+	}
+	// The same key for a different answer is refused.
+	if r := f.label("ann1", lease, item, "rivers", "k-1"); r.status != http.StatusUnprocessableEntity {
+		t.Errorf("key reuse: %d %s", r.status, r.body)
+	}
+	labels, err := f.st.LabelsFor(item)
+	if err != nil || len(labels) != 1 {
+		t.Fatalf("labels of %s: %v %v", item, labels, err)
+	}
+	// Own labels only.
+	l2, i2 := f.next("ann2")
+	if r := f.label("ann2", l2, i2, "other", "x"); r.status != http.StatusCreated {
+		t.Fatalf("ann2 label: %d %s", r.status, r.body)
+	}
+	r = f.do("GET", "/api/v1/me/labels", "ann1", nil)
+	var mine struct{ Labels []handoff.Label }
+	json.Unmarshal(r.body, &mine)
+	if len(mine.Labels) != 1 || mine.Labels[0].Annotator != "ann1" {
+		t.Errorf("ann1's labels: %s", r.body)
+	}
+	// The next item for ann1 is a new one, never the one labelled.
+	if _, i := f.next("ann1"); i == item || i == "" {
+		t.Errorf("ann1 got %q after labelling %q", i, item)
+	}
+	r = f.do("GET", "/api/v1/me", "ann1", nil)
+	var me MeReply
+	json.Unmarshal(r.body, &me)
+	if me.Progress.Labelled != 1 || me.Progress.Today != 1 || me.Training.State != "off" {
+		t.Errorf("me: %s", r.body)
+	}
+}
+
+// TestRedundancy checks that no item is handed out beyond its target
+// counting labels and live leases, that nobody gets an item twice, and that
+// expired leases return to the pool.
+func TestRedundancy(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: 2, LeaseTime: time.Minute}, 3, nil, 6)
+	got := map[string]string{}
+	for _, a := range []string{"ann1", "ann2", "ann3", "ann4", "ann5", "ann6"} {
+		_, item := f.next(a)
+		got[a] = item
+	}
+	want := map[string]string{"ann1": "t000", "ann2": "t000", "ann3": "t001", "ann4": "t001", "ann5": "t002", "ann6": "t002"}
+	for a, it := range want {
+		if got[a] != it {
+			t.Errorf("%s got %q, want %q (all: %v)", a, got[a], it, got)
+		}
+	}
+	// Everything is taken: a seventh person gets nothing.
+	f.addPersonLive("ann7")
+	if l, it := f.next("ann7"); l != "" {
+		t.Errorf("ann7 got %s while all items are at their target", it)
+	}
+	// After the leases expire the items return to the pool.
+	f.clock.Add(61 * time.Second)
+	f.sv.pool.expire(f.clock.Now())
+	if _, it := f.next("ann7"); it != "t000" {
+		t.Errorf("after expiry ann7 got %q, want t000", it)
+	}
+	// A late answer under an expired lease is refused with 410 and stores
+	// nothing.
+	before := len(mustLabels(t, f))
+	r := f.label("ann1", "nonexistent", "t000", "roads", "late")
+	if r.status != http.StatusConflict {
+		t.Errorf("unknown lease: %d %s", r.status, r.body)
+	}
+	if n := len(mustLabels(t, f)); n != before {
+		t.Errorf("labels %d → %d", before, n)
+	}
+}
+
+func (f *fixture) addPersonLive(id string) { f.addPerson(id, false) }
+
+func mustLabels(t *testing.T, f *fixture) []handoff.Label {
+	t.Helper()
+	l, err := f.st.Labels()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return l
+}
+
+// TestConcurrentAnnotators runs many annotators at once until the pool is
+// empty: every item ends with exactly Redundancy labels from different
+// people, and every acknowledged label is stored once.
+func TestConcurrentAnnotators(t *testing.T) {
+	const items, people, redundancy = 40, 12, 3
+	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: redundancy}, items, nil, people)
+	var wg sync.WaitGroup
+	var mu sync.Mutex
+	acked := 0
+	for p := 1; p <= people; p++ {
+		wg.Add(1)
+		go func(a string) {
+			defer wg.Done()
+			for k := 0; ; k++ {
+				lease, item := f.next(a)
+				if lease == "" {
+					return
+				}
+				r := f.label(a, lease, item, testCodebook.Classes[k%3].Key, fmt.Sprintf("%s-%d", a, k))
+				if r.status != http.StatusCreated {
+					t.Errorf("%s: %d %s", a, r.status, r.body)
+					return
+				}
+				mu.Lock()
+				acked++
+				mu.Unlock()
+			}
+		}(fmt.Sprintf("ann%d", p))
+	}
+	wg.Wait()
+	labels := mustLabels(t, f)
+	if len(labels) != acked || acked != items*redundancy {
+		t.Fatalf("%d labels stored, %d acknowledged, want %d", len(labels), acked, items*redundancy)
+	}
+	seen := map[string]bool{}
+	perItem := map[string]int{}
+	for _, l := range labels {
+		k := l.Item + "/" + l.Annotator
+		if seen[k] {
+			t.Errorf("%s labelled %s twice", l.Annotator, l.Item)
+		}
+		seen[k] = true
+		perItem[l.Item]++
+	}
+	for it, n := range perItem {
+		if n != redundancy {
+			t.Errorf("%s has %d labels", it, n)
+		}
+	}
+	if st := f.sv.pool.status(); st.OpenItems != 0 || st.LiveLeases != 0 {
+		t.Errorf("pool after the run: %+v", st)
+	}
+}
+
+func TestRestartKeepsLeases(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: 1}, 3, nil, 2)
+	lease, item := f.next("ann1")
+	// A second server on the same store (as after a restart) knows the
+	// lease: ann2 does not get the item, and ann1's answer is accepted.
+	f.ts.Close()
+	f.sv.Close()
+	sv, err := New(f.st, Config{Training: -1, Quiz: -1, Redundancy: 1, Now: f.clock.Now})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer sv.Close()
+	g, err := sv.pool.next("ann2", f.clock.Now())
+	if err != nil || g.itemID == item {
+		t.Fatalf("after restart ann2 got %q (%v); ann1 holds %q", g.itemID, err, item)
+	}
+	g, err = sv.pool.next("ann1", f.clock.Now())
+	if err != nil || !g.renewed || g.lease.id != lease {
+		t.Fatalf("after restart ann1's lease %+v, want %s", g, lease)
+	}
+}
+
+func TestSkipAndUnsure(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: 1}, 3, nil, 2)
+	lease, item := f.next("ann1")
+	r := f.do("POST", "/api/v1/leases/"+lease+"/skip", "ann1", SkipRequest{Reason: "unsure"})
+	if r.status != http.StatusOK {
+		t.Fatalf("skip: %d %s", r.status, r.body)
+	}
+	// The skipped item goes to someone else, not back to ann1.
+	if _, it := f.next("ann1"); it == item {
+		t.Errorf("ann1 got the skipped item %s again", item)
+	}
+	if _, it := f.next("ann2"); it != item {
+		t.Errorf("ann2 got %q, want the skipped %q", it, item)
+	}
+	r = f.do("GET", "/api/v1/unsure", "boss", nil)
+	if !strings.Contains(string(r.body), `"item":"`+item+`","people":1`) {
+		t.Errorf("unsure list: %s", r.body)
+	}
+	// Someone else's lease cannot be skipped.
+	l2, _ := f.next("ann2")
+	if r := f.do("POST", "/api/v1/leases/"+l2+"/skip", "ann1", SkipRequest{Reason: "skip"}); r.status != http.StatusNotFound {
+		t.Errorf("skipping another's lease: %d %s", r.status, r.body)
+	}
+}
+
+// TestTraining walks through the training (answers shown) and the quiz
+// (answers never shown): real work opens only after a passed quiz.
+func TestTraining(t *testing.T) {
+	gold := []handoff.Gold{{Item: "t000", Class: "rivers"}, {Item: "t001", Class: "roads"},
+		{Item: "t002", Class: "other"}, {Item: "t003", Class: "rivers"}}
+	f := newFixture(t, Config{Training: 2, Quiz: 2, PassMark: 1}, 8, gold, 1)
+	if r := f.do("GET", "/api/v1/next", "ann1", nil); r.status != http.StatusForbidden || r.json(t)["code"] != "training_required" {
+		t.Fatalf("next before training: %d %s", r.status, r.body)
+	}
+	answer := func(item, label string) TrainingFeedback {
+		t.Helper()
+		r := f.do("POST", "/api/v1/training/answers", "ann1", TrainingAnswer{Item: item, Label: label})
+		if r.status != http.StatusOK {
+			t.Fatalf("answer %s: %d %s", item, r.status, r.body)
+		}
+		var fb TrainingFeedback
+		json.Unmarshal(r.body, &fb)
+		return fb
+	}
+	fb := answer("t000", "roads")
+	if fb.Correct == nil || *fb.Correct || fb.Expected == nil || fb.Expected.Key != "rivers" {
+		t.Errorf("training feedback %+v", fb)
+	}
+	fb = answer("t001", "roads")
+	if fb.Next.State != "quiz" || fb.Next.Item.ID != "t002" {
+		t.Errorf("after training: %+v", fb.Next)
+	}
+	// Quiz: no feedback on the answer.
+	fb = answer("t002", "other")
+	if fb.Correct != nil || fb.Expected != nil {
+		t.Errorf("quiz feedback shows the answer: %+v", fb)
+	}
+	fb = answer("t003", "roads") // wrong: fails at pass mark 1
+	if fb.Next.State != "failed" || fb.Next.QuizCorrect != 1 {
+		t.Errorf("after quiz: %+v", fb.Next)
+	}
+	if r := f.do("GET", "/api/v1/next", "ann1", nil); r.status != http.StatusForbidden {
+		t.Errorf("next after a failed quiz: %d", r.status)
+	}
+	if r := f.do("POST", "/api/v1/training/restart", "ann1", nil); r.status != http.StatusOK {
+		t.Fatalf("restart: %d %s", r.status, r.body)
+	}
+	answer("t000", "rivers")
+	answer("t001", "roads")
+	answer("t002", "other")
+	if fb := answer("t003", "rivers"); fb.Next.State != "passed" {
+		t.Fatalf("after a perfect quiz: %+v", fb.Next)
+	}
+	// Real work now, and never a gold item.
+	for {
+		lease, item := f.next("ann1")
+		if lease == "" {
+			break
+		}
+		if item <= "t003" {
+			t.Errorf("gold item %s handed out as work", item)
+		}
+		if r := f.label("ann1", lease, item, "other", item); r.status != http.StatusCreated {
+			t.Fatalf("label %s: %d", item, r.status)
+		}
+	}
+	if n := len(mustLabels(t, f)); n != 4 {
+		t.Errorf("%d labels, want 4 (items t004–t007; training answers are not labels)", n)
+	}
+}
+
+func TestSessionAndCSRF(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1}, 3, nil, 1)
+	jar, _ := cookiejar.New(nil)
+	cl := &http.Client{Jar: jar}
+	post := func(path, body string, hdr ...string) *http.Response {
+		req, _ := http.NewRequest("POST", f.ts.URL+path, strings.NewReader(body))
+		req.Header.Set("Content-Type", "application/json")
+		for i := 0; i+1 < len(hdr); i += 2 {
+			req.Header.Set(hdr[i], hdr[i+1])
+		}
+		resp, err := cl.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return resp
+	}
+	get := func(path string, hdr ...string) *http.Response {
+		req, _ := http.NewRequest("GET", f.ts.URL+path, nil)
+		for i := 0; i+1 < len(hdr); i += 2 {
+			req.Header.Set(hdr[i], hdr[i+1])
+		}
+		resp, err := cl.Do(req)
+		if err != nil {
+			t.Fatal(err)
+		}
+		return resp
+	}
+	if r := post("/api/v1/session", `{"token":"0123456789abcdef.nope"}`); r.StatusCode != http.StatusUnauthorized {
+		t.Errorf("bad token sign-in: %d", r.StatusCode)
+	}
+	if r := post("/api/v1/session", `{"token":"`+f.tokens["ann1"]+`"}`, "Origin", "http://evil.example"); r.StatusCode != http.StatusForbidden {
+		t.Errorf("cross-site sign-in: %d", r.StatusCode)
+	}
+	r := post("/api/v1/session", `{"token":"`+f.tokens["ann1"]+`"}`)
+	if r.StatusCode != http.StatusOK {
+		t.Fatalf("sign-in: %d", r.StatusCode)
+	}
+	var sr SessionReply
+	json.NewDecoder(r.Body).Decode(&sr)
+	r.Body.Close()
+	ck := r.Cookies()
+	if len(ck) != 1 || !ck[0].HttpOnly || ck[0].SameSite != http.SameSiteStrictMode {
+		t.Errorf("session cookie %+v", ck)
+	}
+	if r := get("/api/v1/next"); r.StatusCode != http.StatusForbidden {
+		t.Errorf("cookie request that changes something without CSRF header: %d", r.StatusCode)
+	}
+	if r := get("/api/v1/next", csrfHeader, "wrong"); r.StatusCode != http.StatusForbidden {
+		t.Errorf("wrong CSRF header: %d", r.StatusCode)
+	}
+	if r := get("/api/v1/next", csrfHeader, sr.CSRF); r.StatusCode != http.StatusOK {
+		t.Errorf("with CSRF header: %d", r.StatusCode)
+	}
+	if r := get("/api/v1/me"); r.StatusCode != http.StatusOK {
+		t.Errorf("read-only route with the cookie: %d", r.StatusCode)
+	}
+	if r := get("/api/v1/status", csrfHeader, sr.CSRF); r.StatusCode != http.StatusForbidden {
+		t.Errorf("annotator session on an admin route: %d", r.StatusCode)
+	}
+	req, _ := http.NewRequest("DELETE", f.ts.URL+"/api/v1/session", nil)
+	req.Header.Set(csrfHeader, sr.CSRF)
+	if resp, err := cl.Do(req); err != nil || resp.StatusCode != http.StatusOK {
+		t.Fatalf("sign out: %v %v", resp, err)
+	}
+	if r := get("/api/v1/me"); r.StatusCode != http.StatusUnauthorized {
+		t.Errorf("after sign-out: %d", r.StatusCode)
+	}
+}
+
+func TestRateLimit(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1, Rate: 0.001, Burst: 3}, 3, nil, 1)
+	for i := 0; i < 3; i++ {
+		if r := f.do("GET", "/api/v1/me", "ann1", nil); r.status != http.StatusOK {
+			t.Fatalf("request %d: %d", i, r.status)
+		}
+	}
+	r := f.do("GET", "/api/v1/me", "ann1", nil)
+	if r.status != http.StatusTooManyRequests || r.header.Get("Retry-After") == "" {
+		t.Errorf("fourth request: %d %s", r.status, r.body)
+	}
+	// Limits are per person.
+	if r := f.do("GET", "/api/v1/me", "boss", nil); r.status != http.StatusOK {
+		t.Errorf("another person: %d", r.status)
+	}
+}
+
+func TestAdminRoutes(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1}, 0, nil, 1)
+	r := f.do("POST", "/api/v1/items", "boss", "id,text\nd1,The river rose. The road closed.\nd2,A quiet day.\n",
+		"Content-Type", "text/csv")
+	if r.status != http.StatusOK || r.json(t)["added"] != 2.0 {
+		t.Fatalf("items: %d %s", r.status, r.body)
+	}
+	r = f.do("POST", "/api/v1/items?split=sentences", "boss", `{"id":"d3","text":"One. Two."}`+"\n", "Content-Type", "application/jsonl")
+	if r.status != http.StatusOK || r.json(t)["added"] != 2.0 {
+		t.Fatalf("split items: %d %s", r.status, r.body)
+	}
+	// A bad row refuses the whole import and names the line.
+	before := f.snapshot()
+	r = f.do("POST", "/api/v1/labels/import", "boss", "item,annotator,label\nd1,x,rivers\nd2,y,lakes\n", "Content-Type", "text/csv")
+	if r.status != http.StatusUnprocessableEntity || !strings.Contains(string(r.body), ":3") {
+		t.Errorf("bad label import: %d %s", r.status, r.body)
+	}
+	if f.snapshot() != before {
+		t.Error("a refused import changed the store")
+	}
+	r = f.do("POST", "/api/v1/labels/import", "boss", "item,annotator,label\nd1,x,rivers\nd2,y,roads\nd1,y,rivers\n", "Content-Type", "text/csv")
+	if r.status != http.StatusOK {
+		t.Fatalf("labels: %d %s", r.status, r.body)
+	}
+	// The pool counts imported labels.
+	if st := f.sv.pool.status(); st.WorkItems != 4 {
+		t.Errorf("pool %+v", st)
+	}
+	r = f.do("POST", "/api/v1/gold", "boss", "item,label\nd2,roads\n", "Content-Type", "text/csv")
+	if r.status != http.StatusOK {
+		t.Fatalf("gold: %d %s", r.status, r.body)
+	}
+	if st := f.sv.pool.status(); st.WorkItems != 3 {
+		t.Errorf("gold item still handed out as work: %+v", st)
+	}
+	r = f.do("GET", "/api/v1/export/labels?format=csv", "boss", nil)
+	if r.status != http.StatusOK || !strings.HasPrefix(string(r.body), "item,annotator,label,time,seconds\nd1,x,rivers,,\n") {
+		t.Errorf("labels export: %d %q", r.status, r.body)
+	}
+	r = f.do("GET", "/api/v1/export?format=jsonl", "boss", nil)
+	if r.status != http.StatusOK || strings.Count(string(r.body), "\n") != 4 || !strings.Contains(string(r.body), `"source":"gold"`) {
+		t.Errorf("export: %d %s", r.status, r.body)
+	}
+	for _, p := range []string{"/api/v1/status", "/api/v1/labels-per-day", "/api/v1/people", "/api/v1/annotators",
+		"/api/v1/agreement", "/api/v1/rounds", "/api/v1/next-batch", "/api/v1/unsure"} {
+		if r := f.do("GET", p, "boss", nil); r.status != http.StatusOK {
+			t.Errorf("GET %s: %d %s", p, r.status, r.body)
+		}
+	}
+	r = f.do("POST", "/api/v1/people", "boss", PersonRequest{ID: "newcomer"})
+	if r.status != http.StatusCreated {
+		t.Fatalf("add person: %d %s", r.status, r.body)
+	}
+	f.tokens["newcomer"] = r.json(t)["token"].(string)
+	if r := f.do("GET", "/api/v1/me", "newcomer", nil); r.status != http.StatusOK {
+		t.Errorf("newcomer's token: %d %s", r.status, r.body)
+	}
+	if r := f.do("POST", "/api/v1/people", "boss", PersonRequest{ID: "newcomer"}); r.status != http.StatusConflict {
+		t.Errorf("adding a person twice: %d", r.status)
+	}
+}
+
+func TestMetrics(t *testing.T) {
+	f := newFixture(t, Config{Training: -1, Quiz: -1}, 3, nil, 1)
+	lease, item := f.next("ann1")
+	f.label("ann1", lease, item, "roads", "m1")
+	f.label("ann1", lease, item, "roads", "m1")
+	r := f.do("GET", "/metrics", "", nil)
+	for _, want := range []string{
+		`handoff_labels_received_total{outcome="stored"} 1`,
+		`handoff_labels_received_total{outcome="duplicate"} 1`,
+		`handoff_leases_total{event="granted"} 1`,
+		`handoff_leases_live 0`,
+		`handoff_http_request_duration_seconds_count{code="201",method="POST",route="/api/v1/labels"} 1`,
+		`handoff_round_duration_seconds`,
+	} {
+		if !strings.Contains(string(r.body), want) {
+			t.Errorf("metrics lack %q", want)
+		}
+	}
+}
