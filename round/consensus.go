@@ -24,8 +24,9 @@ type ConsensusConfig struct {
 	// Smoothing is the Dirichlet pseudo-count of the EM methods.
 	Smoothing float64 `json:"smoothing,omitempty"`
 	// Debias names a covariate whose strata carry a bias everyone shares
-	// ("" for none). Reference names the stratum taken as unbiased when
-	// there is no gold. Strata is the number of quantile bins for a numeric
+	// ("" for none). The bias is estimated against gold items, or, when
+	// Reference names a stratum, against that stratum (taken as unbiased,
+	// with the same true class mix everywhere) even if there is gold. Strata is the number of quantile bins for a numeric
 	// covariate with more than 12 distinct values (0 means 5); a covariate
 	// with at most 12 distinct values is taken value by value.
 	Debias    string `json:"debias,omitempty"`
@@ -308,6 +309,10 @@ func debias(p *project, cfg ConsensusConfig, res *crowd.Result, gold []int) (*De
 		if ref < 0 {
 			return nil, nil, fmt.Errorf("debias: reference stratum %q is not a value of %q (values: %s)", cfg.Reference, cfg.Debias, strings.Join(s.Names, ", "))
 		}
+	}
+	// A named reference stratum wins over gold: the user chose it.
+	if ref >= 0 {
+		gold = nil
 	}
 	if gold == nil && ref < 0 {
 		return nil, nil, fmt.Errorf("debias: the project has no gold, so name the stratum taken as unbiased with --reference-stratum (values of %q: %s)", cfg.Debias, strings.Join(s.Names, ", "))

@@ -46,7 +46,7 @@ func load(st *store.Store) (*project, error) {
 	for i, it := range p.items {
 		p.index[it.ID] = i
 	}
-	t, err := st.LabelTable()
+	t, err := st.LabelTable(true)
 	if err != nil {
 		return nil, fmt.Errorf("reading labels: %w", err)
 	}
@@ -81,8 +81,12 @@ func load(st *store.Store) (*project, error) {
 		l.Item = append(l.Item, it)
 		l.Annotator = append(l.Annotator, int32(t.Annotator[i]))
 		l.Class = append(l.Class, uint8(t.Class[i]))
-		l.Seconds = append(l.Seconds, t.Seconds[i])
-		l.Time = append(l.Time, t.Time[i])
+		if t.Seconds != nil {
+			l.Seconds = append(l.Seconds, t.Seconds[i])
+		}
+		if t.Time != nil {
+			l.Time = append(l.Time, t.Time[i])
+		}
 	}
 	p.labels = l
 	p.anns = t.AnnotatorIDs

@@ -1,0 +1,522 @@
+package round
+
+import (
+	"encoding/json"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"slices"
+	"strconv"
+
+	"handoff"
+	"handoff/features"
+	"handoff/learner"
+	"handoff/store"
+	"handoff/verdict"
+)
+
+// TrainConfig says how the machine is trained.
+type TrainConfig struct {
+	// Learner is logistic, bayes or forest; "" picks logistic for text and
+	// forest for images.
+	Learner string `json:"learner"`
+	// Kind is text or image: which items to train on; "" picks the kind
+	// most items of the project have.
+	Kind handoff.Kind `json:"kind"`
+	// Lambda is the logistic regression's L2 penalty (λ = 1/C); 0 means 0.1.
+	Lambda float64 `json:"lambda"`
+	// Folds is the number of grouped cross-validation folds (items of one
+	// parent stay in one fold); 0 means 5.
+	Folds int `json:"folds"`
+	// Trees is the forest's number of trees; 0 means 200.
+	Trees int `json:"trees,omitempty"`
+	// Text and Image configure the features; zero values take the
+	// defaults (word 1–2-grams, TF-IDF, min_df 2; 64×64 image features).
+	Text  *features.TextConfig  `json:"text,omitempty"`
+	Image *features.ImageConfig `json:"image,omitempty"`
+	Seed  uint64                `json:"seed"`
+}
+
+// CVMetrics are k-fold cross-validated figures, machine against consensus.
+type CVMetrics struct {
+	Folds     int     `json:"folds"`
+	Rows      int     `json:"rows"`
+	Accuracy  float64 `json:"accuracy"`
+	MacroF1   float64 `json:"macro_f1"`
+	ECEBefore float64 `json:"ece_before"` // out-of-fold, before temperature scaling
+	ECEAfter  float64 `json:"ece_after"`  // out-of-fold, after temperature scaling
+}
+
+// TrainReport says what was trained and how well it did.
+type TrainReport struct {
+	Version     string       `json:"version"`
+	Learner     string       `json:"learner"`
+	Kind        handoff.Kind `json:"kind"`
+	Rows        int          `json:"rows"`    // training items
+	Columns     int          `json:"columns"` // features
+	Classes     []string     `json:"classes"`
+	Missing     []string     `json:"missing,omitempty"` // classes with no training example
+	Temperature float64      `json:"temperature"`
+	CV          CVMetrics    `json:"cv"`
+	Fingerprint string       `json:"fingerprint"`
+	Skipped     int          `json:"skipped,omitempty"` // labelled items of another kind
+}
+
+// trained is a machine with its out-of-fold probabilities on its training
+// rows (for conflict picks) and its report.
+type trained struct {
+	m      *learner.Machine
+	rep    *TrainReport
+	rows   []int     // item positions trained on
+	oof    []float64 // len(rows)×K out-of-fold calibrated probabilities
+	design features.Matrix
+	all    features.Matrix // feature rows of every item of the kind (nil rows for other kinds), for selection
+}
+
+// Train fits the machine on the stored consensus of every labelled item that
+// is not held out, stores the model and returns its report.
+func Train(st *store.Store, cfg TrainConfig, source string) (*TrainReport, error) {
+	p, err := load(st)
+	if err != nil {
+		return nil, err
+	}
+	cs, _, err := StoredConsensus(st)
+	if err != nil {
+		return nil, err
+	}
+	s, err := loadState(st)
+	if err != nil {
+		return nil, err
+	}
+	post, nl := posteriorsOf(p, cs)
+	held := setOf(s.HeldOut)
+	var rows []int
+	for i := range p.items {
+		if (nl[i] > 0 || p.gold[i] >= 0) && !held[p.items[i].ID] {
+			rows = append(rows, i)
+		}
+	}
+	t, err := train(p, post, rows, cfg)
+	if err != nil {
+		return nil, err
+	}
+	t.m.Name = fmt.Sprintf("t%d-%s", s.Round, t.m.Fingerprint[:8])
+	t.rep.Version = t.m.Name
+	b, err := learner.MarshalMachine(t.m)
+	if err != nil {
+		return nil, err
+	}
+	if err := st.PutModel(t.m.Name, b, source); err != nil {
+		return nil, err
+	}
+	return t.rep, nil
+}
+
+// posteriorsOf lays the stored consensus out per item position.
+func posteriorsOf(p *project, cs []handoff.Consensus) ([]float64, []int) {
+	K := len(p.cb.Classes)
+	post := make([]float64, len(p.items)*K)
+	nl := make([]int, len(p.items))
+	for _, c := range cs {
+		i, ok := p.index[c.Item]
+		if !ok || len(c.Posterior) != K {
+			continue
+		}
+		copy(post[i*K:], c.Posterior)
+		nl[i] = c.Labels
+	}
+	return post, nl
+}
+
+func setOf(ids []string) map[string]bool {
+	m := make(map[string]bool, len(ids))
+	for _, id := range ids {
+		m[id] = true
+	}
+	return m
+}
+
+// projectKind is the kind most items have (text on a tie).
+func projectKind(p *project) handoff.Kind {
+	n := 0
+	for _, it := range p.items {
+		if it.Kind == handoff.KindImage {
+			n++
+		}
+	}
+	if 2*n > len(p.items) {
+		return handoff.KindImage
+	}
+	return handoff.KindText
+}
+
+// featurise fits the feature extraction on the training rows and returns it
+// with the feature rows of every item of the kind: all[i] is row i of the
+// returned matrix for item position i (other kinds get empty rows).
+func featurise(p *project, kind handoff.Kind, rows []int, cfg TrainConfig, m *learner.Machine) (features.Matrix, error) {
+	switch kind {
+	case handoff.KindText:
+		tc := features.DefaultTextConfig()
+		tc.MinDF = 2
+		if cfg.Text != nil {
+			tc = *cfg.Text
+		}
+		texts := make([]string, len(rows))
+		for j, i := range rows {
+			texts[j] = p.items[i].Text
+		}
+		v, err := tc.Fit(texts)
+		if err != nil {
+			return nil, fmt.Errorf("text features: %w", err)
+		}
+		m.Text = v
+		all := make([]string, len(p.items))
+		for i, it := range p.items {
+			if it.Kind == handoff.KindText {
+				all[i] = it.Text
+			}
+		}
+		return v.Transform(all), nil
+	case handoff.KindImage:
+		ic := features.DefaultImageConfig()
+		if cfg.Image != nil {
+			ic = *cfg.Image
+		}
+		var paths []string
+		var pos []int
+		for i, it := range p.items {
+			if it.Kind == handoff.KindImage {
+				paths = append(paths, it.Path)
+				pos = append(pos, i)
+			}
+		}
+		x, err := ic.TransformFiles(paths)
+		if err != nil {
+			return nil, fmt.Errorf("image features: %w", err)
+		}
+		// Fit the scaler on the training rows only.
+		at := make(map[int]int, len(pos))
+		for j, i := range pos {
+			at[i] = j
+		}
+		tr := &features.Dense{NRows: len(rows), NCols: x.NCols, Data: make([]float64, 0, len(rows)*x.NCols)}
+		for _, i := range rows {
+			_, v := x.Row(at[i])
+			tr.Data = append(tr.Data, v...)
+		}
+		sc, err := features.FitScaler(tr, ic.Names())
+		if err != nil {
+			return nil, fmt.Errorf("image features: %w", err)
+		}
+		m.Image, m.Scaler = &ic, sc
+		xs, err := sc.Transform(x)
+		if err != nil {
+			return nil, err
+		}
+		full := &features.Dense{NRows: len(p.items), NCols: x.NCols, Data: make([]float64, len(p.items)*x.NCols)}
+		for j, i := range pos {
+			_, v := xs.Row(j)
+			copy(full.Data[i*x.NCols:], v)
+		}
+		return full, nil
+	}
+	return nil, fmt.Errorf("unknown kind %q: want text or image", kind)
+}
+
+// train fits a machine on the items at rows with the consensus posterior as
+// soft targets, measures it by grouped k-fold cross-validation, fits the
+// temperature on the out-of-fold probabilities, and refits on all rows.
+func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, error) {
+	K := len(p.cb.Classes)
+	kind := cfg.Kind
+	if kind == "" {
+		kind = projectKind(p)
+	}
+	skipped := 0
+	kept := rows[:0:0]
+	for _, i := range rows {
+		if p.items[i].Kind == kind {
+			kept = append(kept, i)
+		} else {
+			skipped++
+		}
+	}
+	rows = kept
+	if len(rows) == 0 {
+		return nil, fmt.Errorf("%w: no labelled %s items to train on; label some items and run `loop consensus` first", ErrNothing, kind)
+	}
+	lname := cfg.Learner
+	if lname == "" {
+		lname = "logistic"
+		if kind == handoff.KindImage {
+			lname = "forest"
+		}
+	}
+	fit, err := learnerFor(lname, cfg)
+	if err != nil {
+		return nil, err
+	}
+	// Targets: the consensus posterior, gold as certain; only classes with
+	// some mass are modelled.
+	mass := make([]float64, K)
+	targets := make([][]float64, len(rows))
+	fp := make([]string, len(rows))
+	for j, i := range rows {
+		t := slices.Clone(post[i*K : (i+1)*K])
+		if g := p.gold[i]; g >= 0 {
+			clear(t)
+			t[g] = 1
+		}
+		for c, v := range t {
+			mass[c] += v
+		}
+		targets[j] = t
+		it := p.items[i]
+		fp[j] = it.ID + "\x1f" + it.Text + it.SHA256 + "\x1f" + fmt.Sprint(t)
+	}
+	var present []int
+	var missing []string
+	for c := range K {
+		if mass[c] > 1e-9 {
+			present = append(present, c)
+		} else {
+			missing = append(missing, p.cb.Classes[c].Key)
+		}
+	}
+	if len(present) < 2 {
+		return nil, fmt.Errorf("the training items all have one class (%v); a classifier needs at least two classes with examples", p.cb.Keys())
+	}
+	sub := make([][]float64, len(rows))
+	for j, t := range targets {
+		s := make([]float64, len(present))
+		sum := 0.0
+		for k, c := range present {
+			s[k] = t[c]
+			sum += t[c]
+		}
+		for k := range s {
+			s[k] /= sum
+		}
+		sub[j] = s
+	}
+	m := &learner.Machine{Kind: kind, Learner: lname, Classes: p.cb.Keys(), Present: present, Temperature: 1, Fingerprint: learner.Fingerprint(fp)}
+	all, err := featurise(p, kind, rows, cfg, m)
+	if err != nil {
+		return nil, err
+	}
+	X := learner.Subset(all, rows)
+	// Grouped k-fold: items of one parent stay together.
+	folds := cfg.Folds
+	if folds <= 0 {
+		folds = 5
+	}
+	groups := make([]string, len(rows))
+	for j, i := range rows {
+		groups[j] = p.items[i].Parent
+		if groups[j] == "" {
+			groups[j] = p.items[i].ID
+		}
+	}
+	fold := groupFolds(groups, folds, cfg.Seed)
+	kp := len(present)
+	oofRaw := make([]float64, len(rows)*kp)
+	nf := 0
+	for f := range folds {
+		var tr, te []int
+		for j := range rows {
+			if fold[j] == f {
+				te = append(te, j)
+			} else {
+				tr = append(tr, j)
+			}
+		}
+		if len(te) == 0 || len(tr) == 0 {
+			continue
+		}
+		trT := make([][]float64, len(tr))
+		for a, j := range tr {
+			trT[a] = sub[j]
+		}
+		mod, err := fit.Fit(learner.Subset(X, tr), trT, nil)
+		if err != nil {
+			// A fold may miss a class; fall back to no out-of-fold figure
+			// for it rather than failing the whole fit.
+			for _, j := range te {
+				copy(oofRaw[j*kp:(j+1)*kp], uniform(kp))
+			}
+			continue
+		}
+		nf++
+		pr := make([]float64, len(te)*kp)
+		mod.PredictProbaInto(pr, learner.Subset(X, te))
+		for a, j := range te {
+			copy(oofRaw[j*kp:(j+1)*kp], pr[a*kp:(a+1)*kp])
+		}
+	}
+	truth := make([]int, len(rows))
+	for j := range rows {
+		truth[j] = argmax(sub[j])
+	}
+	T := fitTemperature(oofRaw, truth, kp)
+	m.Temperature = T
+	before := calib(oofRaw, truth, kp, 1)
+	after := calib(oofRaw, truth, kp, T)
+	acc, f1 := accuracyF1(oofRaw, truth, kp, T)
+	final, err := fit.Fit(X, sub, nil)
+	if err != nil {
+		return nil, fmt.Errorf("training %s: %w", lname, err)
+	}
+	m.Model = final
+	rep := &TrainReport{
+		Learner: lname, Kind: kind, Rows: len(rows), Columns: all.Cols(), Classes: m.Classes, Missing: missing,
+		Temperature: T, Fingerprint: m.Fingerprint, Skipped: skipped,
+		CV: CVMetrics{Folds: nf, Rows: len(rows), Accuracy: acc, MacroF1: f1, ECEBefore: before, ECEAfter: after},
+	}
+	m.Metrics, _ = json.Marshal(rep.CV)
+	// Out-of-fold probabilities over all codebook classes, calibrated.
+	oof := make([]float64, len(rows)*K)
+	for j := range rows {
+		row := slices.Clone(oofRaw[j*kp : (j+1)*kp])
+		learner.Temper(row, T)
+		for a, c := range present {
+			oof[j*K+c] = row[a]
+		}
+	}
+	return &trained{m: m, rep: rep, rows: rows, oof: oof, design: X, all: all}, nil
+}
+
+func uniform(k int) []float64 {
+	u := make([]float64, k)
+	for i := range u {
+		u[i] = 1 / float64(k)
+	}
+	return u
+}
+
+// groupFolds assigns each row to one of k folds so that rows of one group
+// share a fold: the distinct groups, sorted, are shuffled with the seed and
+// dealt round-robin.
+func groupFolds(groups []string, k int, seed uint64) []int {
+	uniq := slices.Clone(groups)
+	slices.Sort(uniq)
+	uniq = slices.Compact(uniq)
+	rng := rand.New(rand.NewPCG(seed, 0x9e3779b97f4a7c15))
+	rng.Shuffle(len(uniq), func(i, j int) { uniq[i], uniq[j] = uniq[j], uniq[i] })
+	f := make(map[string]int, len(uniq))
+	for i, g := range uniq {
+		f[g] = i % k
+	}
+	out := make([]int, len(groups))
+	for i, g := range groups {
+		out[i] = f[g]
+	}
+	return out
+}
+
+// nll is the mean negative log-likelihood of the true classes under the
+// probabilities tempered by T.
+func nll(raw []float64, truth []int, k int, T float64) float64 {
+	s := 0.0
+	row := make([]float64, k)
+	for j, c := range truth {
+		copy(row, raw[j*k:(j+1)*k])
+		learner.Temper(row, T)
+		s -= math.Log(max(row[c], 1e-300))
+	}
+	return s / float64(len(truth))
+}
+
+// fitTemperature minimises the negative log-likelihood of the out-of-fold
+// probabilities over T ∈ [0.05, 20] by golden-section search on log T
+// (temperature scaling, Guo et al. 2017).
+func fitTemperature(raw []float64, truth []int, k int) float64 {
+	if len(truth) < 10 {
+		return 1
+	}
+	a, b := math.Log(0.05), math.Log(20)
+	g := (math.Sqrt(5) - 1) / 2
+	x1, x2 := b-g*(b-a), a+g*(b-a)
+	f1, f2 := nll(raw, truth, k, math.Exp(x1)), nll(raw, truth, k, math.Exp(x2))
+	for range 60 {
+		if f1 < f2 {
+			b, x2, f2 = x2, x1, f1
+			x1 = b - g*(b-a)
+			f1 = nll(raw, truth, k, math.Exp(x1))
+		} else {
+			a, x1, f1 = x1, x2, f2
+			x2 = a + g*(b-a)
+			f2 = nll(raw, truth, k, math.Exp(x2))
+		}
+	}
+	T := math.Exp((a + b) / 2)
+	// Round so that the stored value is stable across platforms.
+	T, _ = strconv.ParseFloat(strconv.FormatFloat(T, 'g', 8, 64), 64)
+	return T
+}
+
+// calib returns the expected calibration error (15 bins) of tempered
+// probabilities.
+func calib(raw []float64, truth []int, k int, T float64) float64 {
+	conf := make([]float64, len(truth))
+	ok := make([]bool, len(truth))
+	row := make([]float64, k)
+	for j, c := range truth {
+		copy(row, raw[j*k:(j+1)*k])
+		learner.Temper(row, T)
+		b := argmax(row)
+		conf[j] = min(1, max(0, row[b]))
+		ok[j] = b == c
+	}
+	cal, err := verdict.Calibrate(conf, ok, 15)
+	if err != nil {
+		return 0
+	}
+	return cal.ECE
+}
+
+// accuracyF1 returns accuracy and macro-F1 of the argmax predictions.
+func accuracyF1(raw []float64, truth []int, k int, T float64) (float64, float64) {
+	tp := make([]float64, k)
+	fp := make([]float64, k)
+	fn := make([]float64, k)
+	right := 0
+	for j, c := range truth {
+		b := argmax(raw[j*k : (j+1)*k])
+		if b == c {
+			right++
+			tp[c]++
+		} else {
+			fp[b]++
+			fn[c]++
+		}
+	}
+	f1, n := 0.0, 0
+	for c := range k {
+		if tp[c]+fn[c] == 0 {
+			continue
+		}
+		n++
+		if tp[c] > 0 {
+			f1 += 2 * tp[c] / (2*tp[c] + fp[c] + fn[c])
+		}
+	}
+	if n > 0 {
+		f1 /= float64(n)
+	}
+	return float64(right) / float64(len(truth)), f1
+}
+
+// learnerFor returns the configured learner.
+func learnerFor(name string, cfg TrainConfig) (learner.Learner, error) {
+	switch name {
+	case "logistic":
+		lambda := cfg.Lambda
+		if lambda <= 0 {
+			lambda = 0.1
+		}
+		return learner.Logistic{Lambda: lambda}, nil
+	case "bayes":
+		return learner.Bayes{}, nil
+	}
+	return nil, fmt.Errorf("unknown learner %q: want logistic, bayes or forest", name)
+}
