@@ -469,4 +469,3 @@ func LatestMachine(st *store.Store) (*learner.Machine, *Result, error) {
 	}
 	return m, r, nil
 }
-

@@ -72,9 +72,9 @@ func runDemo(cmd *cobra.Command, dir string, seed uint64, maxRounds int, only st
 	imgDir := filepath.Join(dir, "images")
 	bar := newProgress(cmd, -1, "inventing the scenario")
 	d, err := sim.NewDemo(sim.DemoConfig{
-		Dir:      imgDir,
-		Text:     sim.TextConfig{Reports: 1000},
-		Images:   sim.ImageConfig{PerMagnification: 400},
+		Dir:           imgDir,
+		Text:          sim.TextConfig{Reports: 1000},
+		Images:        sim.ImageConfig{PerMagnification: 400},
 		Labelled:      0.4,
 		LabelsPerItem: 7,
 	}, seed)
