@@ -1,0 +1,199 @@
+package learner
+
+import (
+	"bufio"
+	"bytes"
+	"compress/gzip"
+	"encoding/csv"
+	"encoding/json"
+	"image/png"
+	"os"
+	"sort"
+	"strconv"
+	"testing"
+
+	"handoff/features"
+)
+
+// readJSONL reads the text and label fields of a JSON-lines file.
+func readJSONL(t *testing.T, path, textField, labelField string) (ids, texts []string, labels []int, keys []string) {
+	t.Helper()
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	var raw []string
+	sc := bufio.NewScanner(f)
+	sc.Buffer(make([]byte, 1<<20), 1<<20)
+	for sc.Scan() {
+		var rec map[string]any
+		if err := json.Unmarshal(sc.Bytes(), &rec); err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, rec["id"].(string))
+		texts = append(texts, rec[textField].(string))
+		raw = append(raw, rec[labelField].(string))
+	}
+	at := map[string]int{}
+	for _, l := range raw {
+		at[l] = 0
+	}
+	for l := range at {
+		keys = append(keys, l)
+	}
+	sort.Strings(keys)
+	for i, k := range keys {
+		at[k] = i
+	}
+	for _, l := range raw {
+		labels = append(labels, at[l])
+	}
+	return ids, texts, labels, keys
+}
+
+func pick[T any](xs []T, rows []int) []T {
+	out := make([]T, len(rows))
+	for i, r := range rows {
+		out[i] = xs[r]
+	}
+	return out
+}
+
+// Floors from CHECKS.md (our measurement with scikit-learn 1.2.1 as the
+// peer: TF-IDF word 1–2-grams, sublinear tf, min_df 2, LogisticRegression
+// C = 10 on a seeded 80/20 split): pkgdesc.jsonl 0.753, appdesc.jsonl 0.671.
+// Data: Debian 12 package index and AppStream metadata (testdata/README.md).
+// On sets this small the split moves accuracy by ±0.05, so we use the
+// peer's own split: testdata/learner/textsplits.json lists the test ids of
+// scikit-learn's train_test_split(test_size=0.2, random_state=0,
+// stratify=labels) and the peer's accuracy on it (0.7647 and 0.6710). We
+// must reach both the CHECKS.md floor and the peer's figure − 0.005.
+func TestTextAccuracyFloors(t *testing.T) {
+	var splits struct {
+		Splits map[string]struct {
+			Peer float64  `json:"peer_accuracy"`
+			Test []string `json:"test_ids"`
+		}
+	}
+	b, err := os.ReadFile("../testdata/learner/textsplits.json")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, &splits); err != nil {
+		t.Fatal(err)
+	}
+	cases := []struct {
+		file, text, label string
+		floor             float64
+	}{
+		{"pkgdesc.jsonl", "text", "section", 0.753},
+		{"appdesc.jsonl", "text", "category", 0.671},
+	}
+	for _, c := range cases {
+		ids, texts, y, keys := readJSONL(t, "../testdata/"+c.file, c.text, c.label)
+		sp := splits.Splits[c.file]
+		isTest := map[string]bool{}
+		for _, id := range sp.Test {
+			isTest[id] = true
+		}
+		var tr, te []int
+		for i, id := range ids {
+			if isTest[id] {
+				te = append(te, i)
+			} else {
+				tr = append(tr, i)
+			}
+		}
+		if len(te) != len(sp.Test) || len(te) == 0 {
+			t.Fatalf("%s: %d of %d test ids found", c.file, len(te), len(sp.Test))
+		}
+		cfg := features.DefaultTextConfig()
+		cfg.MinDF = 2
+		vec, err := cfg.Fit(pick(texts, tr))
+		if err != nil {
+			t.Fatal(err)
+		}
+		m, err := Logistic{Lambda: 0.1}.Fit(vec.Transform(pick(texts, tr)), oneHot(pick(y, tr), len(keys)), nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		p := m.PredictProba(vec.Transform(pick(texts, te)))
+		hit := 0
+		for i, r := range te {
+			if argmax(p[i]) == y[r] {
+				hit++
+			}
+		}
+		acc := float64(hit) / float64(len(te))
+		t.Logf("%s: %d train, %d test, %d classes: held-out accuracy %.4f (floor %.3f, peer on this split %.4f)", c.file, len(tr), len(te), len(keys), acc, c.floor, sp.Peer)
+		if acc < c.floor || acc < sp.Peer-0.005 {
+			t.Errorf("%s: held-out accuracy %.4f below the floor %.3f or the peer's %.4f − 0.005", c.file, acc, c.floor, sp.Peer)
+		}
+		// Naive Bayes on the same features must at least be far above chance.
+		nb, err := Bayes{Alpha: 0.1}.Fit(vec.Transform(pick(texts, tr)), oneHot(pick(y, tr), len(keys)), nil)
+		if err != nil {
+			t.Fatal(err)
+		}
+		q := nb.PredictProba(vec.Transform(pick(texts, te)))
+		hit = 0
+		for i, r := range te {
+			if argmax(q[i]) == y[r] {
+				hit++
+			}
+		}
+		t.Logf("%s: naive Bayes held-out accuracy %.4f", c.file, float64(hit)/float64(len(te)))
+	}
+}
+
+// CHECKS.md: hand-crafted features of the rendered UCI digits (Alpaydin &
+// Kaynak 1998; testdata/digits.csv.gz) must reach 0.90 accuracy in 5-fold
+// cross-validation. Each 8×8 digit is drawn as a 128×128 grey PNG, decoded
+// and featurised by package features, then a forest is cross-validated.
+func TestDigitsImageFeaturesForestCV(t *testing.T) {
+	if testing.Short() {
+		t.Skip("renders and featurises 1,797 images")
+	}
+	f, err := os.Open("../testdata/digits.csv.gz")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	z, err := gzip.NewReader(f)
+	if err != nil {
+		t.Fatal(err)
+	}
+	recs, err := csv.NewReader(z).ReadAll()
+	if err != nil {
+		t.Fatal(err)
+	}
+	names := make([]string, len(recs))
+	blobs := make([][]byte, len(recs))
+	y := make([]int, len(recs))
+	for i, r := range recs {
+		px := make([]float64, 64)
+		for j := range px {
+			v, _ := strconv.ParseFloat(r[j], 64)
+			px[j] = v / 16
+		}
+		y[i], _ = strconv.Atoi(r[64])
+		var b bytes.Buffer
+		if err := png.Encode(&b, features.RenderGray(px, 8, 8, 16)); err != nil {
+			t.Fatal(err)
+		}
+		names[i], blobs[i] = "digit"+strconv.Itoa(i)+".png", b.Bytes()
+	}
+	cfg := features.DefaultImageConfig()
+	X, err := cfg.TransformBytes(names, blobs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	res, err := CrossValidate(Forest{Trees: 100, Seed: 1}, X, oneHot(y, 10), nil, nil, 5, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("digits, %d image features, forest 5-fold: accuracy %.4f, macro-F1 %.4f, ECE %.4f", X.Cols(), res.Accuracy, res.MacroF1, res.ECE)
+	if res.Accuracy < 0.90 {
+		t.Errorf("5-fold accuracy %.4f below 0.90", res.Accuracy)
+	}
+}
