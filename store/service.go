@@ -398,3 +398,22 @@ func (s *Store) UnsureCounts() (map[string]int, error) {
 	})
 	return out, err
 }
+
+// Check runs bbolt's consistency check over the whole file (every page
+// reachable once, freelist and tree structure sound) and returns the first
+// problems found, joined, or nil for a clean file.
+func (s *Store) Check() error {
+	var errs []error
+	err := s.db.View(func(tx *bolt.Tx) error {
+		for e := range tx.Check() {
+			if len(errs) < 10 {
+				errs = append(errs, e)
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	return errors.Join(errs...)
+}
