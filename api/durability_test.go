@@ -109,7 +109,7 @@ func TestKillDuringLabelling(t *testing.T) {
 
 	type ack struct {
 		item, annotator, key string
-		number           float64
+		number               float64
 	}
 	var (
 		mu    sync.Mutex
