@@ -141,7 +141,7 @@ func (c *Codebook) Validate() error {
 }
 
 // Index returns the position of the class with the given key.
-func (c *Codebook) Index(key string) (int, bool) {
+func (c Codebook) Index(key string) (int, bool) {
 	for i, cl := range c.Classes {
 		if cl.Key == key {
 			return i, true
@@ -151,7 +151,7 @@ func (c *Codebook) Index(key string) (int, bool) {
 }
 
 // Keys returns the class keys in codebook order.
-func (c *Codebook) Keys() []string {
+func (c Codebook) Keys() []string {
 	k := make([]string, len(c.Classes))
 	for i, cl := range c.Classes {
 		k[i] = cl.Key
@@ -160,7 +160,7 @@ func (c *Codebook) Keys() []string {
 }
 
 // IsOrdinal reports whether the classes are ordered.
-func (c *Codebook) IsOrdinal() bool { return c.Scale == Ordinal }
+func (c Codebook) IsOrdinal() bool { return c.Scale == Ordinal }
 
 // Annotator is one person in the crowd. ID is what labels carry.
 type Annotator struct {
