@@ -59,7 +59,7 @@ func runEM(method string, l *Labels, o Options) (*Result, error) {
 func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 	k, n := l.NClasses, l.Len()
 	var z F
-	size := int(unsafeSizeof(z))
+	size := int(sizeOf(z))
 	bsz := blockBytes / (2 * k * k * size)
 	bsz = max(1, min(bsz, 65536/k))
 	s := &emState[F]{k: k, nA: l.NAnnotators, nI: l.NItems, bsz: bsz, gold: gold,
@@ -74,16 +74,16 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 			sorted = false
 		}
 	}
-	var perm []int32
+	var perm []int // int, not int32: more than 2³¹ labels may come unsorted
 	if !sorted {
 		start := make([]int, l.NItems+1)
 		for i, c := range s.nlab {
 			start[i+1] = start[i] + int(c)
 		}
-		perm = make([]int32, n)
+		perm = make([]int, n)
 		for j := 0; j < n; j++ {
 			i := l.Item[j]
-			perm[start[i]] = int32(j)
+			perm[start[i]] = j
 			start[i]++
 		}
 	}
@@ -100,7 +100,7 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 	for q := 0; q < n; q++ {
 		j := q
 		if perm != nil {
-			j = int(perm[q])
+			j = perm[q]
 		}
 		a := int(l.Annotator[j])
 		b := a / bsz
@@ -148,7 +148,7 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 	return s
 }
 
-func unsafeSizeof[F float](z F) uintptr {
+func sizeOf[F float](z F) uintptr {
 	if _, ok := any(z).(float32); ok {
 		return 4
 	}
