@@ -392,6 +392,9 @@ func Agree(l *Labels, o AgreementOptions) (*Agreement, error) {
 	if err := l.Check(); err != nil {
 		return nil, err
 	}
+	if l.Len() > math.MaxInt32 {
+		return nil, fmt.Errorf("crowd: Agree handles at most %d labels, have %d", math.MaxInt32, l.Len())
+	}
 	k := l.NClasses
 	if o.Values != nil && len(o.Values) != k {
 		return nil, fmt.Errorf("crowd: %d class values given for %d classes", len(o.Values), k)
