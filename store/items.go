@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"strings"
 
 	bolt "go.etcd.io/bbolt"
 
@@ -50,7 +51,7 @@ func (s *Store) ImportItems(source string, update bool, next func() (handoff.Ite
 				return false, err
 			}
 			if err := it.Validate(); err != nil {
-				return false, &DataError{Err: err}
+				return false, validationError(err)
 			}
 			val, err := encodeItem(&it)
 			if err != nil {
@@ -204,4 +205,14 @@ func itemIDs(tx *bolt.Tx) []string {
 		out[binary.BigEndian.Uint64(v)] = string(k)
 	}
 	return out
+}
+
+// validationError turns a handoff rule error ("text: empty text") into a
+// DataError naming the field.
+func validationError(err error) *DataError {
+	msg := err.Error()
+	if i := strings.Index(msg, ": "); i > 0 && !strings.Contains(msg[:i], " ") {
+		return &DataError{Field: msg[:i], Err: errors.New(msg[i+2:])}
+	}
+	return &DataError{Err: err}
 }

@@ -155,8 +155,8 @@ func TestItemsDuplicateAndUpdate(t *testing.T) {
 		upd[i].Text = "changed"
 	}
 	upd = append(upd, handoff.Item{ID: "bad", Kind: handoff.KindText, Text: " "})
-	if _, err := s.PutItems(upd, true, "bad update"); err == nil {
-		t.Fatal("update with an empty text succeeded")
+	if _, err := s.PutItems(upd, true, "bad update"); !errors.As(err, &de) || de.Field != "text" || de.Error() != `field "text": empty text` {
+		t.Fatalf("update with an empty text: %v", err)
 	}
 	it, _, _ = s.Item("i001")
 	if it.Text != "new" {

@@ -5,6 +5,10 @@
 //
 //	go run gen.go -n 1000000 > items.csv
 //	go run gen.go -n 1000000 -format jsonl > items.jsonl
+//	go run gen.go -n 1000000 -format labels > labels.csv
+//
+// Labels (item,annotator,label,seconds) name items r0000000…r(items-1) in
+// random order, by 50 annotators, classes a and b.
 package main
 
 import (
@@ -22,11 +26,19 @@ var words = []string{"river", "bank", "oil", "foam", "heron", "litter", "bottle"
 func main() {
 	n := flag.Int("n", 1_000_000, "number of items")
 	seed := flag.Uint64("seed", 1, "random seed")
-	format := flag.String("format", "csv", "csv or jsonl")
+	format := flag.String("format", "csv", "csv, jsonl or labels")
+	items := flag.Int("items", 1_000_000, "with -format labels: number of items labelled")
 	flag.Parse()
 	rng := rand.New(rand.NewPCG(*seed, 2))
 	w := bufio.NewWriterSize(os.Stdout, 1<<20)
 	defer w.Flush()
+	if *format == "labels" {
+		fmt.Fprintln(w, "item,annotator,label,seconds")
+		for i := 0; i < *n; i++ {
+			fmt.Fprintf(w, "r%07d,ann%02d,%c,%.1f\n", rng.IntN(*items), rng.IntN(50), "ab"[rng.IntN(2)], 1+rng.Float64()*30)
+		}
+		return
+	}
 	jsonl := *format == "jsonl"
 	if !jsonl {
 		fmt.Fprintln(w, "id,text,site,year")

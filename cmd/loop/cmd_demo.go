@@ -88,7 +88,6 @@ func runDemo(cmd *cobra.Command, dir string, seed uint64, maxRounds int, only st
 	particles.Seed = seed
 	particles.Consensus.Debias = "magnification"
 	particles.Consensus.Reference = "40"
-	particles.Train.Learner = "logistic"
 	reports.HeldOutShare, particles.HeldOutShare = 0.25, 0.25
 	// The demo team accepts up to 10% disagreement with the crowd among
 	// autolabelled items (a team sets its own; the default is 5%).

@@ -39,8 +39,9 @@
 //   - usageErrorf(…): a usage error, exit code 2. Any other error returned
 //     from RunE exits 1; errors from cobra's own parsing (unknown flag, wrong
 //     number of arguments) exit 2.
-//   - newProgress(cmd, max, desc), progressReader(…): a progress bar on stderr,
-//     silent when stdout is not a terminal or with --quiet.
+//   - newProgress(cmd, max, desc), progressFile(cmd, path, desc): a progress
+//     bar on stderr (the second counts the bytes read from a file), silent
+//     when stdout is not a terminal or with --quiet.
 //   - printJSON(cmd, v), outf(cmd, …): write to the command's stdout; infof
 //     writes notes that --quiet silences.
 //   - registerStatus(name, fn): add a section to `loop status` (text and
