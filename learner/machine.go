@@ -2,7 +2,6 @@ package learner
 
 import (
 	"bytes"
-	"compress/gzip"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -17,9 +16,9 @@ import (
 	"handoff/features"
 )
 
-// MachineFormat is the version of the machine file format this package
-// writes. A file with a larger version was written by a newer release and is
-// refused.
+// MachineFormat is the version of the machine part of a model file (the
+// feature configuration a Machine stores in File.Features). A file with a
+// larger version was written by a newer release and is refused.
 const MachineFormat = 1
 
 // Machine is a trained pipeline that labels items: the feature extraction
@@ -178,25 +177,50 @@ func (m *Machine) Label(items []handoff.Item) ([]handoff.MachineLabel, error) {
 	return out, nil
 }
 
-// machineFile is the on-disk form: the machine's fields, the model's
-// parameters, and the format version.
-type machineFile struct {
-	Format int `json:"format"`
-	*Machine
-	ModelData json.RawMessage `json:"model"`
+// machineFeatures is what a machine file carries in File.Features: how
+// items become rows, and the machine's own fields.
+type machineFeatures struct {
+	Format    int                      `json:"machine_format"`
+	Kind      handoff.Kind             `json:"kind"`
+	Classes   []string                 `json:"classes"`
+	Present   []int                    `json:"present"`
+	Text      *features.TextVectorizer `json:"text,omitempty"`
+	Image     *features.ImageConfig    `json:"image,omitempty"`
+	Scaler    *features.Scaler         `json:"scaler,omitempty"`
+	Metrics   json.RawMessage          `json:"metrics,omitempty"`
+	Version   string                   `json:"version"`
+	Threshold float64                  `json:"threshold,omitempty"`
 }
 
-// WriteMachine writes m as gzip-compressed JSON.
+// WriteMachine writes m as a model file (see File and Save): the fitted
+// model with the present classes' keys and its temperature, and, as the
+// file's feature configuration, the vectoriser or image configuration and
+// scaler, the codebook's keys and the machine's version and threshold.
 func WriteMachine(w io.Writer, m *Machine) error {
-	md, err := encodeModel(m.Learner, m.Model)
+	if m.Model == nil {
+		return errors.New("machine has no model")
+	}
+	feat, err := json.Marshal(machineFeatures{
+		Format: MachineFormat, Kind: m.Kind, Classes: m.Classes, Present: m.Present,
+		Text: m.Text, Image: m.Image, Scaler: m.Scaler, Metrics: m.Metrics,
+		Version: m.Name, Threshold: m.Cutoff,
+	})
 	if err != nil {
 		return err
 	}
-	zw := gzip.NewWriter(w)
-	if err := json.NewEncoder(zw).Encode(machineFile{Format: MachineFormat, Machine: m, ModelData: md}); err != nil {
+	keys := make([]string, len(m.Present))
+	for j, c := range m.Present {
+		keys[j] = m.Classes[c]
+	}
+	model := m.Model
+	if m.Temperature != 0 && m.Temperature != 1 {
+		model = &Calibrated{Base: model, Temperature: m.Temperature}
+	}
+	f, err := NewFile(model, keys, feat, m.Fingerprint, Metrics{Temperature: m.Temperature})
+	if err != nil {
 		return err
 	}
-	return zw.Close()
+	return Save(w, f)
 }
 
 // MarshalMachine returns the bytes WriteMachine writes.
@@ -211,31 +235,39 @@ func MarshalMachine(m *Machine) ([]byte, error) {
 // ReadMachine reads a machine written by WriteMachine (the file `loop model
 // export` writes). A file from a newer format is refused.
 func ReadMachine(r io.Reader) (*Machine, error) {
-	zr, err := gzip.NewReader(r)
-	if err != nil {
-		return nil, fmt.Errorf("not a model file (expected gzip-compressed JSON): %w", err)
-	}
-	var f machineFile
-	f.Machine = &Machine{}
-	if err := json.NewDecoder(zr).Decode(&f); err != nil {
-		return nil, fmt.Errorf("reading model file: %w", err)
-	}
-	if f.Format > MachineFormat {
-		return nil, fmt.Errorf("model file format %d is newer than this program understands (%d): upgrade loop", f.Format, MachineFormat)
-	}
-	if f.Format < 1 {
-		return nil, errors.New("model file has no format version; it was not written by loop")
-	}
-	m := f.Machine
-	if len(m.Classes) < 2 || len(m.Present) < 2 || m.Temperature <= 0 {
-		return nil, errors.New("model file is incomplete (classes, present classes or temperature missing)")
-	}
-	m.Model, err = decodeModel(m.Learner, f.ModelData)
+	f, err := Load(r, nil)
 	if err != nil {
 		return nil, err
 	}
-	if m.Model.Classes() != len(m.Present) {
-		return nil, fmt.Errorf("model file is inconsistent: the model has %d classes, the file lists %d", m.Model.Classes(), len(m.Present))
+	var mf machineFeatures
+	if err := json.Unmarshal(f.Features, &mf); err != nil {
+		return nil, fmt.Errorf("model file's feature configuration: %w", err)
+	}
+	if mf.Format > MachineFormat {
+		return nil, fmt.Errorf("model file's machine format %d is newer than this program understands (%d): upgrade loop", mf.Format, MachineFormat)
+	}
+	if mf.Format < 1 || len(mf.Classes) < 2 || len(mf.Present) != len(f.Classes) {
+		return nil, errors.New("model file holds a bare model without its features; it was not written by `loop model export`")
+	}
+	for j, c := range mf.Present {
+		if c < 0 || c >= len(mf.Classes) || mf.Classes[c] != f.Classes[j] {
+			return nil, errors.New("model file is inconsistent: its class keys do not match its feature configuration")
+		}
+	}
+	m := &Machine{
+		Kind: mf.Kind, Learner: f.Kind, Classes: mf.Classes, Present: mf.Present, Temperature: 1,
+		Text: mf.Text, Image: mf.Image, Scaler: mf.Scaler, Fingerprint: f.Fingerprint,
+		Metrics: mf.Metrics, Name: mf.Version, Cutoff: mf.Threshold,
+	}
+	if f.Temperature != 0 {
+		m.Temperature = f.Temperature
+	}
+	m.Model = f.Model()
+	if c, ok := m.Model.(*Calibrated); ok {
+		m.Model = c.Base // ProbaInto applies the temperature itself
+	}
+	if m.Model == nil {
+		return nil, errors.New("model file holds no model")
 	}
 	return m, nil
 }
@@ -273,27 +305,4 @@ func Fingerprint(rows []string) string {
 		h.Write([]byte{0})
 	}
 	return hex.EncodeToString(h.Sum(nil))
-}
-
-func encodeModel(kind string, m Model) (json.RawMessage, error) {
-	if m == nil {
-		return nil, errors.New("machine has no model")
-	}
-	return json.Marshal(m)
-}
-
-func decodeModel(kind string, data json.RawMessage) (Model, error) {
-	var m Model
-	switch kind {
-	case "logistic":
-		m = &LogisticModel{}
-	case "bayes":
-		m = &BayesModel{}
-	default:
-		return nil, fmt.Errorf("model file names learner %q, which this program does not know", kind)
-	}
-	if err := json.Unmarshal(data, m); err != nil {
-		return nil, fmt.Errorf("reading %s model: %w", kind, err)
-	}
-	return m, nil
 }

@@ -517,6 +517,12 @@ func learnerFor(name string, cfg TrainConfig) (learner.Learner, error) {
 		return learner.Logistic{Lambda: lambda}, nil
 	case "bayes":
 		return learner.Bayes{}, nil
+	case "forest":
+		trees := cfg.Trees
+		if trees <= 0 {
+			trees = 200
+		}
+		return learner.Forest{Trees: trees, Seed: cfg.Seed}, nil
 	}
 	return nil, fmt.Errorf("unknown learner %q: want logistic, bayes or forest", name)
 }
