@@ -67,7 +67,8 @@ type TextConfig struct {
 	// HashBits, when > 0, replaces the vocabulary by 2^HashBits signed
 	// buckets: a term whose FNV-1a 64-bit hash of its name is h goes to
 	// column h mod 2^HashBits with sign + if bit 63 of h is 0, else −.
-	// Signed weights of terms sharing a bucket add up. 1..30.
+	// Signed weights of terms sharing a bucket add up. 1..24 (2^24 buckets
+	// already need 128 MB of idf weights).
 	HashBits int `json:"hash_bits,omitempty"`
 	// IDF multiplies by the smoothed inverse document frequency (per bucket
 	// when hashing: df counts documents with any term in the bucket).
@@ -125,8 +126,8 @@ func (c TextConfig) Validate() error {
 	if c.MaxFeatures < 0 {
 		return fmt.Errorf("features: max_features %d is negative", c.MaxFeatures)
 	}
-	if c.HashBits < 0 || c.HashBits > 30 {
-		return fmt.Errorf("features: hash_bits %d: want 1..30, or 0 for a vocabulary", c.HashBits)
+	if c.HashBits < 0 || c.HashBits > 24 {
+		return fmt.Errorf("features: hash_bits %d: want 1..24, or 0 for a vocabulary", c.HashBits)
 	}
 	return nil
 }
