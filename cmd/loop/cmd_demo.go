@@ -30,6 +30,7 @@ func newDemoCmd() *cobra.Command {
 		seed   uint64
 		rounds int
 		only   string
+		small  bool
 	)
 	c := &cobra.Command{
 		Use:   "demo DIR",
@@ -59,22 +60,27 @@ rolled up. The data is invented for demonstration only.`,
 			if entries, err := os.ReadDir(dir); err == nil && len(entries) > 0 {
 				return fmt.Errorf("%s is not empty; give a new directory for the demo", dir)
 			}
-			return runDemo(cmd, dir, seed, rounds, only)
+			return runDemo(cmd, dir, seed, rounds, only, small)
 		},
 	}
 	c.Flags().Uint64Var(&seed, "seed", 1, "seed of the invented scenario and of every round")
 	c.Flags().IntVar(&rounds, "rounds", 5, "most rounds per project before giving up on GO")
 	c.Flags().StringVar(&only, "only", "", "build just one project: reports or particles")
+	c.Flags().BoolVar(&small, "small", false, "a small scenario, for quick checks")
 	return c
 }
 
-func runDemo(cmd *cobra.Command, dir string, seed uint64, maxRounds int, only string) error {
+func runDemo(cmd *cobra.Command, dir string, seed uint64, maxRounds int, only string, small bool) error {
 	imgDir := filepath.Join(dir, "images")
 	bar := newProgress(cmd, -1, "inventing the scenario")
+	reportsN, perMag := 1000, 400
+	if small {
+		reportsN, perMag = 250, 80
+	}
 	d, err := sim.NewDemo(sim.DemoConfig{
 		Dir:           imgDir,
-		Text:          sim.TextConfig{Reports: 1000},
-		Images:        sim.ImageConfig{PerMagnification: 400},
+		Text:          sim.TextConfig{Reports: reportsN},
+		Images:        sim.ImageConfig{PerMagnification: perMag},
 		Labelled:      0.4,
 		LabelsPerItem: 7,
 	}, seed)
