@@ -111,20 +111,32 @@ codebook, the crowd's labels and gold answers, and everything computed from them
 	for _, name := range sortedStrings(names) {
 		g := newGroup(name)
 		groups[name] = g
-		var examples []string
 		for _, f := range subcommands[name] {
-			sub := f()
-			g.AddCommand(sub)
-			examples = append(examples, sub.Example)
+			g.AddCommand(f())
 		}
-		g.Example = strings.Join(examples, "\n")
 		root.AddCommand(g)
 	}
 	for _, f := range commands {
 		root.AddCommand(f())
 	}
 	markRuntimeErrors(root)
+	fillGroupExamples(root)
 	return root
+}
+
+// fillGroupExamples gives a command that groups subcommands and has no
+// Example of its own the examples of its subcommands.
+func fillGroupExamples(c *cobra.Command) {
+	var examples []string
+	for _, sub := range c.Commands() {
+		fillGroupExamples(sub)
+		if sub.Example != "" {
+			examples = append(examples, sub.Example)
+		}
+	}
+	if c.Example == "" && len(examples) > 0 {
+		c.Example = strings.Join(examples, "\n")
+	}
 }
 
 func newGroup(name string) *cobra.Command {
