@@ -34,11 +34,13 @@ func (s *Store) chunk() int {
 	return DefaultImportChunk
 }
 
-// write runs fn in one write transaction, holding the store's write lock so
-// that it never interleaves with a chunked import.
+// write runs fn in one write transaction, holding the store's write lock
+// shared, so that it never interleaves with a chunked import. Any other
+// writer in this package (e.g. group commits with DB.Batch) must hold
+// s.wmu.RLock around its transaction for the same reason.
 func (s *Store) write(fn func(tx *bolt.Tx) error) error {
-	s.wmu.Lock()
-	defer s.wmu.Unlock()
+	s.wmu.RLock()
+	defer s.wmu.RUnlock()
 	return s.db.Update(fn)
 }
 

@@ -115,7 +115,10 @@ type Store struct {
 	dir  string
 	cb   handoff.Codebook
 	cbIx map[string]int
-	wmu  sync.Mutex // held by every write, for the whole of a chunked import
+	// wmu: a chunked import holds it exclusively for its whole run (so that
+	// its rollback cannot remove anyone else's writes); every other write
+	// holds it shared, so they still run as usual among themselves.
+	wmu sync.RWMutex
 
 	// ImportChunk is the number of records an import writes per
 	// transaction; DefaultImportChunk if ≤ 0.
