@@ -71,7 +71,7 @@ measured with GNU time. Target (issue 2): ≤ 60 s wall and ≤ 1 GB (1024 MB) p
 | failed import ($N items, then a duplicate id on the last row; exit $c3) | $w3 | $m3 | rolls back whole | status unchanged: $same |
 
 Load average when the run ended: $(cut -d' ' -f1-3 /proc/loadavg) (the machine is shared; wall times vary with it).
-Project file after the CSV import: $dbsize MB. \`loop status --json\` on it: $st (seconds, KB).
+Project file after the CSV import: $dbsize MB. \`loop status --json\` on it (after the labels run, so $N items and $N labels): $st (seconds, KB).
 Status: $status
 
 Peak RSS counts the pages of the project file that bbolt maps into memory; the Go
