@@ -204,8 +204,11 @@ func (st Stats) String() string {
 	s += fmt.Sprintf("labels: %d on %d items by %d annotators\n", st.Labels, st.LabelledItems, st.Annotators)
 	s += fmt.Sprintf("gold: %d\n", st.Gold)
 	s += "labels per item:"
-	for _, b := range st.LabelsPerItem {
-		s += fmt.Sprintf(" %d×%d", b.Labels, b.Items)
+	for i, b := range st.LabelsPerItem {
+		if i > 0 {
+			s += ","
+		}
+		s += fmt.Sprintf(" %d item(s) with %d", b.Items, b.Labels)
 	}
 	s += "\nlabels by class:"
 	for _, k := range st.Classes {

@@ -241,7 +241,7 @@ func TestImagesUpdateAndStatusText(t *testing.T) {
 		t.Errorf("image table: %s", out)
 	}
 	text := mustLoop(t, "status", proj)
-	for _, w := range []string{"items: 7 (text 4, image 3)", "labels: 2 on 2 items by 2 annotators", "gold: 1", "labels per item: 0×5 1×2"} {
+	for _, w := range []string{"items: 7 (text 4, image 3)", "labels: 2 on 2 items by 2 annotators", "gold: 1", "labels per item: 5 item(s) with 0, 2 item(s) with 1"} {
 		if !strings.Contains(text, w) {
 			t.Errorf("status text lacks %q:\n%s", w, text)
 		}
