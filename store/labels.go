@@ -84,6 +84,8 @@ func decodeLabel(v []byte, r *LabelRecord) error {
 // non-finite seconds stops the import and rolls it back whole (*DataError).
 // Annotators are created on first sight. Repeated labels (same item and
 // annotator) are kept: cleaning rules decide later what to do with them.
+// Times are stored to the nanosecond as UTC (read back in UTC); a time
+// outside the years 1678–2261 is refused.
 //
 // next is called inside the write transaction; it must not use the store.
 func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) (ImportResult, error) {
@@ -125,6 +127,9 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 			}
 			r.Seconds = l.Seconds
 			if !l.Time.IsZero() {
+				if y := l.Time.UTC().Year(); y < 1678 || y > 2261 {
+					return false, dataErr("time", "time %s is outside the years 1678–2261 that can be stored", l.Time.Format(time.RFC3339))
+				}
 				r.Time = l.Time.UnixNano()
 			}
 			a, err := ann.get(l.Annotator)

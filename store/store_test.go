@@ -295,6 +295,7 @@ func TestLabelsAndTable(t *testing.T) {
 		{"class not in codebook", handoff.Label{Item: "i001", Annotator: "new", Class: "zz"}, "label"},
 		{"empty annotator", handoff.Label{Item: "i001", Class: "a"}, "annotator"},
 		{"negative seconds", handoff.Label{Item: "i001", Annotator: "new", Class: "a", Seconds: -1}, "seconds"},
+		{"time out of range", handoff.Label{Item: "i001", Annotator: "new", Class: "a", Time: time.Date(1500, 1, 1, 0, 0, 0, 0, time.UTC)}, "time"},
 	}
 	for _, c := range bad {
 		t.Run(c.name, func(t *testing.T) {
