@@ -10,6 +10,7 @@ vet:
 
 unit:
 	$(GO) test ./...
+	cd beam && $(GO) vet ./... && $(GO) test ./...
 
 build:
 	$(GO) build -o bin/loop ./cmd/loop

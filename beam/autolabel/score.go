@@ -1,0 +1,181 @@
+package autolabel
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"strings"
+
+	"github.com/apache/beam/sdks/v2/go/pkg/beam"
+	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
+
+	"handoff"
+	"handoff/ingest"
+	"handoff/learner"
+)
+
+func init() {
+	register.DoFn5x1[context.Context, string, string, func(int, labelRows), func(int, peopleRows), error](&scoreFn{})
+	register.Emitter2[int, labelRows]()
+	register.Emitter2[int, peopleRows]()
+	beam.RegisterType(typeOf[labelRows]())
+	beam.RegisterType(typeOf[peopleRows]())
+}
+
+var (
+	cItems  = beam.NewCounter("autolabel", "items")
+	cLabels = beam.NewCounter("autolabel", "labelled")
+	cPeople = beam.NewCounter("autolabel", "for_people")
+)
+
+// scoreFn parses lines into items, collects them into batches of Batch
+// items within a bundle, scores each batch with one call to
+// learner.Machine.Label, and emits the rows of each batch grouped by output
+// shard: machine labels for confidence ≥ Threshold, items for people below.
+type scoreFn struct {
+	Model     string
+	Threshold float64
+	Images    bool
+	Batch     int
+	Shards    int
+
+	m     *learner.Machine
+	lines []string // JSONL records (text) or resolved paths (images)
+	ids   []string // image ids (the path as written)
+	files []string // the file each buffered line came from, for errors
+}
+
+// Setup loads the model once per worker process (shared by every
+// instance of the DoFn in it).
+func (f *scoreFn) Setup(ctx context.Context) error {
+	m, err := loadModel(ctx, f.Model)
+	if err != nil {
+		return err
+	}
+	f.m = m
+	return nil
+}
+
+func (f *scoreFn) StartBundle(ctx context.Context, _ func(int, labelRows), _ func(int, peopleRows)) {
+	f.lines, f.ids, f.files = f.lines[:0], f.ids[:0], f.files[:0]
+}
+
+func (f *scoreFn) ProcessElement(ctx context.Context, file, line string, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
+	t := strings.TrimSpace(line)
+	if t == "" {
+		return nil
+	}
+	if f.Images {
+		if strings.HasPrefix(t, "#") {
+			return nil
+		}
+		f.ids = append(f.ids, t)
+		t = resolve(file, t)
+	}
+	f.lines = append(f.lines, t)
+	f.files = append(f.files, file)
+	if len(f.lines) >= f.Batch {
+		return f.flush(ctx, emitL, emitP)
+	}
+	return nil
+}
+
+func (f *scoreFn) FinishBundle(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
+	return f.flush(ctx, emitL, emitP)
+}
+
+// items turns the buffered lines into items. Text records are parsed by
+// package ingest, the reader `loop items add` uses, so both accept and
+// refuse the same records.
+func (f *scoreFn) items() ([]handoff.Item, error) {
+	items := make([]handoff.Item, 0, len(f.lines))
+	if f.Images {
+		for i, p := range f.lines {
+			items = append(items, handoff.Item{ID: f.ids[i], Kind: handoff.KindImage, Path: p})
+		}
+		return items, nil
+	}
+	var buf bytes.Buffer
+	for _, l := range f.lines {
+		buf.WriteString(l)
+		buf.WriteByte('\n')
+	}
+	r, err := ingest.NewItemReader(&buf, "batch", ingest.JSONL, ingest.ItemOptions{})
+	if err != nil {
+		return nil, err
+	}
+	for {
+		it, err := r.Next()
+		if err == io.EOF {
+			break
+		}
+		if err != nil {
+			// Name the source file and the record rather than the
+			// line within the batch (textio does not keep line numbers).
+			var ie *ingest.Error
+			if errors.As(err, &ie) && ie.Line >= 1 && ie.Line <= len(f.lines) {
+				rec := f.lines[ie.Line-1]
+				if len(rec) > 80 {
+					rec = rec[:80] + "…"
+				}
+				if ie.Field != "" {
+					return nil, fmt.Errorf("%s: record %s: field %q: %w", f.files[ie.Line-1], rec, ie.Field, ie.Err)
+				}
+				return nil, fmt.Errorf("%s: record %s: %w", f.files[ie.Line-1], rec, ie.Err)
+			}
+			return nil, err
+		}
+		items = append(items, it)
+	}
+	if len(items) != len(f.lines) {
+		return nil, fmt.Errorf("autolabel: read %d items from %d records", len(items), len(f.lines))
+	}
+	return items, nil
+}
+
+func (f *scoreFn) flush(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
+	if len(f.lines) == 0 {
+		return nil
+	}
+	items, err := f.items()
+	if err != nil {
+		return err
+	}
+	ml, err := f.m.Label(items)
+	if err != nil {
+		return fmt.Errorf("autolabel: scoring %d items from %s: %w", len(items), f.files[0], err)
+	}
+	lab := make([][]Label, f.Shards)
+	ppl := make([][]ForPeople, f.Shards)
+	for i, l := range ml {
+		it := &items[i]
+		sh := shardOf(it.ID, f.Shards)
+		if l.Confidence >= f.Threshold {
+			lab[sh] = append(lab[sh], Label{Item: it.ID, Class: l.Class, Confidence: l.Confidence, Model: l.Model})
+			continue
+		}
+		ppl[sh] = append(ppl[sh], ForPeople{
+			ID: it.ID, Kind: string(it.Kind), Text: it.Text, Path: it.Path, Parent: it.Parent,
+			Position: int64(it.Position), Covariates: it.Covariates,
+			Class: l.Class, Confidence: l.Confidence, Model: l.Model,
+		})
+	}
+	var nl, np int64
+	for sh := range f.Shards {
+		if len(lab[sh]) > 0 {
+			emitL(sh, labelRows{Rows: lab[sh]})
+			nl += int64(len(lab[sh]))
+		}
+		if len(ppl[sh]) > 0 {
+			emitP(sh, peopleRows{Rows: ppl[sh]})
+			np += int64(len(ppl[sh]))
+		}
+	}
+	cItems.Inc(ctx, int64(len(items)))
+	cLabels.Inc(ctx, nl)
+	cPeople.Inc(ctx, np)
+	f.lines, f.ids, f.files = f.lines[:0], f.ids[:0], f.files[:0]
+	return nil
+}
