@@ -9,8 +9,15 @@
 // Every write method takes a source string saying who or what made the change
 // (a command line such as "loop items add items.csv", or a request such as
 // "api POST /labels by ann7"); it is recorded in the audit trail together with
-// the time and what changed. Each write method is one transaction: an import
-// either lands whole or changes nothing.
+// the time and what changed. An import either lands whole or changes
+// nothing: small writes are one transaction; item and label imports are
+// written in chunks of ImportChunk records (bounded memory for files of any
+// size) and removed again if a later chunk fails — or, if the process dies
+// half-way, by the next Open. While a chunked import runs, other writers in
+// the process wait, and readers may see the part written so far.
+//
+// Only one process can have the file open at a time (bbolt's file lock);
+// a second one gives up after a few seconds with a message saying so.
 //
 // Items and annotators get dense numbers (0, 1, 2, … in order of arrival) that
 // never change; labels refer to them by number, so that all labels can be read
