@@ -193,18 +193,32 @@ func consensusText(r *round.ConsensusReport, explain bool) string {
 			b.WriteString("\n")
 		}
 	}
+	var kept, gone []round.AnnotatorReport
+	for _, a := range r.Annotators {
+		if a.Labels > 0 {
+			kept = append(kept, a)
+		} else if a.Dropped > 0 {
+			gone = append(gone, a)
+		}
+	}
+	sortBy(kept, func(a, b round.AnnotatorReport) bool { return a.Reliability < b.Reliability })
 	b.WriteString("annotators (lowest reliability first):\n")
-	as := append([]round.AnnotatorReport(nil), r.Annotators...)
-	sortBy(as, func(a, b round.AnnotatorReport) bool { return a.Reliability < b.Reliability })
-	show := as
+	show := kept
 	if len(show) > 10 && !explain {
 		show = show[:10]
 	}
 	for _, a := range show {
 		fmt.Fprintf(&b, "  %-20s reliability %.3f  labels %d  dropped %d\n", a.ID, a.Reliability, a.Labels, a.Dropped)
 	}
-	if len(show) < len(as) {
-		fmt.Fprintf(&b, "  … %d more (--explain or --json lists all)\n", len(as)-len(show))
+	if len(show) < len(kept) {
+		fmt.Fprintf(&b, "  … %d more (--explain or --json lists all)\n", len(kept)-len(show))
+	}
+	if len(gone) > 0 {
+		ids := make([]string, len(gone))
+		for i, a := range gone {
+			ids[i] = a.ID
+		}
+		fmt.Fprintf(&b, "  dropped entirely by the cleaning rules: %s\n", strings.Join(ids, ", "))
 	}
 	return b.String()
 }

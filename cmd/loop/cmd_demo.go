@@ -221,7 +221,11 @@ func demoProjectRun(cmd *cobra.Command, d *sim.Demo, dir string, pr demoProject,
 		return "", err
 	}
 	outf(cmd, "  exported %d items to %s; rolled up %d parents; report %s\n", len(rows), exp, len(ps), html)
-	return fmt.Sprintf("%-10s %s", pr.name+":", rep.Headline()), nil
+	line := fmt.Sprintf("%-10s round %d %s", pr.name+":", res.Round, res.Verdict.Headline())
+	if rep.Audit != nil {
+		line += fmt.Sprintf("; audit error %.3f [%.3f, %.3f]", rep.Audit.Rate, rep.Audit.Lo, rep.Audit.Hi)
+	}
+	return line, nil
 }
 
 // demoAnswer has the simulated crowd label a batch and stores the labels.
