@@ -83,5 +83,13 @@ Imports are written in transactions of 50,000 records; a failure after some
 chunks have landed removes them again (and \`Open\` finishes the job if the process
 died), so memory stays flat however large the file while an import still lands
 whole or not at all.
+
+## Summary
+
+| figure | ours | peer | ratio | target | result |
+| --- | --- | --- | --- | --- | --- |
+| import $N text items (CSV): wall s / peak RSS MB | $w1 s, $m1 MB | none | — | ≤ 60 s, ≤ 1 GB | $(verdict "$w1" "$m1") |
+| import $N text items (JSONL): wall s / peak RSS MB | $w2 s, $m2 MB | none | — | ≤ 60 s, ≤ 1 GB | $(verdict "$w2" "$m2") |
+| failed import of $N items rolls back whole | status unchanged: $same | none | — | unchanged | $( [ "$same" = yes ] && echo pass || echo short ) |
 MD
 cat bench/import/RESULTS.md
