@@ -51,5 +51,12 @@ $cpn (k, n) pairs, n from 1 to 10,000; two-sided 95% interval and one-sided 95% 
 | --- | --- | --- | --- | --- | --- |
 | largest absolute difference | — | — | — | ≤ 1e-6 | $diff, $dpass |
 | seconds for all bounds | $cps | $pps | $ratio | — | (vectorised numpy vs a Go loop; for information) |
+
+## Summary
+
+| figure | ours | peer | ratio | target | result |
+| --- | --- | --- | --- | --- | --- |
+| GO verdicts whose autolabelled error exceeded max-error ($PROJECTS simulated projects) | $rate% of $go_ | plug-in rule $nrate% of $ngo | — | ≤ 5% | $pass |
+| Clopper–Pearson bounds, largest difference from scipy | $diff | scipy beta.ppf | — | ≤ 1e-6 | $dpass |
 MD
 cat bench/verdict/RESULTS.md
