@@ -369,6 +369,19 @@ func pick(p *project, cr *consensusResult, t *trained, proba []float64, kind han
 			pool.Proba[i] = proba[i*K : (i+1)*K]
 		}
 	}
+	if cfg.Strategy == selector.Committee && audit == 0 {
+		var rows []int
+		for i, st := range pool.State {
+			if st == selector.Unlabelled {
+				rows = append(rows, i)
+			}
+		}
+		c, err := committee(t, K, 5, rows, n, cfg.Seed)
+		if err != nil {
+			return nil, err
+		}
+		pool.Committee = c
+	}
 	var plan selector.Plan
 	var err error
 	if audit > 0 {

@@ -71,6 +71,8 @@ type trained struct {
 	oof    []float64 // len(rows)×K out-of-fold calibrated probabilities
 	design features.Matrix
 	all    features.Matrix // feature rows of every item of the kind (nil rows for other kinds), for selection
+	fit    learner.Learner // the learner, for a query-by-committee
+	sub    [][]float64     // training targets over the present classes
 }
 
 // Train fits the machine on the stored consensus of every labelled item that
@@ -382,7 +384,7 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 			oof[j*K+c] = row[a]
 		}
 	}
-	return &trained{m: m, rep: rep, rows: rows, oof: oof, design: X, all: all}, nil
+	return &trained{m: m, rep: rep, rows: rows, oof: oof, design: X, all: all, fit: fit, sub: sub}, nil
 }
 
 func uniform(k int) []float64 {
@@ -525,4 +527,41 @@ func learnerFor(name string, cfg TrainConfig) (learner.Learner, error) {
 		return learner.Forest{Trees: trees, Seed: cfg.Seed}, nil
 	}
 	return nil, fmt.Errorf("unknown learner %q: want logistic, bayes or forest", name)
+}
+
+// committee fits size models on bootstrap resamples of the training rows
+// (query-by-committee; Seung, Opper & Sompolinsky 1992, bagging as in Abe &
+// Mamitsuka 1998) and returns each member's calibrated probabilities over all
+// codebook classes for the items at rows of t.all; other items get nil.
+func committee(t *trained, K, size int, rows []int, n int, seed uint64) ([][][]float64, error) {
+	if t.fit == nil || t.design == nil {
+		return nil, fmt.Errorf("query-by-committee needs the training data: run `loop round DIR --strategy committee`")
+	}
+	rng := rand.New(rand.NewPCG(seed, 0xc0ffee))
+	out := make([][][]float64, size)
+	kp := len(t.m.Present)
+	X := learner.Subset(t.all, rows)
+	for m := range size {
+		boot := make([]int, len(t.rows))
+		tg := make([][]float64, len(t.rows))
+		for j := range boot {
+			boot[j] = rng.IntN(len(t.rows))
+			tg[j] = t.sub[boot[j]]
+		}
+		mod, err := t.fit.Fit(learner.Subset(t.design, boot), tg, nil)
+		if err != nil {
+			return nil, fmt.Errorf("committee member %d: %w (a bootstrap sample may miss a class; label more items)", m+1, err)
+		}
+		pr := make([]float64, len(rows)*kp)
+		mod.PredictProbaInto(pr, X)
+		out[m] = make([][]float64, n)
+		for a, i := range rows {
+			row := make([]float64, K)
+			for j, c := range t.m.Present {
+				row[c] = pr[a*kp+j]
+			}
+			out[m][i] = row
+		}
+	}
+	return out, nil
 }
