@@ -2,6 +2,7 @@ package main
 
 import (
 	"bufio"
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"strings"
@@ -72,5 +73,23 @@ func TestReadmeWalkthrough(t *testing.T) {
 		if !s.wantErr && code != 0 {
 			t.Errorf("%s: exit %d\n%s", s.line, code, errs)
 		}
+	}
+	// The demo workspace holds at least 2,000 items of both kinds, 10,000
+	// labels and 30 annotators (the foundation issue's promise).
+	code, out, errs := loop(t, "status", filepath.Join(tmp, "handoff-demo"), "--json")
+	if code != 0 {
+		t.Fatalf("status --json: exit %d\n%s", code, errs)
+	}
+	var ws struct {
+		Items       int            `json:"items"`
+		ItemsByKind map[string]int `json:"items_by_kind"`
+		Labels      int            `json:"labels"`
+		Annotators  int            `json:"annotators"`
+	}
+	if err := json.Unmarshal([]byte(out), &ws); err != nil {
+		t.Fatal(err)
+	}
+	if ws.Items < 2000 || ws.ItemsByKind["text"] == 0 || ws.ItemsByKind["image"] == 0 || ws.Labels < 10000 || ws.Annotators < 30 {
+		t.Errorf("demo workspace: %+v, want ≥ 2,000 items of both kinds, ≥ 10,000 labels, ≥ 30 annotators", ws)
 	}
 }
