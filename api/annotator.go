@@ -59,6 +59,9 @@ type LabelRequest struct {
 	Label          string  `json:"label"`
 	Seconds        float64 `json:"seconds,omitempty"`
 	IdempotencyKey string  `json:"idempotency_key,omitempty"` // or the Idempotency-Key header
+	// Next asks for the next item in the same reply (as GET /api/v1/next
+	// would give it), saving a round trip.
+	Next bool `json:"next,omitempty"`
 }
 
 // LabelReply acknowledges a stored label.
@@ -67,6 +70,7 @@ type LabelReply struct {
 	Duplicate bool          `json:"duplicate"`
 	Label     handoff.Label `json:"label"`
 	Progress  Progress      `json:"progress"`
+	Next      *NextReply    `json:"next,omitempty"` // when asked for
 }
 
 // SkipRequest is the body of POST /api/v1/leases/{id}/skip.
@@ -122,44 +126,52 @@ func (sv *Server) getMyLabels(c echo.Context) error {
 }
 
 func (sv *Server) getNext(c echo.Context) error {
-	pr := who(c)
+	nr, err := sv.nextFor(who(c))
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, nr)
+}
+
+// nextFor hands the next item to a person (or their live lease again).
+func (sv *Server) nextFor(pr *principal) (NextReply, error) {
 	if !pr.Admin {
 		ok, err := sv.trainingDone(pr.ID)
 		if err != nil {
-			return err
+			return NextReply{}, err
 		}
 		if !ok {
-			return codedError(http.StatusForbidden, "training_required", "finish the training and the quiz first (see /api/v1/training)")
+			return NextReply{}, codedError(http.StatusForbidden, "training_required", "finish the training and the quiz first (see /api/v1/training)")
 		}
 	}
 	now := sv.cfg.Now()
 	g, err := sv.pool.next(pr.ID, now)
 	if err != nil {
-		return err
+		return NextReply{}, err
 	}
 	if g.lease != nil && !g.renewed {
+		// The pool holds the lease from now on; the stored copy (for a
+		// restart) is written in the background, so that handing out work
+		// costs no disk wait. A label is checked against the pool.
 		sl := store.ServiceLease{ID: g.lease.id, Item: g.itemID, Annotator: pr.ID, Expires: g.lease.expires.UTC()}
-		if err := sv.st.GrantLease(sl); err != nil {
-			sv.pool.cancel(g.lease)
-			return err
-		}
+		sv.background(func() error { return sv.st.GrantLease(sl) })
 		sv.metrics.leases.WithLabelValues("granted").Inc()
 	}
 	pg, err := sv.pool.progress(pr.ID, now)
 	if err != nil {
-		return err
+		return NextReply{}, err
 	}
 	if g.lease == nil {
-		return c.JSON(http.StatusOK, NextReply{Progress: pg,
-			Message: "Nothing is waiting for you right now: every item has its answers or is in someone's hands. Try again later."})
+		return NextReply{Progress: pg,
+			Message: "Nothing is waiting for you right now: every item has its answers or is in someone's hands. Try again later."}, nil
 	}
 	it, _, err := sv.st.Item(g.itemID)
 	if err != nil {
-		return err
+		return NextReply{}, err
 	}
 	v := itemView(it)
-	return c.JSON(http.StatusOK, NextReply{Lease: &LeaseView{ID: g.lease.id, Item: g.itemID, Expires: g.lease.expires.UTC()},
-		Item: &v, Progress: pg})
+	return NextReply{Lease: &LeaseView{ID: g.lease.id, Item: g.itemID, Expires: g.lease.expires.UTC()},
+		Item: &v, Progress: pg}, nil
 }
 
 func (sv *Server) postLabel(c echo.Context) error {
@@ -176,20 +188,37 @@ func (sv *Server) postLabel(c echo.Context) error {
 	}
 	now := sv.cfg.Now().UTC()
 	l := handoff.Label{Item: req.Item, Annotator: pr.ID, Class: req.Label, Time: now, Seconds: req.Seconds}
-	res, err := sv.st.Submit(store.Submission{Label: l, Key: req.IdempotencyKey, Lease: req.Lease}, sv.source(c))
+	if err := sv.pool.checkLease(pr.ID, req.Lease, req.Item, now); err != nil {
+		// A retry of a label already stored ended its lease: answer it
+		// as the duplicate it is.
+		res, found, kerr := sv.st.LabelByKey(req.Item, pr.ID, req.IdempotencyKey)
+		if kerr != nil {
+			return kerr
+		}
+		if found {
+			if res.Label.Class != req.Label {
+				sv.metrics.labels.WithLabelValues("refused").Inc()
+				return codedError(http.StatusUnprocessableEntity, "key_reused", "key %q: %v", req.IdempotencyKey, store.ErrKeyReused)
+			}
+			return sv.ackLabel(c, pr, res, req.Next, now)
+		}
+		sv.metrics.labels.WithLabelValues("refused").Inc()
+		switch {
+		case errors.Is(err, errLeaseExpired):
+			return codedError(http.StatusGone, "lease_expired", "%v", err)
+		case errors.Is(err, errLeaseMismatch):
+			return codedError(http.StatusConflict, "lease_mismatch", "%v", err)
+		}
+		return codedError(http.StatusConflict, "lease_unknown", "%v", err)
+	}
+	res, err := sv.st.Submit(store.Submission{Label: l, Key: req.IdempotencyKey, Lease: req.Lease, LeaseChecked: true}, sv.source(c))
 	if err != nil {
 		sv.metrics.labels.WithLabelValues("refused").Inc()
 		switch {
-		case errors.Is(err, store.ErrLeaseExpired):
-			sv.pool.drop(pr.ID, req.Lease, false)
-			return codedError(http.StatusGone, "lease_expired", "%v", err)
-		case errors.Is(err, store.ErrLeaseUnknown):
-			return codedError(http.StatusConflict, "lease_unknown", "%v", err)
-		case errors.Is(err, store.ErrLeaseMismatch):
-			return codedError(http.StatusConflict, "lease_mismatch", "%v", err)
 		case errors.Is(err, store.ErrAlreadyLabelled):
 			if _, ok := sv.pool.drop(pr.ID, req.Lease, false); ok {
-				_ = sv.st.EndLeases([]string{req.Lease})
+				lid := req.Lease
+				sv.background(func() error { return sv.st.EndLeases([]string{lid}) })
 			}
 			sv.pool.markDone(pr.ID, req.Item)
 			return codedError(http.StatusConflict, "already_labelled", "%v", err)
@@ -198,19 +227,37 @@ func (sv *Server) postLabel(c echo.Context) error {
 		}
 		return err
 	}
+	if !res.Duplicate {
+		sv.pool.record(pr.ID, req.Item, req.Lease, res.N, now)
+	}
+	return sv.ackLabel(c, pr, res, req.Next, now)
+}
+
+// ackLabel answers a stored label: 201, or 200 for a retry; with next, the
+// reply carries the person's next item.
+func (sv *Server) ackLabel(c echo.Context, pr *principal, res store.SubmitResult, next bool, now time.Time) error {
 	status := http.StatusCreated
 	if res.Duplicate {
 		status = http.StatusOK
 		sv.metrics.labels.WithLabelValues("duplicate").Inc()
 	} else {
-		sv.pool.record(pr.ID, req.Item, req.Lease, res.N, now)
 		sv.metrics.labels.WithLabelValues("stored").Inc()
 	}
-	pg, err := sv.pool.progress(pr.ID, now)
-	if err != nil {
-		return err
+	reply := LabelReply{Number: res.N, Duplicate: res.Duplicate, Label: res.Label}
+	if next {
+		nr, err := sv.nextFor(pr)
+		if err != nil {
+			return err
+		}
+		reply.Progress, reply.Next = nr.Progress, &nr
+	} else {
+		pg, err := sv.pool.progress(pr.ID, now)
+		if err != nil {
+			return err
+		}
+		reply.Progress = pg
 	}
-	return c.JSON(status, LabelReply{Number: res.N, Duplicate: res.Duplicate, Label: res.Label, Progress: pg})
+	return c.JSON(status, reply)
 }
 
 // checkLabel validates a label request before it reaches the store.
@@ -260,9 +307,7 @@ func (sv *Server) postSkip(c echo.Context) error {
 	if !ok {
 		return jsonError(http.StatusNotFound, "no live lease %q of yours", id)
 	}
-	if err := sv.st.EndLeases([]string{id}); err != nil {
-		return err
-	}
+	sv.background(func() error { return sv.st.EndLeases([]string{id}) })
 	if req.Reason == "unsure" {
 		if err := sv.st.MarkUnsure(item, pr.ID, sv.source(c)); err != nil {
 			return err

@@ -152,6 +152,19 @@ type Server struct {
 	stop     chan struct{}
 	stopOnce sync.Once
 	wg       sync.WaitGroup
+	bg       sync.WaitGroup // background writes (stored copies of leases)
+}
+
+// background runs a write whose result no request waits for (the stored
+// copy of a lease); failures are logged. Close waits for them.
+func (sv *Server) background(fn func() error) {
+	sv.bg.Add(1)
+	go func() {
+		defer sv.bg.Done()
+		if err := fn(); err != nil {
+			sv.cfg.Logf("background write: %v", err)
+		}
+	}()
 }
 
 // New builds the service for an open store: it loads the work pool (items,
@@ -183,6 +196,7 @@ func (sv *Server) Close() {
 	sv.stopOnce.Do(func() { close(sv.stop) })
 	sv.wg.Wait()
 	sv.rounds.wait()
+	sv.bg.Wait()
 }
 
 // sweep returns expired leases to the pool once a second and forgets

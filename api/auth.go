@@ -6,6 +6,7 @@ import (
 	"encoding/base64"
 	"errors"
 	"net/http"
+	"runtime"
 	"strings"
 	"sync"
 	"time"
@@ -52,6 +53,19 @@ type auth struct {
 	people   map[string]*Person
 	limits   map[string]*bucket
 	failures map[string]*bucket // by client address: failed sign-ins
+
+	// hashing bounds the argon2id computations running at once (each
+	// takes 19 MiB and most of a core for ~50 ms).
+	hashing chan struct{}
+	// inflight lets concurrent requests with the same unverified token wait
+	// for one computation.
+	inflight map[[32]byte]*verification
+}
+
+type verification struct {
+	done   chan struct{}
+	person string
+	err    error
 }
 
 func newAuth(st *store.Store, cfg Config) *auth {
@@ -61,6 +75,8 @@ func newAuth(st *store.Store, cfg Config) *auth {
 		people:   map[string]*Person{},
 		limits:   map[string]*bucket{},
 		failures: map[string]*bucket{},
+		hashing:  make(chan struct{}, max(1, runtime.GOMAXPROCS(0))),
+		inflight: map[[32]byte]*verification{},
 	}
 }
 
@@ -110,26 +126,38 @@ func (a *auth) check(token string) (string, error) {
 	now := a.cfg.Now()
 	a.mu.Lock()
 	ct, ok := a.tokens[d]
-	a.mu.Unlock()
 	if ok && now.Before(ct.expires) {
+		a.mu.Unlock()
 		return ct.person, nil
 	}
-	id, err := verifyToken(a.st, token)
-	if err != nil {
-		return "", err
+	if v, ok := a.inflight[d]; ok {
+		a.mu.Unlock()
+		<-v.done
+		return v.person, v.err
 	}
-	a.mu.Lock()
-	if len(a.tokens) > 100_000 {
-		clear(a.tokens)
-	}
-	a.tokens[d] = cachedToken{person: id, expires: now.Add(a.cfg.TokenCache)}
+	v := &verification{done: make(chan struct{})}
+	a.inflight[d] = v
 	a.mu.Unlock()
-	return id, nil
+
+	a.hashing <- struct{}{}
+	v.person, v.err = verifyToken(a.st, token)
+	<-a.hashing
+
+	a.mu.Lock()
+	delete(a.inflight, d)
+	if v.err == nil {
+		if len(a.tokens) > 100_000 {
+			clear(a.tokens)
+		}
+		a.tokens[d] = cachedToken{person: v.person, expires: now.Add(a.cfg.TokenCache)}
+	}
+	a.mu.Unlock()
+	close(v.done)
+	return v.person, v.err
 }
 
-// failed counts a failed sign-in from addr and reports whether the address
-// should now be refused for a while (10 failures at once, then one per
-// second).
+// failed counts a failed sign-in from addr: after 10 failures at once, an
+// address gets one try per second (see blocked).
 func (a *auth) failed(addr string) {
 	a.mu.Lock()
 	defer a.mu.Unlock()

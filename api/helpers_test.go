@@ -187,6 +187,7 @@ func (f *fixture) label(person, lease, item, class, key string) reply {
 // snapshot is everything a refused request must leave unchanged.
 func (f *fixture) snapshot() string {
 	f.t.Helper()
+	f.sv.bg.Wait() // stored copies of leases are written in the background
 	st, err := f.st.Stats()
 	if err != nil {
 		f.t.Fatal(err)

@@ -34,9 +34,10 @@ type pool struct {
 	head    int               // order[:head] have all their labels
 	open    int               // work items with fewer labels than wanted
 	seqBase uint64            // labels numbered below this are counted
+	seq     uint64            // lease ids start with it: time-ordered keys in the store
 	anns    map[string]*annState
-	leases  map[string]*lease    // live leases by id
-	stale   map[string]time.Time // expired leases still stored → when to forget them
+	leases  map[string]*lease // live leases by id
+	stale   map[string]*lease // expired leases, kept an hour so that late answers are told so
 }
 
 type annState struct {
@@ -55,8 +56,8 @@ type lease struct {
 }
 
 func newPool(st *store.Store, cfg Config, m *metrics) (*pool, error) {
-	p := &pool{st: st, cfg: cfg, m: m, anns: map[string]*annState{},
-		leases: map[string]*lease{}, stale: map[string]time.Time{}}
+	p := &pool{st: st, cfg: cfg, m: m, seq: uint64(time.Now().UnixNano()), anns: map[string]*annState{},
+		leases: map[string]*lease{}, stale: map[string]*lease{}}
 	if err := p.rebuild(); err != nil {
 		return nil, err
 	}
@@ -69,25 +70,37 @@ func newPool(st *store.Store, cfg Config, m *metrics) (*pool, error) {
 	p.mu.Lock()
 	for _, sl := range stored {
 		n, ok := p.num[sl.Item]
-		switch {
-		case !ok || now.After(sl.Expires.Add(time.Hour)):
+		if !ok || now.After(sl.Expires.Add(time.Hour)) {
 			old = append(old, sl.ID)
-		case !now.Before(sl.Expires):
-			p.stale[sl.ID] = sl.Expires.Add(time.Hour)
-		default:
-			a := p.ann(sl.Annotator)
-			if a.lease != nil { // keep the later one
-				if a.lease.expires.After(sl.Expires) {
-					p.stale[sl.ID] = sl.Expires.Add(time.Hour)
-					continue
-				}
-				p.dropLease(a.lease)
-			}
-			l := &lease{id: sl.ID, item: n, ann: sl.Annotator, expires: sl.Expires}
-			p.leases[l.id] = l
-			p.leased[n]++
-			a.lease = l
+			continue
 		}
+		l := &lease{id: sl.ID, item: n, ann: sl.Annotator, expires: sl.Expires}
+		if !now.Before(sl.Expires) {
+			p.stale[sl.ID] = l
+			continue
+		}
+		a := p.ann(sl.Annotator)
+		if err := p.loadDone(sl.Annotator, a); err != nil {
+			p.mu.Unlock()
+			return nil, err
+		}
+		if _, done := a.done[n]; done {
+			// Answered: the label's transaction ended the lease before
+			// the write that stored the lease landed.
+			old = append(old, sl.ID)
+			continue
+		}
+		if a.lease != nil { // keep the later one
+			if a.lease.expires.After(sl.Expires) {
+				old = append(old, sl.ID)
+				continue
+			}
+			old = append(old, a.lease.id)
+			p.dropLease(a.lease)
+		}
+		p.leases[l.id] = l
+		p.leased[n]++
+		a.lease = l
 	}
 	p.m.liveLeases.Set(float64(len(p.leases)))
 	p.mu.Unlock()
@@ -323,7 +336,8 @@ func (p *pool) next(person string, now time.Time) (grant, error) {
 		if p.count[n]+p.leased[n] >= p.target[n] {
 			continue
 		}
-		l := &lease{id: randomString(12), item: n, ann: person, expires: now.Add(p.cfg.LeaseTime)}
+		p.seq++
+		l := &lease{id: fmt.Sprintf("%016x", p.seq) + randomString(6), item: n, ann: person, expires: now.Add(p.cfg.LeaseTime)}
 		p.leases[l.id] = l
 		p.leased[n]++
 		a.lease = l
@@ -344,7 +358,7 @@ func (p *pool) cancel(l *lease) {
 // later. Call with p.mu held.
 func (p *pool) expireOne(l *lease) {
 	p.dropLease(l)
-	p.stale[l.id] = l.expires.Add(time.Hour)
+	p.stale[l.id] = l
 	p.m.leases.WithLabelValues("expired").Inc()
 }
 
@@ -359,14 +373,45 @@ func (p *pool) expire(now time.Time) []string {
 		}
 	}
 	var old []string
-	for id, t := range p.stale {
-		if now.After(t) {
+	for id, l := range p.stale {
+		if now.After(l.expires.Add(time.Hour)) {
 			old = append(old, id)
 			delete(p.stale, id)
 		}
 	}
 	sort.Strings(old)
 	return old
+}
+
+// Lease problems found by checkLease.
+var (
+	errLeaseUnknown  = errors.New("no such lease: fetch the next item again")
+	errLeaseExpired  = errors.New("the lease has expired: fetch the next item again")
+	errLeaseMismatch = errors.New("the lease was given for another item or person")
+)
+
+// checkLease checks that person holds a live lease id on item at now. The
+// pool knows every live lease (those of earlier runs are loaded from the
+// store at start) and, for an hour, the expired ones.
+func (p *pool) checkLease(person, id, item string, now time.Time) error {
+	p.mu.Lock()
+	defer p.mu.Unlock()
+	l, live := p.leases[id]
+	if !live {
+		l = p.stale[id]
+	}
+	switch {
+	case l == nil:
+		return fmt.Errorf("lease %q: %w", id, errLeaseUnknown)
+	case l.ann != person || p.ids[l.item] != item:
+		return fmt.Errorf("lease %q: %w", id, errLeaseMismatch)
+	case !live || !now.Before(l.expires):
+		if live {
+			p.expireOne(l)
+		}
+		return fmt.Errorf("lease %q expired at %s: %w", id, l.expires.UTC().Format(time.RFC3339), errLeaseExpired)
+	}
+	return nil
 }
 
 // record counts a stored label (number n) by person on item, ending the

@@ -23,9 +23,9 @@ import (
 // The service's buckets are created on first use, so files made before they
 // existed open as usual.
 var (
-	bSvcKeys   = []byte("svc_idempotency") // annotator id ‖ 0 ‖ key → label number (8 bytes BE) ‖ class index (2 bytes BE) ‖ item id
-	bSvcLeases = []byte("svc_leases")      // lease id → JSON ServiceLease
-	bSvcUnsure = []byte("svc_unsure")      // item id ‖ 0 ‖ annotator id → time (Unix ns, 8 bytes BE)
+	bSvcKeys   = []byte("svc_labels") // item number (8 bytes BE) ‖ annotator id → label number (8 bytes BE) ‖ class index (2 bytes BE) ‖ idempotency key
+	bSvcLeases = []byte("svc_leases") // lease id → JSON ServiceLease
+	bSvcUnsure = []byte("svc_unsure") // item id ‖ 0 ‖ annotator id → time (Unix ns, 8 bytes BE)
 )
 
 // ServiceLease is an item handed out to one person until Expires. While a
@@ -41,14 +41,20 @@ type ServiceLease struct {
 // Submission is one label sent through the service.
 //
 // Rules: Label follows the handoff.Label rules. Key is the idempotency key
-// chosen by the sender, non-empty and at most 200 bytes, scoped to
-// Label.Annotator: sending the same key again never writes a second label.
+// chosen by the sender, non-empty and at most 200 bytes, scoped to the
+// annotator and the item: sending the same label with the same key again
+// never writes a second label. (A person labels an item at most once
+// through Submit, so the item and the person find the label; the key tells
+// a retry from a second answer.)
 // Lease is the id of the lease the item was handed out under, or "" for a
-// label sent without one.
+// label sent without one. With LeaseChecked set the caller has already
+// checked the lease (for example against leases it keeps in memory): Submit
+// then only ends the stored copy, if there is one.
 type Submission struct {
-	Label handoff.Label
-	Key   string
-	Lease string
+	Label        handoff.Label
+	Key          string
+	Lease        string
+	LeaseChecked bool
 }
 
 // SubmitResult says what Submit did.
@@ -112,11 +118,28 @@ func (s *Store) batch(fn func(tx *bolt.Tx) error) error {
 	return err
 }
 
-func svcKey(annotator, key string) []byte {
-	k := make([]byte, 0, len(annotator)+1+len(key))
-	k = append(k, annotator...)
+func svcKey(a, b string) []byte {
+	k := make([]byte, 0, len(a)+1+len(b))
+	k = append(k, a...)
 	k = append(k, 0)
-	return append(k, key...)
+	return append(k, b...)
+}
+
+// doneKey is the key of a label sent through Submit: item number ‖
+// annotator id. Items are handed out roughly in order, so these keys are
+// written near one another (few pages per commit).
+func doneKey(item []byte, annotator string) []byte {
+	k := make([]byte, 0, 8+len(annotator))
+	k = append(k, item...)
+	return append(k, annotator...)
+}
+
+// doneRecord decodes a svc_labels value.
+func doneRecord(v []byte) (n uint64, class uint16, key string, ok bool) {
+	if len(v) < 10 {
+		return 0, 0, "", false
+	}
+	return binary.BigEndian.Uint64(v[:8]), binary.BigEndian.Uint16(v[8:10]), string(v[10:]), true
 }
 
 // Submit writes one label unless its idempotency key has been seen, and
@@ -158,34 +181,35 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 		if err != nil {
 			return err
 		}
-		ik := svcKey(l.Annotator, sub.Key)
-		if v := keys.Get(ik); v != nil {
-			if len(v) < 10 || binary.BigEndian.Uint16(v[8:10]) != uint16(ci) || string(v[10:]) != l.Item {
-				outcome = fmt.Errorf("key %q: %w", sub.Key, ErrKeyReused)
-				return nil
-			}
-			n := binary.BigEndian.Uint64(v[:8])
-			var r LabelRecord
-			if err := decodeLabel(tx.Bucket(bLabels).Get(u64(n)), &r); err != nil {
-				return fmt.Errorf("store: label %d of idempotency key %q: %w", n, sub.Key, err)
-			}
-			first, err := s.toLabel(tx, &r, map[uint32]string{}, map[uint32]string{})
-			if err != nil {
-				return err
-			}
-			res = SubmitResult{N: n, Duplicate: true, Label: first}
-			return nil
-		}
 		itemNum := tx.Bucket(bItemIDs).Get([]byte(l.Item))
 		if itemNum == nil {
 			outcome = dataErr("item", "unknown item %q", l.Item)
+			return nil
+		}
+		ik := doneKey(itemNum, l.Annotator)
+		if v := keys.Get(ik); v != nil {
+			n, class, key, ok := doneRecord(v)
+			switch {
+			case !ok:
+				return fmt.Errorf("store: damaged record of item %q by %q", l.Item, l.Annotator)
+			case key != sub.Key:
+				outcome = fmt.Errorf("item %q: %w", l.Item, ErrAlreadyLabelled)
+			case int(class) != ci:
+				outcome = fmt.Errorf("key %q: %w", sub.Key, ErrKeyReused)
+			default:
+				first, err := s.labelAt(tx, n)
+				if err != nil {
+					return err
+				}
+				res = SubmitResult{N: n, Duplicate: true, Label: first}
+			}
 			return nil
 		}
 		leases, err := tx.CreateBucketIfNotExists(bSvcLeases)
 		if err != nil {
 			return err
 		}
-		if sub.Lease != "" {
+		if sub.Lease != "" && !sub.LeaseChecked {
 			v := leases.Get([]byte(sub.Lease))
 			if v == nil {
 				outcome = fmt.Errorf("lease %q: %w", sub.Lease, ErrLeaseUnknown)
@@ -204,8 +228,8 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 				return nil
 			}
 		}
-		// Has this person labelled the item? Walk the item's labels (a
-		// handful) rather than the person's (possibly thousands).
+		// Has this person labelled the item in an import? Walk the item's
+		// labels (a handful) rather than the person's (possibly thousands).
 		item := binary.BigEndian.Uint64(itemNum)
 		ann, hasAnn := uint64(0), false
 		if k := tx.Bucket(bAnnotatorIDs).Get([]byte(l.Annotator)); k != nil {
@@ -248,10 +272,10 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 		if err := labels.SetSequence(seq + 1); err != nil {
 			return err
 		}
-		v := make([]byte, 10, 10+len(l.Item))
+		v := make([]byte, 10, 10+len(sub.Key))
 		binary.BigEndian.PutUint64(v, seq)
 		binary.BigEndian.PutUint16(v[8:], uint16(ci))
-		v = append(v, l.Item...)
+		v = append(v, sub.Key...)
 		if err := keys.Put(ik, v); err != nil {
 			return err
 		}
@@ -336,7 +360,8 @@ func (s *Store) ServiceLeases() ([]ServiceLease, error) {
 	return out, err
 }
 
-// IdempotencyKeys returns the number of idempotency keys stored.
+// IdempotencyKeys returns the number of labels written through Submit (each
+// keeps its idempotency key).
 func (s *Store) IdempotencyKeys() (int, error) {
 	n := 0
 	err := s.db.View(func(tx *bolt.Tx) error {
@@ -416,4 +441,45 @@ func (s *Store) Check() error {
 		return err
 	}
 	return errors.Join(errs...)
+}
+
+// LabelByKey returns the label a person sent for an item through Submit
+// under an idempotency key, and whether there is one (same person, item and
+// key).
+func (s *Store) LabelByKey(item, annotator, key string) (SubmitResult, bool, error) {
+	var res SubmitResult
+	found := false
+	err := s.db.View(func(tx *bolt.Tx) error {
+		keys := tx.Bucket(bSvcKeys)
+		itemNum := tx.Bucket(bItemIDs).Get([]byte(item))
+		if keys == nil || itemNum == nil {
+			return nil
+		}
+		v := keys.Get(doneKey(itemNum, annotator))
+		if v == nil {
+			return nil
+		}
+		n, _, k, ok := doneRecord(v)
+		if !ok {
+			return fmt.Errorf("store: damaged record of item %q by %q", item, annotator)
+		}
+		if k != key {
+			return nil
+		}
+		l, err := s.labelAt(tx, n)
+		if err != nil {
+			return err
+		}
+		res, found = SubmitResult{N: n, Duplicate: true, Label: l}, true
+		return nil
+	})
+	return res, found, err
+}
+
+func (s *Store) labelAt(tx *bolt.Tx, n uint64) (handoff.Label, error) {
+	var r LabelRecord
+	if err := decodeLabel(tx.Bucket(bLabels).Get(u64(n)), &r); err != nil {
+		return handoff.Label{}, fmt.Errorf("store: label %d: %w", n, err)
+	}
+	return s.toLabel(tx, &r, map[uint32]string{}, map[uint32]string{})
 }

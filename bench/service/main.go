@@ -1,0 +1,342 @@
+// Command service is the load benchmark of `loop serve`: many annotators at
+// once fetch items and send labels over loopback, and afterwards the store
+// is read back to count lost or doubled labels.
+//
+// It builds a fresh project in a temporary directory (items, one person per
+// annotator), starts the server as a subprocess (the loop binary given by
+// -loop), runs for -duration or until -max-labels labels are acknowledged,
+// stops the server and reads the store. Each annotator loops: GET
+// /api/v1/next, then POST /api/v1/labels with an idempotency key.
+//
+// With -peer it instead runs the same clients against a plain net/http
+// server that writes each label in its own bbolt transaction (db.Update, one
+// fsync per label, no group commit): the baseline group commit is measured
+// against.
+//
+// It prints "key value" lines (labels_per_s, p50_ms, p99_ms, lost, …).
+// It listens on loopback only and stops by itself.
+package main
+
+import (
+	"bytes"
+	"encoding/binary"
+	"encoding/json"
+	"flag"
+	"fmt"
+	"io"
+	"log"
+	"net"
+	"net/http"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"runtime"
+	"slices"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"syscall"
+	"time"
+
+	"handoff"
+	"handoff/api"
+	"handoff/store"
+)
+
+func main() {
+	var (
+		loopBin    = flag.String("loop", "", "path of the loop binary (required unless -peer)")
+		annotators = flag.Int("annotators", 200, "concurrent annotators")
+		items      = flag.Int("items", 40000, "items in the project")
+		duration   = flag.Duration("duration", 10*time.Second, "longest measured run")
+		maxLabels  = flag.Int("max-labels", 100000, "stop after this many acknowledged labels")
+		warmup     = flag.Duration("warmup", 2*time.Second, "unmeasured run before the measured one")
+		peer       = flag.Bool("peer", false, "run against the one-transaction-per-label baseline instead")
+		keep       = flag.String("dir", "", "project directory (default: a temporary one, removed afterwards)")
+	)
+	flag.Parse()
+	if !*peer && *loopBin == "" {
+		log.Fatal("give -loop PATH (go build -o /tmp/loop ./cmd/loop)")
+	}
+	dir := *keep
+	if dir == "" {
+		d, err := os.MkdirTemp("", "handoff-bench-*")
+		if err != nil {
+			log.Fatal(err)
+		}
+		defer os.RemoveAll(d)
+		dir = filepath.Join(d, "proj")
+	}
+	cb := handoff.Codebook{Name: "bench", Question: "Which?", Classes: []handoff.Class{{Key: "a"}, {Key: "b"}, {Key: "c"}}}
+	st, err := store.Create(dir, cb, "bench")
+	if err != nil {
+		log.Fatal(err)
+	}
+	its := make([]handoff.Item, *items)
+	for i := range its {
+		its[i] = handoff.Item{ID: fmt.Sprintf("it%06d", i), Kind: handoff.KindText, Text: fmt.Sprintf("bench item %d", i)}
+	}
+	if _, err := st.PutItems(its, false, "bench"); err != nil {
+		log.Fatal(err)
+	}
+	tokens := make([]string, *annotators)
+	t0 := time.Now()
+	var wg sync.WaitGroup
+	var tokErr atomic.Value
+	sem := make(chan struct{}, runtime.NumCPU())
+	for a := range tokens {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func(a int) {
+			defer wg.Done()
+			defer func() { <-sem }()
+			tok, err := api.AddPerson(st, fmt.Sprintf("ann%03d", a), false, "bench")
+			if err != nil {
+				tokErr.Store(err)
+			}
+			tokens[a] = tok
+		}(a)
+	}
+	wg.Wait()
+	if e := tokErr.Load(); e != nil {
+		log.Fatal(e)
+	}
+	fmt.Printf("setup_seconds %.1f\n", time.Since(t0).Seconds())
+
+	var base string
+	var stopServer func()
+	if *peer {
+		base, stopServer = startPeer(st, tokens)
+	} else {
+		st.Close()
+		base, stopServer = startLoop(*loopBin, dir)
+	}
+
+	client := &http.Client{Transport: &http.Transport{MaxIdleConnsPerHost: *annotators * 2, MaxConnsPerHost: *annotators * 2}, Timeout: 10 * time.Second}
+	// Warm-up: every token is verified once (argon2id) and connections open.
+	run(client, base, tokens, *warmup, *maxLabels, "w")
+	res := run(client, base, tokens, *duration, *maxLabels, "m")
+	stopServer()
+
+	if !*peer {
+		st, err = store.Open(dir)
+		if err != nil {
+			log.Fatalf("reopening the store: %v", err)
+		}
+	}
+	defer st.Close()
+	stored := map[string]int{}
+	labels, err := st.Labels()
+	if err != nil {
+		log.Fatal(err)
+	}
+	for _, l := range labels {
+		stored[l.Item+"/"+l.Annotator]++
+	}
+	lost, doubled := 0, 0
+	for _, k := range res.acked {
+		if stored[k] == 0 {
+			lost++
+		}
+	}
+	for _, n := range stored {
+		if n > 1 {
+			doubled++
+		}
+	}
+	lat := res.labelLat
+	slices.Sort(lat)
+	nlat := res.nextLat
+	slices.Sort(nlat)
+	q := func(x []time.Duration, p float64) float64 {
+		if len(x) == 0 {
+			return 0
+		}
+		return float64(x[int(p*float64(len(x)-1))].Microseconds()) / 1000
+	}
+	mode := "ours"
+	if *peer {
+		mode = "peer"
+	}
+	fmt.Printf("mode %s\n", mode)
+	fmt.Printf("annotators %d\n", *annotators)
+	fmt.Printf("seconds %.2f\n", res.elapsed.Seconds())
+	fmt.Printf("acknowledged %d\n", len(res.acked))
+	fmt.Printf("labels_per_s %.0f\n", float64(len(res.acked))/res.elapsed.Seconds())
+	fmt.Printf("p50_ms %.2f\n", q(lat, 0.50))
+	fmt.Printf("p99_ms %.2f\n", q(lat, 0.99))
+	fmt.Printf("next_p50_ms %.2f\n", q(nlat, 0.50))
+	fmt.Printf("next_p99_ms %.2f\n", q(nlat, 0.99))
+	fmt.Printf("errors %d\n", res.errors)
+	fmt.Printf("stored_total %d\n", len(labels))
+	fmt.Printf("lost %d\n", lost)
+	fmt.Printf("doubled %d\n", doubled)
+}
+
+type result struct {
+	acked    []string // item/annotator
+	labelLat []time.Duration
+	nextLat  []time.Duration
+	elapsed  time.Duration
+	errors   int
+}
+
+// run lets every annotator fetch and label items until d has passed or max
+// labels are acknowledged.
+func run(client *http.Client, base string, tokens []string, d time.Duration, max int, tag string) result {
+	var (
+		mu    sync.Mutex
+		res   result
+		count atomic.Int64
+		wg    sync.WaitGroup
+	)
+	start := time.Now()
+	deadline := start.Add(d)
+	for a, tok := range tokens {
+		wg.Add(1)
+		go func(a int, tok string) {
+			defer wg.Done()
+			var acked []string
+			var ll, nl []time.Duration
+			errs := 0
+			for k := 0; time.Now().Before(deadline) && count.Load() < int64(max); k++ {
+				t0 := time.Now()
+				code, b := do(client, "GET", base+"/api/v1/next", tok, nil, "")
+				nl = append(nl, time.Since(t0))
+				if code != http.StatusOK {
+					errs++
+					continue
+				}
+				var nr api.NextReply
+				if json.Unmarshal(b, &nr) != nil || nr.Lease == nil {
+					errs++
+					time.Sleep(10 * time.Millisecond)
+					continue
+				}
+				body, _ := json.Marshal(api.LabelRequest{Lease: nr.Lease.ID, Item: nr.Item.ID, Label: []string{"a", "b", "c"}[k%3], Seconds: 1.5})
+				key := fmt.Sprintf("%s-%d-%d", tag, a, k)
+				t1 := time.Now()
+				code, _ = do(client, "POST", base+"/api/v1/labels", tok, body, key)
+				ll = append(ll, time.Since(t1))
+				if code != http.StatusCreated && code != http.StatusOK {
+					errs++
+					continue
+				}
+				count.Add(1)
+				acked = append(acked, nr.Item.ID+"/"+fmt.Sprintf("ann%03d", a))
+			}
+			mu.Lock()
+			res.acked = append(res.acked, acked...)
+			res.labelLat = append(res.labelLat, ll...)
+			res.nextLat = append(res.nextLat, nl...)
+			res.errors += errs
+			mu.Unlock()
+		}(a, tok)
+	}
+	wg.Wait()
+	res.elapsed = time.Since(start)
+	return res
+}
+
+func do(client *http.Client, method, url, tok string, body []byte, key string) (int, []byte) {
+	req, _ := http.NewRequest(method, url, bytes.NewReader(body))
+	req.Header.Set("Authorization", "Bearer "+tok)
+	if key != "" {
+		req.Header.Set("Idempotency-Key", key)
+		req.Header.Set("Content-Type", "application/json")
+	}
+	resp, err := client.Do(req)
+	if err != nil {
+		return 0, nil
+	}
+	defer resp.Body.Close()
+	b, _ := io.ReadAll(resp.Body)
+	return resp.StatusCode, b
+}
+
+// startLoop runs `loop serve` on a free loopback port.
+func startLoop(bin, dir string) (string, func()) {
+	cmd := exec.Command(bin, "serve", dir, "--addr", "127.0.0.1:0", "--training", "0", "--quiz", "0",
+		"--rate", "100000", "--burst", "100000")
+	out, err := cmd.StdoutPipe()
+	if err != nil {
+		log.Fatal(err)
+	}
+	cmd.Stderr = os.Stderr
+	if err := cmd.Start(); err != nil {
+		log.Fatal(err)
+	}
+	buf := make([]byte, 512)
+	n, err := out.Read(buf)
+	if err != nil {
+		log.Fatalf("loop serve: %v", err)
+	}
+	line := string(buf[:n])
+	i := strings.Index(line, "http://")
+	if i < 0 {
+		log.Fatalf("loop serve printed %q", line)
+	}
+	base, _, _ := strings.Cut(strings.TrimSpace(line[i:]), " ")
+	go io.Copy(io.Discard, out)
+	return base, func() {
+		cmd.Process.Signal(syscall.SIGTERM)
+		cmd.Wait()
+	}
+}
+
+// startPeer serves the baseline: the same two routes, tokens checked
+// against a plain map (no hashing), items handed out round-robin from a
+// counter, and each label written by store.PutLabels — its own transaction
+// and fsync — without leases, idempotency keys or group commit.
+func startPeer(st *store.Store, tokens []string) (string, func()) {
+	who := map[string]string{}
+	for a, t := range tokens {
+		who[t] = fmt.Sprintf("ann%03d", a)
+	}
+	ids, err := st.ItemIDs()
+	if err != nil {
+		log.Fatal(err)
+	}
+	var next atomic.Int64
+	mux := http.NewServeMux()
+	auth := func(r *http.Request) (string, bool) {
+		a, ok := who[strings.TrimPrefix(r.Header.Get("Authorization"), "Bearer ")]
+		return a, ok
+	}
+	mux.HandleFunc("GET /api/v1/next", func(w http.ResponseWriter, r *http.Request) {
+		if _, ok := auth(r); !ok {
+			w.WriteHeader(401)
+			return
+		}
+		n := next.Add(1) - 1
+		id := ids[int(n)%len(ids)]
+		var k [8]byte
+		binary.BigEndian.PutUint64(k[:], uint64(n))
+		json.NewEncoder(w).Encode(api.NextReply{Lease: &api.LeaseView{ID: fmt.Sprintf("%x", k), Item: id}, Item: &api.ItemView{ID: id, Kind: "text", Text: "x"}})
+	})
+	mux.HandleFunc("POST /api/v1/labels", func(w http.ResponseWriter, r *http.Request) {
+		a, ok := auth(r)
+		if !ok {
+			w.WriteHeader(401)
+			return
+		}
+		var req api.LabelRequest
+		if err := json.NewDecoder(io.LimitReader(r.Body, 1<<16)).Decode(&req); err != nil {
+			w.WriteHeader(400)
+			return
+		}
+		if _, err := st.PutLabels([]handoff.Label{{Item: req.Item, Annotator: a, Class: req.Label, Time: time.Now(), Seconds: req.Seconds}}, "peer"); err != nil {
+			w.WriteHeader(422)
+			return
+		}
+		w.WriteHeader(201)
+		w.Write([]byte(`{}`))
+	})
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		log.Fatal(err)
+	}
+	hs := &http.Server{Handler: mux}
+	go hs.Serve(ln)
+	return "http://" + ln.Addr().String(), func() { hs.Close() }
+}
