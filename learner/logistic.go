@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"slices"
 	"sync"
 
 	"gonum.org/v1/gonum/floats"
@@ -27,18 +28,26 @@ import (
 // are then identified only up to a common shift: the difference W_·1 − W_·0
 // equals the coefficients of R's glm(family = binomial)).
 //
-// The gradient is computed sparse-aware over the stored entries of X in two
-// passes, rows (scores, log-sum-exp) then columns (X^T times the residuals),
-// each split over Threads goroutines.
+// The objective and gradient are computed sparse-aware in one pass over the
+// stored entries of X, split by rows over Threads goroutines (scores with
+// log-sum-exp, then the residuals scattered into per-goroutine gradients).
+// L-BFGS runs on rescaled variables u_j = s_j W_j, u_b = s_b b with
+// s_j = √(Σ_i w_i x_ij² / K + λ) and s_b = √(Σ_i w_i / K), a rough square
+// root of each weight's curvature at the start (p ≈ 1/K): a diagonal
+// preconditioner that leaves the minimiser unchanged but cuts the
+// iterations many-fold on text, where column frequencies span orders of
+// magnitude.
 type Logistic struct {
 	// Lambda is the L2 penalty λ ≥ 0 on the weights (λ = 1/C).
 	Lambda float64
 	// MaxIter caps the L-BFGS iterations; 0 means 500.
 	MaxIter int
-	// Tol stops the fit once the largest gradient entry, divided by the
-	// total row weight Σ w_i, is below Tol (a per-row mean gradient), or
-	// once the objective improved by less than Tol·1e-3 relative over 10
-	// iterations; 0 means 1e-5.
+	// Tol stops the fit once the largest gradient entry ∂f/∂W_jc or
+	// ∂f/∂b_c, divided by the total row weight Σ w_i, is below Tol (a
+	// per-row mean gradient), or once five successive iterations have each
+	// lowered f by less than 10·Tol relative to f; 0 means 1e-4 (on TF-IDF
+	// text this stops once held-out accuracy has levelled off). For
+	// coefficients to many digits use a small Tol such as 1e-10.
 	Tol float64
 	// Memory is the number of L-BFGS correction pairs kept; 0 means 10.
 	Memory int
@@ -77,7 +86,7 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 		cfg.MaxIter = 500
 	}
 	if cfg.Tol == 0 {
-		cfg.Tol = 1e-5
+		cfg.Tol = 1e-4
 	}
 	if cfg.Memory == 0 {
 		cfg.Memory = 10
@@ -87,7 +96,7 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 	x0 := make([]float64, d*k+k)
 	// Start from the log class shares as intercepts.
 	for c := 0; c < k; c++ {
-		x0[d*k+c] = math.Log(o.mass[c] / o.wsum)
+		x0[d*k+c] = math.Log(o.mass[c]/o.wsum) * o.sb
 	}
 	prob := optimize.Problem{Func: o.fn, Grad: o.grad}
 	// gonum's own gradient test is switched off (NaN) in favour of conv,
@@ -95,8 +104,8 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 	settings := &optimize.Settings{
 		GradientThreshold: math.NaN(),
 		MajorIterations:   cfg.MaxIter,
-		Converger: &converger{gradTol: cfg.Tol * o.wsum,
-			f: optimize.FunctionConverge{Relative: cfg.Tol * 1e-3, Iterations: 10}},
+		Converger: &converger{gradTol: cfg.Tol * o.wsum, o: o,
+			f: optimize.FunctionConverge{Relative: 10 * cfg.Tol, Iterations: 5}},
 	}
 	res, err := optimize.Minimize(prob, x0, settings, &optimize.LBFGS{Store: cfg.Memory})
 	if res == nil {
@@ -119,12 +128,20 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 	}
 	m := &LogisticModel{
 		Config: cfg, K: k, D: d,
-		W:           append([]float64(nil), res.X[:d*k]...),
-		B:           append([]float64(nil), res.X[d*k:]...),
+		W:           make([]float64, d*k),
+		B:           make([]float64, k),
 		Objective:   res.F,
 		Iterations:  res.Stats.MajorIterations,
 		Evaluations: res.Stats.FuncEvaluations,
 		Status:      status,
+	}
+	for nj, j := range o.perm {
+		for c := 0; c < k; c++ {
+			m.W[int(j)*k+c] = res.X[nj*k+c] / o.scale[nj]
+		}
+	}
+	for c := range m.B {
+		m.B[c] = res.X[d*k+c] / o.sb
 	}
 	// Softmax is unchanged by adding a constant to every class's score, so
 	// the unpenalised intercepts (and for λ = 0 the weights) are identified
@@ -141,19 +158,24 @@ func (l Logistic) Fit(X features.Matrix, targets [][]float64, weights []float64)
 // objective has stopped improving.
 type converger struct {
 	gradTol float64
+	o       *logObjective
 	f       optimize.FunctionConverge
 }
 
 func (c *converger) Init(dim int) { c.f.Init(dim) }
 
 func (c *converger) Converged(loc *optimize.Location) optimize.Status {
+	// ∂f/∂W_j = s_j ∂f/∂u_j and ∂f/∂b = sb ∂f/∂u_b.
 	var m float64
-	for _, v := range loc.Gradient {
-		if v > m {
-			m = v
-		} else if -v > m {
-			m = -v
+	k := c.o.k
+	g := loc.Gradient
+	for j, s := range c.o.scale {
+		for _, v := range g[j*k : j*k+k] {
+			m = max(m, math.Abs(v)*s)
 		}
+	}
+	for _, v := range g[len(g)-k:] {
+		m = max(m, math.Abs(v)*c.o.sb)
 	}
 	if m < c.gradTol {
 		return optimize.GradientThreshold
@@ -197,7 +219,15 @@ type logObjective struct {
 	rowptr []int
 	rowcol []int32
 	rowval []float64
-	rowcut []int // row block boundaries, about equal entries per block
+	rowcut []int   // row block boundaries, about equal entries per block
+	perm   []int32 // perm[internal column] = column of X
+
+	// Diagonal preconditioning by a change of variables: the optimiser
+	// works on u_j = s_j W_j and u_b = sb·b, so X's column j is stored
+	// divided by s_j and the penalty on u_j is λ_j = λ / s_j².
+	scale []float64 // s_j per internal column
+	sb    float64
+	lamj  []float64
 
 	t    []float64 // targets, n*k
 	w    []float64 // weights, n
@@ -248,6 +278,27 @@ func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, 
 			q++
 		}
 	}
+	// Renumber the columns by decreasing entry count, so the weight and
+	// gradient rows of frequent features sit together in memory (far fewer
+	// cache and TLB misses on text, whose term frequencies are Zipfian).
+	// The optimisation runs in this order; Fit restores the original one.
+	count := make([]int, d)
+	for _, j := range o.rowcol {
+		count[j]++
+	}
+	o.perm = make([]int32, d) // perm[new] = old
+	for j := range o.perm {
+		o.perm[j] = int32(j)
+	}
+	slices.SortStableFunc(o.perm, func(a, b int32) int { return count[b] - count[a] })
+	inv := make([]int32, d)
+	for nj, j := range o.perm {
+		inv[j] = int32(nj)
+	}
+	for p, j := range o.rowcol {
+		o.rowcol[p] = inv[j]
+	}
+	o.setScale(weights, k)
 	// Row blocks with about equal (entries + rows).
 	o.rowcut = []int{0}
 	total := nnz + n
@@ -284,12 +335,50 @@ func newLogObjective(X features.Matrix, targets [][]float64, weights []float64, 
 	}
 	o.part = make([][]float64, nthreads)
 	for i := range o.part {
-		o.part[i] = make([]float64, 2*k+1)
+		o.part[i] = make([]float64, 3*k+1)
 	}
 	o.regs = make([]float64, nthreads)
 	o.gc = make([]float64, d*k+k)
 	o.xc = make([]float64, d*k+k)
 	return o
+}
+
+// setScale sets the variable scales (see Logistic) and divides the stored
+// values of X by them.
+func (o *logObjective) setScale(weights []float64, k int) {
+	d := o.d
+	o.scale = make([]float64, d)
+	o.lamj = make([]float64, d)
+	var wsum float64
+	for i := 0; i < o.n; i++ {
+		w := 1.0
+		if weights != nil {
+			w = weights[i]
+		}
+		wsum += w
+		for p := o.rowptr[i]; p < o.rowptr[i+1]; p++ {
+			v := o.rowval[p]
+			o.scale[o.rowcol[p]] += w * v * v
+		}
+	}
+	c := 1 / float64(k)
+	for j, h := range o.scale {
+		s := math.Sqrt(h*c + o.lambda)
+		if !(s > 0) || math.IsInf(s, 0) {
+			s = 1
+		}
+		o.scale[j] = s
+		o.lamj[j] = o.lambda / (s * s)
+	}
+	o.sb = math.Sqrt(wsum * c)
+	if !(o.sb > 0) || math.IsInf(o.sb, 0) {
+		o.sb = 1
+	}
+	for i := 0; i < o.n; i++ {
+		for p := o.rowptr[i]; p < o.rowptr[i+1]; p++ {
+			o.rowval[p] /= o.scale[o.rowcol[p]]
+		}
+	}
 }
 
 func (o *logObjective) fn(x []float64) float64 {
@@ -314,7 +403,11 @@ func (o *logObjective) grad(g, x []float64) {
 // eval returns f(x) and writes ∇f(x) into g.
 func (o *logObjective) eval(x, g []float64) float64 {
 	d, k, nt := o.d, o.k, o.nthreads
-	W, b := x[:d*k], x[d*k:]
+	W, ub := x[:d*k], x[d*k:]
+	b := o.part[0][2*k+1:] // b = u_b / sb
+	for c, v := range ub {
+		b[c] = v / o.sb
+	}
 	var wg sync.WaitGroup
 	// Pass 1 over rows: the loss Σ_i w_i Σ_c t_ic (lse(z_i) − z_ic), the
 	// intercept gradient Σ_i r_i and each block's X_blockᵀ R_block.
@@ -329,7 +422,7 @@ func (o *logObjective) eval(x, g []float64) float64 {
 		go func() {
 			defer wg.Done()
 			clear(gw)
-			clear(part)
+			clear(part[:2*k+1])
 			gb, z := part[:k], part[k:2*k]
 			var loss float64
 			for i := lo; i < hi; i++ {
@@ -377,25 +470,32 @@ func (o *logObjective) eval(x, g []float64) float64 {
 	clear(gb)
 	for _, part := range o.part {
 		for c := 0; c < k; c++ {
-			gb[c] += part[c]
+			gb[c] += part[c] / o.sb
 		}
 		f += part[2*k]
 	}
-	// Pass 2 over columns: ∇_W = Σ blocks + λ W and the penalty λ/2 ‖W‖².
+	// Pass 2 over columns: ∇_u = Σ blocks + λ_j u_j and the penalty
+	// Σ_j λ_j/2 ‖u_j‖² (= λ/2 ‖W‖²).
 	for c := 0; c < nt; c++ {
-		lo, hi := c*d*k/nt, (c+1)*d*k/nt
+		lo, hi := c*d/nt, (c+1)*d/nt
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			gw := g[lo:hi]
+			gw := g[lo*k : hi*k]
 			for _, buf := range o.gbuf {
-				floats.Add(gw, buf[lo:hi])
+				floats.Add(gw, buf[lo*k:hi*k])
 			}
 			var reg float64
-			if lam := o.lambda; lam != 0 {
-				for p, v := range W[lo:hi] {
-					gw[p] += lam * v
-					reg += v * v
+			if o.lambda != 0 {
+				for j := lo; j < hi; j++ {
+					lam := o.lamj[j]
+					gj, uj := g[j*k:j*k+k], W[j*k:j*k+k]
+					var r float64
+					for c, v := range uj {
+						gj[c] += lam * v
+						r += v * v
+					}
+					reg += lam * r
 				}
 			}
 			o.regs[c] = reg
@@ -403,7 +503,7 @@ func (o *logObjective) eval(x, g []float64) float64 {
 	}
 	wg.Wait()
 	for _, r := range o.regs {
-		f += 0.5 * o.lambda * r
+		f += 0.5 * r
 	}
 	return f
 }
