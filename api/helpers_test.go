@@ -53,7 +53,13 @@ type fixture struct {
 // gold answers, an admin "boss" and annotators ann1..annK, and serves it.
 func newFixture(t *testing.T, cfg Config, n int, gold []handoff.Gold, annotators int) *fixture {
 	t.Helper()
-	st, err := store.Create(t.TempDir(), testCodebook, "test")
+	return newFixtureWith(t, testCodebook, cfg, n, gold, annotators)
+}
+
+// newFixtureWith is newFixture with another codebook.
+func newFixtureWith(t *testing.T, cb handoff.Codebook, cfg Config, n int, gold []handoff.Gold, annotators int) *fixture {
+	t.Helper()
+	st, err := store.Create(t.TempDir(), cb, "test")
 	if err != nil {
 		t.Fatal(err)
 	}
