@@ -88,3 +88,28 @@ func TestZeroVarianceColumnGivesFiniteModel(t *testing.T) {
 		finiteModel(t, m.PredictProba(dense(Xr)))
 	}
 }
+
+func TestCalibrateRefusesBadInput(t *testing.T) {
+	X := dense([][]float64{{1, 0}, {0, 1}, {1, 1}, {2, 0}})
+	T := oneHot([]int{0, 1, 1, 0}, 2)
+	m, err := Bayes{}.Fit(X, T, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, _, err := Calibrate(m, &features.Dense{NCols: 2}, nil, nil); !errors.Is(err, ErrEmpty) {
+		t.Errorf("no validation rows: %v", err)
+	}
+	bad := oneHot([]int{0, 1, 1, 0}, 2)
+	bad[1][0] = math.NaN()
+	if _, _, err := Calibrate(m, X, bad, nil); err == nil || !strings.Contains(err.Error(), "NaN") {
+		t.Errorf("NaN target: %v", err)
+	}
+	if _, _, err := Calibrate(m, X, T, []float64{0, 0, 0, 0}); err == nil {
+		t.Error("all-zero weights: want an error")
+	}
+	c, cal, err := Calibrate(m, X, T, nil)
+	if err != nil || math.IsNaN(cal.Temperature) || cal.Temperature <= 0 {
+		t.Fatalf("calibration %+v, %v", cal, err)
+	}
+	finiteModel(t, c.PredictProba(X))
+}

@@ -94,14 +94,18 @@ func main() {
 	lm := m.(*learner.LogisticModel)
 
 	// Scoring: texts → TF-IDF rows → probabilities, best of reps.
-	best := 0.0
+	best, bestPredict := 0.0, 0.0
 	proba := make([]float64, len(xte)*k)
 	for r := 0; r < *reps; r++ {
 		t0 := time.Now()
 		Xte := vec.Transform(xte)
+		t1 := time.Now()
 		m.PredictProbaInto(proba, Xte)
 		if s := time.Since(t0).Seconds(); best == 0 || s < best {
 			best = s
+		}
+		if s := time.Since(t1).Seconds(); bestPredict == 0 || s < bestPredict {
+			bestPredict = s
 		}
 	}
 	correct := 0
@@ -121,8 +125,9 @@ func main() {
 		"features": X.Cols(), "C": *C,
 		"vectorise_seconds": vecSec, "fit_seconds": fitSec,
 		"iterations": lm.Iterations, "evaluations": lm.Evaluations, "nnz": len(X.Data), "status": lm.Status,
-		"accuracy":          float64(correct) / float64(len(yte)),
-		"score_texts_per_s": float64(len(xte)) / best,
+		"accuracy":                 float64(correct) / float64(len(yte)),
+		"score_texts_per_s":        float64(len(xte)) / best,
+		"predict_only_texts_per_s": float64(len(xte)) / bestPredict,
 	}
 	json.NewEncoder(os.Stdout).Encode(out)
 }
