@@ -7,9 +7,11 @@ import (
 	"runtime"
 	"sync"
 
+	"handoff"
 	"handoff/features"
 	"handoff/learner"
 	"handoff/selector"
+	"handoff/store"
 	"handoff/verdict"
 )
 
@@ -339,6 +341,120 @@ func CompareStrategies(X features.Matrix, y []int, k int, cfg CurveConfig, seeds
 	}
 	if c.Matched > 0 {
 		c.Share = float64(c.Ahead) / float64(c.Matched)
+	}
+	return c, nil
+}
+
+// ProjectCurveConfig configures ProjectCurves. Zero values are defaults.
+type ProjectCurveConfig struct {
+	// Curve sets the simulation; its Seed and Strategy are ignored (see
+	// Seeds; the strategy is Entropy against Random). Learner nil means the
+	// learner Train would fit (Train.Learner, Lambda, Trees, Seed).
+	// MaxLabels 0 means min(1000, pool rows); Initial 0 means
+	// min(50, MaxLabels/5); Batch 0 means 50 when at least 500 labels
+	// follow the initial set, else a tenth of them (at least 1).
+	Curve CurveConfig
+	// Train chooses the kind of items, the features and the learner, as
+	// for Train.
+	Train TrainConfig
+	// Seeds are the seeds averaged over; nil means 1, 2, 3, 4, 5.
+	Seeds []uint64
+}
+
+// ProjectCurves compares entropy selection with random selection on the
+// project's own items by simulation (CompareStrategies): the oracle is the
+// stored consensus — each item of the chosen kind with crowd labels gets its
+// most probable consensus class, a gold item its expert class — and the
+// features are fitted, without labels, on those items as Train would. The
+// figures show what entropy selection gains over random on data like the
+// project's; they are not held-out agreement. The crowd-labelled items may
+// themselves have been picked by selection, so they need not be a random
+// sample of the archive.
+//
+// It needs a stored consensus (run Consensus first) and enough labelled
+// items for a test set and a few batches; otherwise it returns an error
+// saying so.
+func ProjectCurves(st *store.Store, cfg ProjectCurveConfig) (*Comparison, error) {
+	p, err := load(st)
+	if err != nil {
+		return nil, err
+	}
+	cs, _, err := StoredConsensus(st)
+	if err != nil {
+		return nil, err
+	}
+	post, nl := posteriorsOf(p, cs)
+	K := len(p.cb.Classes)
+	kind := cfg.Train.Kind
+	if kind == "" {
+		kind = projectKind(p)
+	}
+	var rows, y []int
+	for i, it := range p.items {
+		if it.Kind != kind {
+			continue
+		}
+		switch {
+		case p.gold[i] >= 0:
+			y = append(y, p.gold[i])
+		case nl[i] > 0:
+			y = append(y, argmax(post[i*K:(i+1)*K]))
+		default:
+			continue
+		}
+		rows = append(rows, i)
+	}
+	cc, err := cfg.Curve.withDefaultsFor(len(rows))
+	if err != nil {
+		return nil, err
+	}
+	if cc.Learner == nil {
+		lname := cfg.Train.Learner
+		if lname == "" {
+			lname = "logistic"
+			if kind == handoff.KindImage {
+				lname = "forest"
+			}
+		}
+		if cc.Learner, err = learnerFor(lname, cfg.Train); err != nil {
+			return nil, err
+		}
+	}
+	all, err := featurise(p, kind, rows, cfg.Train, &learner.Machine{})
+	if err != nil {
+		return nil, err
+	}
+	seeds := cfg.Seeds
+	if seeds == nil {
+		seeds = []uint64{1, 2, 3, 4, 5}
+	}
+	cc.Strategy = selector.Entropy
+	return CompareStrategies(learner.Subset(all, rows), y, K, cc, seeds)
+}
+
+// withDefaultsFor fills ProjectCurveConfig's size defaults for n labelled
+// rows.
+func (c CurveConfig) withDefaultsFor(n int) (CurveConfig, error) {
+	share := c.TestShare
+	if share == 0 {
+		share = 0.3
+	}
+	pool := n - int(math.Round(share*float64(n)))
+	if pool < 30 || n-pool < 10 {
+		return c, fmt.Errorf("curves: %d labelled items with a consensus; need at least 45 (run `loop consensus` after more labels)", n)
+	}
+	if c.MaxLabels == 0 {
+		c.MaxLabels = min(1000, pool)
+	}
+	if c.Initial == 0 {
+		c.Initial = min(50, max(10, c.MaxLabels/5))
+	}
+	if c.Batch == 0 {
+		if rest := c.MaxLabels - c.Initial; rest >= 500 {
+			c.Batch = 50
+		} else {
+			c.Batch = max(1, rest/10)
+		}
 	}
 	return c, nil
 }

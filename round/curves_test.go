@@ -229,3 +229,36 @@ func TestLearningCurveRules(t *testing.T) {
 		t.Error("no seeds: no error")
 	}
 }
+
+// ProjectCurves on an invented project (simulation only): it refuses a
+// project without a stored consensus, then runs on the consensus classes,
+// deterministically.
+func TestProjectCurves(t *testing.T) {
+	st, _ := smallProject(t, t.TempDir(), 7)
+	cfg := ProjectCurveConfig{Seeds: []uint64{1, 2}}
+	if _, err := ProjectCurves(st, cfg); err == nil {
+		t.Fatal("no consensus yet: no error")
+	}
+	if _, err := Consensus(st, DefaultConsensus(), "t"); err != nil {
+		t.Fatal(err)
+	}
+	a, err := ProjectCurves(st, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := ProjectCurves(st, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !slices.Equal(a.Uncertain.Points, b.Uncertain.Points) || !slices.Equal(a.Random.Points, b.Random.Points) {
+		t.Error("same store and seeds, different curves")
+	}
+	pts := a.Uncertain.Points
+	if len(pts) < 5 || a.Matched != len(pts)-1 || len(a.Random.Points) != len(pts) {
+		t.Fatalf("curve of %d points, %d matched", len(pts), a.Matched)
+	}
+	t.Logf("%d budgets from %d to %d labels; entropy ahead at %d of %d", len(pts), pts[0].Labels, pts[len(pts)-1].Labels, a.Ahead, a.Matched)
+	if last := len(pts) - 1; a.Random.Points[last].Error >= a.Random.Points[0].Error {
+		t.Errorf("random error %v → %v: nothing learnt", a.Random.Points[0].Error, a.Random.Points[last].Error)
+	}
+}

@@ -1,0 +1,115 @@
+package main
+
+import (
+	"fmt"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"handoff/round"
+	"handoff/verdict"
+)
+
+func init() { register(newCurvesCmd) }
+
+func newCurvesCmd() *cobra.Command {
+	var (
+		cfg    round.ProjectCurveConfig
+		kind   string
+		seeds  int
+		html   string
+		asJSON bool
+	)
+	c := &cobra.Command{
+		Use:   "curves DIR",
+		Short: "Does picking unsure items beat random picks on this project? Simulated learning curves",
+		Long: `curves replays active learning on the project's crowd-labelled items, with their
+consensus class standing in for the crowd: per seed, 30% of them are a test set,
+a few are labelled at random, then batches are picked either by entropy (the
+items the model is least sure of, as ` + "`loop next`" + ` does) or at random, and the
+model is refitted at each budget. It prints the mean test accuracy of both
+over the seeds and the share of budgets where entropy is ahead.
+
+These are simulated figures on items people already labelled, not held-out
+agreement; if those items were themselves picked by selection, they are not a
+random sample of the archive.
+
+With --html it writes the latest round's verdict report with these two curves
+as its learning-curve plot (entropy as this project's curve, random dashed).`,
+		Example: `  loop curves proj
+  loop curves proj --seeds 10 --max 600
+  loop curves proj --html curves.html`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			k, err := parseKind(kind)
+			if err != nil {
+				return err
+			}
+			cfg.Train.Kind = k
+			if seeds < 1 {
+				return usageErrorf("--seeds %d: want at least 1", seeds)
+			}
+			cfg.Seeds = make([]uint64, seeds)
+			for i := range cfg.Seeds {
+				cfg.Seeds[i] = uint64(i + 1)
+			}
+			s, err := openStore(args[0])
+			if err != nil {
+				return err
+			}
+			defer s.Close()
+			cmp, err := round.ProjectCurves(s, cfg)
+			if err != nil {
+				return err
+			}
+			if html != "" {
+				rep, err := round.Verdict(s, round.VerdictConfig{})
+				if err != nil {
+					return fmt.Errorf("--html shows the curves in the latest round's verdict report: %w", err)
+				}
+				r := *rep
+				r.Curve = cmp.Uncertain.Points
+				r.Compare = &verdict.Series{Name: "random (simulated)", Points: cmp.Random.Points}
+				r.Fit = nil
+				r.FitError = fmt.Sprintf("Simulated by loop curves on the %d seeds %v: the solid curve is entropy selection, "+
+					"the dashed one random selection, each the mean test error over the seeds with the consensus as the oracle. "+
+					"Entropy is ahead at %d of %d budgets (%.0f%%).", len(cmp.Seeds), cmp.Seeds, cmp.Ahead, cmp.Matched, 100*cmp.Share)
+				w, done, err := openOutput(cmd, html)
+				if err != nil {
+					return err
+				}
+				err = r.WriteHTML(w, "Handoff learning curves — "+args[0])
+				if derr := done(err == nil); err == nil {
+					err = derr
+				}
+				if err != nil {
+					return err
+				}
+				infof(cmd, "report written to %s\n", html)
+			}
+			if asJSON {
+				return printJSON(cmd, cmp)
+			}
+			if html != "" && quiet(cmd) {
+				return nil
+			}
+			var b strings.Builder
+			fmt.Fprintf(&b, "test accuracy, mean over %d seeds (consensus as the oracle)\n%8s  %8s  %8s\n", len(cmp.Seeds), "labels", "entropy", "random")
+			for i, p := range cmp.Uncertain.Points {
+				fmt.Fprintf(&b, "%8d  %8.3f  %8.3f\n", p.Labels, 1-p.Error, 1-cmp.Random.Points[i].Error)
+			}
+			fmt.Fprintf(&b, "entropy ahead of random at %d of %d budgets (%.0f%%)\n", cmp.Ahead, cmp.Matched, 100*cmp.Share)
+			outf(cmd, "%s", b.String())
+			return nil
+		},
+	}
+	trainFlags(c, &cfg.Train, &kind)
+	fl := c.Flags()
+	fl.IntVar(&seeds, "seeds", 5, "number of seeds to average over (1..N)")
+	fl.IntVar(&cfg.Curve.MaxLabels, "max", 0, "last budget (default: 1000 or the items left after the test set)")
+	fl.IntVar(&cfg.Curve.Initial, "initial", 0, "items labelled at random first (default: 50, fewer on small projects)")
+	fl.IntVar(&cfg.Curve.Batch, "batch", 0, "items picked per step (default: 50, fewer on small projects)")
+	fl.StringVar(&html, "html", "", "write the latest round's verdict report with these curves to this file")
+	fl.BoolVar(&asJSON, "json", false, "print JSON")
+	return c
+}
