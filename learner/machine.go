@@ -262,6 +262,14 @@ func ReadMachine(r io.Reader) (*Machine, error) {
 	if f.Temperature != 0 {
 		m.Temperature = f.Temperature
 	}
+	if m.Image != nil {
+		if m.Scaler == nil {
+			return nil, errors.New("model file has image features but no scaler")
+		}
+		if err := m.Image.CheckNames(m.Scaler.Names); err != nil {
+			return nil, err
+		}
+	}
 	m.Model = f.Model()
 	if c, ok := m.Model.(*Calibrated); ok {
 		m.Model = c.Base // ProbaInto applies the temperature itself
