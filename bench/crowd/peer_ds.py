@@ -70,14 +70,20 @@ def main():
         ll = float((m + np.log(z))[labelled].sum())
         return S, ll
 
+    def cpu():
+        r = resource.getrusage(resource.RUSAGE_SELF)
+        return r.ru_utime + r.ru_stime
+
     times = []
     logprior, logpi = mstep(T)
+    cpu0 = cpu()
     ll = None
     for _ in range(iters):
         t0 = time.perf_counter()
         T, ll = estep(logprior, logpi)
         logprior, logpi = mstep(T)
         times.append(time.perf_counter() - t0)
+    cpu_iter = (cpu() - cpu0) / iters
     T, ll = estep(logprior, logpi)
     acc = float((T.argmax(0) == truth).mean())
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
@@ -85,6 +91,7 @@ def main():
         "tool": "numpy-peer", "numpy": np.__version__, "labels": n, "items": ni,
         "annotators": na, "classes": k, "iterations": iters,
         "seconds_setup": setup, "seconds_per_iter": sum(times) / len(times),
+        "cpu_seconds_per_iter": cpu_iter,
         "peak_rss_mb": peak, "accuracy_ds": acc, "log_likelihood": ll,
     }))
 
