@@ -1,9 +1,15 @@
 # The README's test command is `make test`; .ci/run calls exactly that.
 GO ?= go
 
-.PHONY: test vet unit build bench fuzz
+.PHONY: test vet unit build bench fuzz chromium
 
-test: vet unit
+# The browser tests (web/) need Chromium: install it when missing, and make
+# the tests fail rather than skip if it still cannot be found.
+test: export HANDOFF_REQUIRE_BROWSER = 1
+test: chromium vet unit
+
+chromium:
+	sh scripts/install-chromium.sh
 
 vet:
 	$(GO) vet ./...
