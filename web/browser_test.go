@@ -237,7 +237,7 @@ func until(t *testing.T, ctx context.Context, expr string) {
 	t.Helper()
 	deadline := time.Now().Add(15 * time.Second)
 	for time.Now().Before(deadline) {
-		if ok, err := chromedp.Run(ctx, chromedp.Evaluate[bool]("!!(" + expr + ")")); err == nil && ok {
+		if ok, err := chromedp.Run(ctx, chromedp.Evaluate[bool]("!!("+expr+")")); err == nil && ok {
 			return
 		}
 		time.Sleep(40 * time.Millisecond)
