@@ -80,34 +80,35 @@ func (c *Config) check() error {
 	return nil
 }
 
-// Build adds the pipeline to scope s. It reads the model once to check it
-// (and its threshold) before anything runs, so a wrong path or a model
-// without a threshold fails here rather than on the workers.
-func Build(ctx context.Context, s beam.Scope, c Config) error {
+// Build adds the pipeline to scope s and returns the PCollection<string> of
+// the paths of the files written. It reads the model once to check it (and
+// its threshold) before anything runs, so a wrong path or a model without a
+// threshold fails here rather than on the workers.
+func Build(ctx context.Context, s beam.Scope, c Config) (beam.PCollection, error) {
 	if err := c.check(); err != nil {
-		return err
+		return beam.PCollection{}, err
 	}
 	m, err := loadModel(ctx, c.Model)
 	if err != nil {
-		return err
+		return beam.PCollection{}, err
 	}
 	thr := c.Threshold
 	if thr == 0 {
 		thr = m.Threshold()
 	}
 	if thr <= 0 || thr > 1 {
-		return fmt.Errorf("autolabel: %s records no autolabel threshold; give one (e.g. --threshold 0.9)", c.Model)
+		return beam.PCollection{}, fmt.Errorf("autolabel: %s records no autolabel threshold; give one (e.g. --threshold 0.9)", c.Model)
 	}
 	s = s.Scope("autolabel")
 	lines := textio.ReadWithFilename(s, c.Items)
 	labels, people := beam.ParDo2(s, &scoreFn{
 		Model: c.Model, Threshold: thr, Images: c.Images, Batch: c.Batch, Shards: c.Shards,
 	}, lines)
-	beam.ParDo0(s.Scope("write labels"), &writeLabelsFn{Out: c.Out, Shards: c.Shards, Parquet: c.Parquet},
+	wl := beam.ParDo(s.Scope("write labels"), &writeLabelsFn{Out: c.Out, Shards: c.Shards, Parquet: c.Parquet},
 		beam.GroupByKey(s, labels))
-	beam.ParDo0(s.Scope("write people"), &writePeopleFn{Out: c.Out, Shards: c.Shards, Parquet: c.Parquet},
+	wp := beam.ParDo(s.Scope("write people"), &writePeopleFn{Out: c.Out, Shards: c.Shards, Parquet: c.Parquet},
 		beam.GroupByKey(s, people))
-	return nil
+	return beam.Flatten(s, wl, wp), nil
 }
 
 // ShardName returns the name of shard i of n for output kind ("labels" or

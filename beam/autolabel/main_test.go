@@ -9,6 +9,9 @@ import (
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
 )
 
+// tempDirs are removed when the tests end.
+var tempDirs []string
+
 // TestMain initialises Beam, as a pipeline's main must before building or
 // running a pipeline (Prism runs the workers in this process, in loopback
 // mode).
@@ -17,5 +20,9 @@ func TestMain(m *testing.M) {
 	// Prism and the SDK log every job at level INFO; keep warnings and errors.
 	slog.SetLogLoggerLevel(slog.LevelWarn)
 	beam.Init()
-	os.Exit(m.Run())
+	code := m.Run()
+	for _, d := range tempDirs {
+		os.RemoveAll(d)
+	}
+	os.Exit(code)
 }

@@ -38,7 +38,7 @@ func main() {
 	p, s := beam.NewPipelineWithRoot()
 	cfg := autolabel.Config{Items: *items, Images: *images, Model: *model, Threshold: *threshold,
 		Out: *out, Shards: *shards, Batch: *batch, Parquet: *pq}
-	if err := autolabel.Build(ctx, s, cfg); err != nil {
+	if _, err := autolabel.Build(ctx, s, cfg); err != nil {
 		fmt.Fprintln(os.Stderr, err)
 		os.Exit(2)
 	}
