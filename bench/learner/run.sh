@@ -46,6 +46,10 @@ rows = [
     ("scoring texts/s (vectorise + predict_proba)", f'{o["score_texts_per_s"]:,.0f}', f'{p["score_texts_per_s"]:,.0f}',
      f'{score_ratio:.2f}×', "≥ 3×", "pass" if score_ratio >= 3 else "short"),
     ("of which predict_proba only, texts/s", f'{o["predict_only_texts_per_s"]:,.0f}', "", "", "", ""),
+    ("fit CPU seconds (user + system, all threads)", f'{o["fit_cpu_seconds"]:.1f}', f'{p["fit_cpu_seconds"]:.1f}',
+     f'{p["fit_cpu_seconds"] / o["fit_cpu_seconds"]:.2f}× less', "(context)", ""),
+    ("scoring CPU seconds per pass over the test set", f'{o["score_cpu_seconds_per_rep"]:.3f}', f'{p["score_cpu_seconds_per_rep"]:.3f}',
+     f'{p["score_cpu_seconds_per_rep"] / o["score_cpu_seconds_per_rep"]:.2f}× less', "(context)", ""),
 ]
 with open(out, "w") as f:
     f.write("# Learner benchmark: TF-IDF + L2 logistic regression on the Debian package index\n\n")
