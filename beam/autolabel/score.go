@@ -6,7 +6,9 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"runtime"
 	"strings"
+	"sync"
 
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/register"
@@ -88,51 +90,73 @@ func (f *scoreFn) FinishBundle(ctx context.Context, emitL func(int, labelRows), 
 
 // items turns the buffered lines into items. Text records are parsed by
 // package ingest, the reader `loop items add` uses, so both accept and
-// refuse the same records.
+// refuse the same records; the batch is cut into GOMAXPROCS parts parsed at
+// once (as Machine.Label then featurises and scores on all cores).
 func (f *scoreFn) items() ([]handoff.Item, error) {
-	items := make([]handoff.Item, 0, len(f.lines))
+	n := len(f.lines)
+	items := make([]handoff.Item, n)
 	if f.Images {
 		for i, p := range f.lines {
-			items = append(items, handoff.Item{ID: f.ids[i], Kind: handoff.KindImage, Path: p})
+			items[i] = handoff.Item{ID: f.ids[i], Kind: handoff.KindImage, Path: p}
 		}
 		return items, nil
 	}
+	parts := min(runtime.GOMAXPROCS(0), max(1, n/256))
+	errs := make([]error, parts)
+	var wg sync.WaitGroup
+	for w := range parts {
+		lo, hi := w*n/parts, (w+1)*n/parts
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			errs[w] = f.parse(items[lo:hi], lo)
+		}()
+	}
+	wg.Wait()
+	for _, err := range errs {
+		if err != nil {
+			return nil, err
+		}
+	}
+	return items, nil
+}
+
+// parse reads the records f.lines[lo:lo+len(dst)] into dst.
+func (f *scoreFn) parse(dst []handoff.Item, lo int) error {
 	var buf bytes.Buffer
-	for _, l := range f.lines {
+	for _, l := range f.lines[lo : lo+len(dst)] {
 		buf.WriteString(l)
 		buf.WriteByte('\n')
 	}
 	r, err := ingest.NewItemReader(&buf, "batch", ingest.JSONL, ingest.ItemOptions{})
 	if err != nil {
-		return nil, err
+		return err
 	}
-	for {
+	for i := range dst {
 		it, err := r.Next()
 		if err == io.EOF {
-			break
+			return fmt.Errorf("autolabel: %s: read %d items from %d records", f.files[lo], i, len(dst))
 		}
 		if err != nil {
 			// Name the source file and the record rather than the
 			// line within the batch (textio does not keep line numbers).
 			var ie *ingest.Error
-			if errors.As(err, &ie) && ie.Line >= 1 && ie.Line <= len(f.lines) {
-				rec := f.lines[ie.Line-1]
+			if errors.As(err, &ie) && ie.Line >= 1 && ie.Line <= len(dst) {
+				at := lo + ie.Line - 1
+				rec := f.lines[at]
 				if len(rec) > 80 {
 					rec = rec[:80] + "…"
 				}
 				if ie.Field != "" {
-					return nil, fmt.Errorf("%s: record %s: field %q: %w", f.files[ie.Line-1], rec, ie.Field, ie.Err)
+					return fmt.Errorf("%s: record %s: field %q: %w", f.files[at], rec, ie.Field, ie.Err)
 				}
-				return nil, fmt.Errorf("%s: record %s: %w", f.files[ie.Line-1], rec, ie.Err)
+				return fmt.Errorf("%s: record %s: %w", f.files[at], rec, ie.Err)
 			}
-			return nil, err
+			return err
 		}
-		items = append(items, it)
+		dst[i] = it
 	}
-	if len(items) != len(f.lines) {
-		return nil, fmt.Errorf("autolabel: read %d items from %d records", len(items), len(f.lines))
-	}
-	return items, nil
+	return nil
 }
 
 func (f *scoreFn) flush(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
