@@ -36,7 +36,9 @@ import (
 // root of each weight's curvature at the start (p ≈ 1/K): a diagonal
 // preconditioner that leaves the minimiser unchanged but cuts the
 // iterations many-fold on text, where column frequencies span orders of
-// magnitude.
+// magnitude. With the same inputs and Threads a fit is bit-for-bit
+// reproducible; another Threads sums in another order and may change the
+// last digits.
 type Logistic struct {
 	// Lambda is the L2 penalty λ ≥ 0 on the weights (λ = 1/C).
 	Lambda float64

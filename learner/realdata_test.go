@@ -130,6 +130,34 @@ func TestTextAccuracyFloors(t *testing.T) {
 		if acc < c.floor || acc < sp.Peer-0.005 {
 			t.Errorf("%s: held-out accuracy %.4f below the floor %.3f or the peer's %.4f − 0.005", c.file, acc, c.floor, sp.Peer)
 		}
+		// Temperature scaling (Guo et al. 2017): hold out a fifth of the
+		// training rows, fit on the rest, fit T on the held-out fifth and
+		// compare the expected calibration error on the test rows.
+		if c.file == "pkgdesc.jsonl" {
+			fit, val, err := GroupSplit(len(tr), nil, 0.2, 2)
+			if err != nil {
+				t.Fatal(err)
+			}
+			trFit, trVal := pick(tr, fit), pick(tr, val)
+			vf, err := cfg.Fit(pick(texts, trFit))
+			if err != nil {
+				t.Fatal(err)
+			}
+			mf, err := Logistic{Lambda: 0.1}.Fit(vf.Transform(pick(texts, trFit)), oneHot(pick(y, trFit), len(keys)), nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			cm, cal, err := Calibrate(mf, vf.Transform(pick(texts, trVal)), oneHot(pick(y, trVal), len(keys)), nil)
+			if err != nil {
+				t.Fatal(err)
+			}
+			Xte := vf.Transform(pick(texts, te))
+			before, after := ECE(mf.PredictProba(Xte), pick(y, te)), ECE(cm.PredictProba(Xte), pick(y, te))
+			t.Logf("%s: temperature %.3f; validation ECE %.4f → %.4f, NLL %.4f → %.4f; test ECE %.4f → %.4f", c.file, cal.Temperature, cal.ECEBefore, cal.ECEAfter, cal.NLLBefore, cal.NLLAfter, before, after)
+			if !(after < before) {
+				t.Errorf("%s: temperature scaling did not lower the test ECE (%.4f → %.4f)", c.file, before, after)
+			}
+		}
 		// Naive Bayes on the same features must at least be far above chance.
 		nb, err := Bayes{Alpha: 0.1}.Fit(vec.Transform(pick(texts, tr)), oneHot(pick(y, tr), len(keys)), nil)
 		if err != nil {
