@@ -23,6 +23,12 @@ import (
 //
 // Tree t draws its randomness from a PCG generator seeded with (Seed, t),
 // so the forest is the same for a given Seed whatever Threads is.
+//
+// We wrote this forest rather than use github.com/sjwhitworth/golearn's
+// ensemble.RandomForest: golearn trains on a base.FixedDataGrid whose class
+// is one categorical attribute, so it cannot take soft targets or row
+// weights, and its bagging draws from the global math/rand source in
+// several goroutines, so a forest cannot be reproduced from a seed.
 type Forest struct {
 	// Trees is the number of trees; 0 means 100.
 	Trees int
