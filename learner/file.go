@@ -149,6 +149,7 @@ type ClassMismatchError struct {
 	Model, Codebook []string
 }
 
+// Error says which class keys the model and the codebook have.
 func (e *ClassMismatchError) Error() string {
 	return fmt.Sprintf("learner: the model was trained for classes %q but the codebook has %q: retrain the model for this codebook", e.Model, e.Codebook)
 }
