@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 )
 
@@ -149,10 +151,7 @@ func linearPredict(dst []float64, X features.Matrix, k, d int, W, b []float64, t
 	})
 }
 
-// axpy does y += a*x.
+// axpy does y += a*x (gonum's assembly kernel); len(x) must equal len(y).
 func axpy(y []float64, a float64, x []float64) {
-	x = x[:len(y)]
-	for c := range y {
-		y[c] += a * x[c]
-	}
+	floats.AddScaled(y, a, x)
 }
