@@ -249,20 +249,24 @@ func predictFull(m learner.Model, present []int, k int, X features.Matrix, rows 
 // Comparison is an uncertainty strategy against Random over several seeds.
 type Comparison struct {
 	// Seeds are the seeds run, one matched pair of curves each.
-	Seeds []uint64
+	Seeds []uint64 `json:"seeds"`
 	// Uncertain and Random are the mean test error over the seeds at each
 	// budget (Name: the strategy).
-	Uncertain, Random verdict.Series
+	Uncertain verdict.Series `json:"uncertain"`
+	Random    verdict.Series `json:"random"`
 	// UncertainSD and RandomSD are the standard deviations over the seeds
 	// (n − 1 denominator; 0 for one seed), aligned with the points.
-	UncertainSD, RandomSD []float64
+	UncertainSD []float64 `json:"uncertain_sd"`
+	RandomSD    []float64 `json:"random_sd"`
 	// Matched is the number of budgets compared: every budget above the
-	// initial labelled set (at the initial budget both curves share one
-	// model). Ahead is the number of them at which the uncertain
-	// strategy's mean error is strictly below Random's, and Share is
-	// Ahead / Matched.
-	Matched, Ahead int
-	Share          float64
+	// initial labelled set, where both curves share one model. (A budget
+	// that labels the whole pool also gives both the same model; it is
+	// compared, and cannot count as ahead.) Ahead is the number of matched
+	// budgets at which the uncertain strategy's mean error is strictly
+	// below Random's, and Share is Ahead / Matched.
+	Matched int     `json:"matched"`
+	Ahead   int     `json:"ahead"`
+	Share   float64 `json:"share"`
 }
 
 // CompareStrategies runs LearningCurve for cfg.Strategy ("" means Entropy)
@@ -350,7 +354,7 @@ type ProjectCurveConfig struct {
 	// Curve sets the simulation; its Seed and Strategy are ignored (see
 	// Seeds; the strategy is Entropy against Random). Learner nil means the
 	// learner Train would fit (Train.Learner, Lambda, Trees, Seed).
-	// MaxLabels 0 means min(1000, pool rows); Initial 0 means
+	// MaxLabels 0 means min(1000, ¾ of the pool rows); Initial 0 means
 	// min(50, MaxLabels/5); Batch 0 means 50 when at least 500 labels
 	// follow the initial set, else a tenth of them (at least 1).
 	Curve CurveConfig
@@ -444,7 +448,9 @@ func (c CurveConfig) withDefaultsFor(n int) (CurveConfig, error) {
 		return c, fmt.Errorf("curves: %d labelled items with a consensus; need at least 45 (run `loop consensus` after more labels)", n)
 	}
 	if c.MaxLabels == 0 {
-		c.MaxLabels = min(1000, pool)
+		// Three quarters of the pool at most: once the whole pool is
+		// labelled both strategies train on the same rows.
+		c.MaxLabels = min(1000, pool*3/4)
 	}
 	if c.Initial == 0 {
 		c.Initial = min(50, max(10, c.MaxLabels/5))

@@ -106,7 +106,7 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
 	trainFlags(c, &cfg.Train, &kind)
 	fl := c.Flags()
 	fl.IntVar(&seeds, "seeds", 5, "number of seeds to average over (1..N)")
-	fl.IntVar(&cfg.Curve.MaxLabels, "max", 0, "last budget (default: 1000 or the items left after the test set)")
+	fl.IntVar(&cfg.Curve.MaxLabels, "max", 0, "last budget (default: 1000, or ¾ of the items left after the test set if fewer)")
 	fl.IntVar(&cfg.Curve.Initial, "initial", 0, "items labelled at random first (default: 50, fewer on small projects)")
 	fl.IntVar(&cfg.Curve.Batch, "batch", 0, "items picked per step (default: 50, fewer on small projects)")
 	fl.StringVar(&html, "html", "", "write the latest round's verdict report with these curves to this file")
