@@ -112,10 +112,11 @@ func TestKillDuringLabelling(t *testing.T) {
 		number               float64
 	}
 	var (
-		mu    sync.Mutex
-		acked []ack
-		stop  atomic.Bool
-		wg    sync.WaitGroup
+		mu      sync.Mutex
+		acked   []ack
+		refused int
+		stop    atomic.Bool
+		wg      sync.WaitGroup
 	)
 	client := &http.Client{Timeout: 5 * time.Second}
 	// send retries a request until the server gives a definitive answer
@@ -169,6 +170,16 @@ func TestKillDuringLabelling(t *testing.T) {
 				// A label in flight is always seen through to an answer,
 				// even after stop, so that every acknowledgement is known.
 				code, b, _ = send("POST", "/api/v1/labels", tokens[a], body, key)
+				if code == http.StatusConflict && strings.Contains(string(b), "lease_unknown") {
+					// The server was killed after handing out the item but
+					// before the lease's stored copy landed, and the label
+					// was never stored (a retry of a stored label is
+					// answered as a duplicate): fetch the next item.
+					mu.Lock()
+					refused++
+					mu.Unlock()
+					continue
+				}
 				if code != http.StatusCreated && code != http.StatusOK {
 					t.Errorf("%s label %s: %d %s", id, key, code, b)
 					return
@@ -187,7 +198,7 @@ func TestKillDuringLabelling(t *testing.T) {
 		defer mu.Unlock()
 		return len(acked)
 	}
-	// Each kill comes a random 0–300 ms after the restarted server has
+	// Each kill comes a random 0–500 ms after the restarted server has
 	// acknowledged its first label (before that it is busy verifying
 	// tokens, which are hashed with argon2id).
 	rng := rand.New(rand.NewPCG(20260301, 6))
@@ -200,7 +211,7 @@ func TestKillDuringLabelling(t *testing.T) {
 		if nAcked() == n0 {
 			t.Fatalf("no label acknowledged for 20 s after restart %d", k)
 		}
-		time.Sleep(time.Duration(rng.IntN(300)) * time.Millisecond)
+		time.Sleep(time.Duration(rng.IntN(500)) * time.Millisecond)
 		if err := srv.cmd.Process.Signal(syscall.SIGKILL); err != nil {
 			t.Fatal(err)
 		}
@@ -250,8 +261,8 @@ func TestKillDuringLabelling(t *testing.T) {
 	if len(labels) != len(acked) {
 		t.Errorf("%d labels stored, %d acknowledged: every stored label should have been acknowledged (retries see duplicates)", len(labels), len(acked))
 	}
-	if len(acked) < 500 {
+	if len(acked) < 300 {
 		t.Errorf("only %d labels acknowledged: the test did not exercise the server", len(acked))
 	}
-	t.Logf("%d kills; %d labels acknowledged, %d stored", kills, len(acked), len(labels))
+	t.Logf("%d kills; %d labels acknowledged, %d stored; %d answers refused because their lease was lost in a kill", kills, len(acked), len(labels), refused)
 }

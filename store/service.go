@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"sync"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -16,7 +17,7 @@ import (
 
 // What the HTTP service writes: labels sent one at a time with an
 // idempotency key, and the leases that hand items out to people. These writes
-// are group-committed with bbolt's DB.Batch: many concurrent calls share one
+// are group-committed (see batch): many concurrent calls share one
 // transaction and one fsync, and each call returns only after that
 // transaction has committed.
 //
@@ -79,43 +80,135 @@ var (
 	ErrKeyReused       = errors.New("the idempotency key was already used for a different label")
 )
 
-// errImportRunning makes a batched write step aside while a chunked import
-// holds the project (see batch).
-var errImportRunning = errors.New("store: an import is in progress")
-
 // maxKey is the longest idempotency key accepted, in bytes.
 const maxKey = 200
 
-// SetBatch sets how group commit gathers writes: at most size calls share a
-// transaction, and a transaction starts at most delay after its first call.
-// Values ≤ 0 keep bbolt's defaults (1000 calls, 10 ms). Call it before the
-// store is in use.
+// SetBatch caps how many writes share one group commit (size ≤ 0 keeps
+// the default, 2000). delay is ignored: see batch. Call it before the store
+// is in use.
 func (s *Store) SetBatch(size int, delay time.Duration) {
 	if size > 0 {
-		s.db.MaxBatchSize = size
-	}
-	if delay > 0 {
-		s.db.MaxBatchDelay = delay
+		s.groupOf().setMax(size)
 	}
 }
 
-// batch runs fn in a group-committed write transaction (bbolt's DB.Batch)
-// and returns once it has committed. fn may be called more than once and
-// must reset whatever it records outside the transaction on each call. While
-// a chunked import is half-way (its mark is set) fn does not run in a batch;
-// it waits for the import to finish and then runs on its own, so it never
-// lands among rows an import rollback would remove.
-func (s *Store) batch(fn func(tx *bolt.Tx) error) error {
-	err := s.db.Batch(func(tx *bolt.Tx) error {
-		if tx.Bucket(bMeta).Get(kPending) != nil {
-			return errImportRunning
-		}
-		return fn(tx)
-	})
-	if errors.Is(err, errImportRunning) {
-		return s.write(fn)
+// groups holds each open Store's group-commit queue (kept beside the Store
+// so that the Store type, defined in store.go, stays as it is; an entry is a
+// few words and lives as long as the process).
+var groups sync.Map // *Store → *groupCommit
+
+func (s *Store) groupOf() *groupCommit {
+	if g, ok := groups.Load(s); ok {
+		return g.(*groupCommit)
 	}
-	return err
+	g, _ := groups.LoadOrStore(s, &groupCommit{})
+	return g.(*groupCommit)
+}
+
+func (g *groupCommit) setMax(n int) {
+	g.mu.Lock()
+	g.max = n
+	g.mu.Unlock()
+}
+
+// groupCommit gathers the service's writes into shared transactions.
+type groupCommit struct {
+	mu      sync.Mutex
+	pending []*groupCall
+	running bool
+	max     int
+}
+
+type groupCall struct {
+	fn   func(tx *bolt.Tx) error
+	done chan error
+}
+
+// batch runs fn in a group-committed write transaction and returns once it
+// has committed (group commit). While one transaction commits, the writes
+// that arrive queue up; the next transaction takes all of them (up to the
+// cap), so under load one fsync serves many writers, and an idle store
+// commits a lone write at once. (bbolt's DB.Batch closes a batch after a
+// fixed delay even while the previous commit is still running, which splits
+// concurrent writers into several small commits when fsync is slow.)
+//
+// fn may be called more than once (if another write of its group fails, the
+// group is run again without it) and must reset whatever it records outside
+// the transaction on each call. The group holds the store's write lock, so
+// it never lands among the rows of a chunked import.
+func (s *Store) batch(fn func(tx *bolt.Tx) error) error {
+	c := &groupCall{fn: fn, done: make(chan error, 1)}
+	g := s.groupOf()
+	g.mu.Lock()
+	g.pending = append(g.pending, c)
+	if !g.running {
+		g.running = true
+		go s.commitLoop()
+	}
+	g.mu.Unlock()
+	return <-c.done
+}
+
+// commitLoop commits queued writes, a group at a time, until none are left.
+func (s *Store) commitLoop() {
+	g := s.groupOf()
+	for {
+		g.mu.Lock()
+		n := len(g.pending)
+		if n == 0 {
+			g.running = false
+			g.mu.Unlock()
+			return
+		}
+		max := g.max
+		if max <= 0 {
+			max = 2000
+		}
+		n = min(n, max)
+		calls := append([]*groupCall(nil), g.pending[:n]...)
+		g.pending = append(g.pending[:0], g.pending[n:]...)
+		g.mu.Unlock()
+		s.commitGroup(calls)
+	}
+}
+
+// commitGroup runs calls in one transaction. A call whose fn fails gets its
+// error and the rest are run again without it.
+func (s *Store) commitGroup(calls []*groupCall) {
+	s.wmu.Lock()
+	defer s.wmu.Unlock()
+	for len(calls) > 0 {
+		failed := -1
+		err := s.db.Update(func(tx *bolt.Tx) error {
+			for i, c := range calls {
+				if err := safeCall(c.fn, tx); err != nil {
+					failed = i
+					return err
+				}
+			}
+			return nil
+		})
+		if err != nil && failed >= 0 {
+			calls[failed].done <- err
+			calls = append(calls[:failed], calls[failed+1:]...)
+			continue
+		}
+		for _, c := range calls {
+			c.done <- err
+		}
+		return
+	}
+}
+
+// safeCall turns a panic in fn into an error, so that one bad write cannot
+// leave the others waiting.
+func safeCall(fn func(tx *bolt.Tx) error, tx *bolt.Tx) (err error) {
+	defer func() {
+		if p := recover(); p != nil {
+			err = fmt.Errorf("store: panic in a grouped write: %v", p)
+		}
+	}()
+	return fn(tx)
 }
 
 func svcKey(a, b string) []byte {

@@ -53,6 +53,7 @@ func main() {
 		warmup     = flag.Duration("warmup", 2*time.Second, "unmeasured run before the measured one")
 		peer       = flag.Bool("peer", false, "run against the one-transaction-per-label baseline instead")
 		keep       = flag.String("dir", "", "project directory (default: a temporary one, removed afterwards)")
+		separate   = flag.Bool("separate", false, "fetch each item with its own GET /api/v1/next instead of asking for it in the label's reply")
 	)
 	flag.Parse()
 	if !*peer && *loopBin == "" {
@@ -114,8 +115,8 @@ func main() {
 
 	client := &http.Client{Transport: &http.Transport{MaxIdleConnsPerHost: *annotators * 2, MaxConnsPerHost: *annotators * 2}, Timeout: 10 * time.Second}
 	// Warm-up: every token is verified once (argon2id) and connections open.
-	run(client, base, tokens, *warmup, *maxLabels, "w")
-	res := run(client, base, tokens, *duration, *maxLabels, "m")
+	run(client, base, tokens, *warmup, *maxLabels, "w", *separate)
+	res := run(client, base, tokens, *duration, *maxLabels, "m", *separate)
 	stopServer()
 
 	if !*peer {
@@ -183,7 +184,7 @@ type result struct {
 
 // run lets every annotator fetch and label items until d has passed or max
 // labels are acknowledged.
-func run(client *http.Client, base string, tokens []string, d time.Duration, max int, tag string) result {
+func run(client *http.Client, base string, tokens []string, d time.Duration, max int, tag string, separate bool) result {
 	var (
 		mu    sync.Mutex
 		res   result
@@ -199,31 +200,42 @@ func run(client *http.Client, base string, tokens []string, d time.Duration, max
 			var acked []string
 			var ll, nl []time.Duration
 			errs := 0
+			var nr *api.NextReply
 			for k := 0; time.Now().Before(deadline) && count.Load() < int64(max); k++ {
-				t0 := time.Now()
-				code, b := do(client, "GET", base+"/api/v1/next", tok, nil, "")
-				nl = append(nl, time.Since(t0))
-				if code != http.StatusOK {
-					errs++
-					continue
+				if nr == nil || nr.Lease == nil {
+					t0 := time.Now()
+					code, b := do(client, "GET", base+"/api/v1/next", tok, nil, "")
+					nl = append(nl, time.Since(t0))
+					nr = new(api.NextReply)
+					if code != http.StatusOK || json.Unmarshal(b, nr) != nil {
+						errs++
+						nr = nil
+						continue
+					}
+					if nr.Lease == nil {
+						time.Sleep(10 * time.Millisecond)
+						continue
+					}
 				}
-				var nr api.NextReply
-				if json.Unmarshal(b, &nr) != nil || nr.Lease == nil {
-					errs++
-					time.Sleep(10 * time.Millisecond)
-					continue
-				}
-				body, _ := json.Marshal(api.LabelRequest{Lease: nr.Lease.ID, Item: nr.Item.ID, Label: []string{"a", "b", "c"}[k%3], Seconds: 1.5})
+				body, _ := json.Marshal(api.LabelRequest{Lease: nr.Lease.ID, Item: nr.Item.ID, Label: []string{"a", "b", "c"}[k%3], Seconds: 1.5, Next: !separate})
 				key := fmt.Sprintf("%s-%d-%d", tag, a, k)
 				t1 := time.Now()
-				code, _ = do(client, "POST", base+"/api/v1/labels", tok, body, key)
+				code, b := do(client, "POST", base+"/api/v1/labels", tok, body, key)
 				ll = append(ll, time.Since(t1))
+				item := nr.Item.ID
+				nr = nil
 				if code != http.StatusCreated && code != http.StatusOK {
 					errs++
 					continue
 				}
 				count.Add(1)
-				acked = append(acked, nr.Item.ID+"/"+fmt.Sprintf("ann%03d", a))
+				acked = append(acked, item+"/"+fmt.Sprintf("ann%03d", a))
+				if !separate {
+					var lr api.LabelReply
+					if json.Unmarshal(b, &lr) == nil && lr.Next != nil {
+						nr = lr.Next
+					}
+				}
 			}
 			mu.Lock()
 			res.acked = append(res.acked, acked...)
