@@ -4,7 +4,10 @@
 # learner.Machine.Label call over every item, as `loop autolabel` scores),
 # on 1,000,000 short texts, with 1 and 2 cores (GOMAXPROCS); the model is
 # made and exported with `loop round` and `loop model export`. Writes
-# bench/beam/RESULTS.md. Needs only Go (the Beam SDK is a module of beam/).
+# bench/beam/RESULTS.md and the raw runs to bench/beam/runs.jsonl (the report
+# can be redrawn from them: cd beam && go run ./internal/bench report -runs
+# ../bench/beam/runs.jsonl -features ../bench/features/RESULTS.md). Needs only
+# Go (the Beam SDK is a module of beam/).
 #
 #   bash bench/beam/run.sh            # N=1000000 REPS=3 by default
 set -euo pipefail
@@ -28,5 +31,6 @@ for rep in $(seq "$REPS"); do
 	done
 done
 load=$(cut -d' ' -f1-3 /proc/loadavg | sed 's/ / \/ /g')
-"$work/bench" report -runs "$work/runs.jsonl" -features "$root/bench/features/RESULTS.md" -load "$load" > bench/beam/RESULTS.md
+cp "$work/runs.jsonl" bench/beam/runs.jsonl
+"$work/bench" report -runs bench/beam/runs.jsonl -features "$root/bench/features/RESULTS.md" -load "$load" > bench/beam/RESULTS.md
 cat bench/beam/RESULTS.md
