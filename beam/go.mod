@@ -5,7 +5,7 @@ go 1.26.0
 require (
 	github.com/apache/beam/sdks/v2 v2.77.0
 	github.com/parquet-go/parquet-go v0.32.0
-	handoff v0.0.0-00010101000000-000000000000
+	handoff v0.0.0
 )
 
 require (

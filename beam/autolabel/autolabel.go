@@ -169,11 +169,13 @@ func resolve(listFile, p string) string {
 	if path.IsAbs(p) || strings.Contains(p, "://") {
 		return p
 	}
-	dir := listFile
-	if i := strings.LastIndex(dir, "/"); i >= 0 {
-		dir = dir[:i]
-	} else {
-		dir = "."
+	i := strings.LastIndex(listFile, "/")
+	if i < 0 {
+		return path.Clean(p)
 	}
-	return path.Join(dir, p)
+	if strings.Contains(listFile, "://") {
+		// path.Join would fold the scheme's "//".
+		return listFile[:i+1] + path.Clean(p)
+	}
+	return path.Join(listFile[:i], p)
 }

@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"context"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"slices"
@@ -251,5 +252,34 @@ func TestBadInput(t *testing.T) {
 	_, err := prism.Execute(ctx, p)
 	if err == nil || !strings.Contains(err.Error(), "bad.jsonl") || !strings.Contains(err.Error(), "x7") || !strings.Contains(err.Error(), "missing text") {
 		t.Fatalf("got %v, want an error naming bad.jsonl, record x7 and the missing text", err)
+	}
+}
+
+func TestResolve(t *testing.T) {
+	for _, tc := range []struct{ list, p, want string }{
+		{"/data/lists/a.txt", "img/x.png", "/data/lists/img/x.png"},
+		{"/data/lists/a.txt", "../img/x.png", "/data/img/x.png"},
+		{"/data/lists/a.txt", "/abs/x.png", "/abs/x.png"},
+		{"a.txt", "img/x.png", "img/x.png"},
+		{"gs://bucket/lists/a.txt", "img/x.png", "gs://bucket/lists/img/x.png"},
+		{"gs://bucket/lists/a.txt", "gs://other/x.png", "gs://other/x.png"},
+	} {
+		if got := resolve(tc.list, tc.p); got != tc.want {
+			t.Errorf("resolve(%q, %q) = %q, want %q", tc.list, tc.p, got, tc.want)
+		}
+	}
+}
+
+func TestShardName(t *testing.T) {
+	if got := ShardName("labels", 3, 16, "parquet"); got != "labels-00003-of-00016.parquet" {
+		t.Errorf("ShardName = %q", got)
+	}
+	// Every shard index is reached and the hash is stable.
+	seen := map[int]bool{}
+	for i := range 200 {
+		seen[shardOf(fmt.Sprintf("item-%d", i), 7)] = true
+	}
+	if len(seen) != 7 || shardOf("abc", 7) != shardOf("abc", 7) {
+		t.Errorf("shards reached: %v", seen)
 	}
 }
