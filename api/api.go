@@ -16,7 +16,11 @@
 //   - A label is acknowledged (2xx) only after the transaction that wrote it
 //     has committed; concurrent labels share transactions (group commit). A
 //     label carries an idempotency key: sending it again returns the first
-//     answer and writes nothing.
+//     answer and writes nothing. A label must come under a live lease of its
+//     sender; leases are kept in memory, and a stored copy, written in the
+//     background, brings them back after a restart (a lease handed out in the
+//     moment before a crash may be lost: its answer is refused, never
+//     half-stored, and the person gets another item).
 //   - People sign in with a token (`loop people add`), kept only as an
 //     argon2id hash. Annotators see items, the codebook and their own labels,
 //     never gold answers (outside the training), the consensus, machine
@@ -72,10 +76,9 @@ type Config struct {
 	SessionTime time.Duration
 	// Seed seeds rounds run from the board.
 	Seed uint64
-	// BatchSize and BatchDelay tune group commit (see store.SetBatch);
-	// ≤ 0 keeps the defaults (1000 writes, 2 ms).
-	BatchSize  int
-	BatchDelay time.Duration
+	// GroupSize caps the writes that share one commit (see
+	// store.SetGroupSize); ≤ 0 keeps the default (2000).
+	GroupSize int
 	// Now gives the time (time.Now if nil); tests set it.
 	Now func() time.Time
 	// Logf, if set, receives one line per server event (not per request).
@@ -125,9 +128,6 @@ func (c *Config) defaults() {
 	if c.SessionTime <= 0 {
 		c.SessionTime = 12 * time.Hour
 	}
-	if c.BatchDelay <= 0 {
-		c.BatchDelay = 2 * time.Millisecond
-	}
 	if c.Now == nil {
 		c.Now = time.Now
 	}
@@ -172,7 +172,7 @@ func (sv *Server) background(fn func() error) {
 // done; the store stays open and is the caller's to close.
 func New(st *store.Store, cfg Config) (*Server, error) {
 	cfg.defaults()
-	st.SetBatch(cfg.BatchSize, cfg.BatchDelay)
+	st.SetGroupSize(cfg.GroupSize)
 	sv := &Server{st: st, cfg: cfg, stop: make(chan struct{})}
 	sv.metrics = newMetrics()
 	p, err := newPool(st, cfg, sv.metrics)

@@ -69,10 +69,21 @@ func TestLabelFlowAndRetry(t *testing.T) {
 	if _, i := f.next("ann1"); i == item || i == "" {
 		t.Errorf("ann1 got %q after labelling %q", i, item)
 	}
+	// A label may ask for the next item in its reply.
+	l3, i3 := f.next("ann1")
+	r = f.do("POST", "/api/v1/labels", "ann1", LabelRequest{Lease: l3, Item: i3, Label: "other", Next: true}, "Idempotency-Key", "k-3")
+	var withNext LabelReply
+	json.Unmarshal(r.body, &withNext)
+	if r.status != http.StatusCreated || withNext.Next == nil || withNext.Next.Item == nil || withNext.Next.Item.ID == i3 {
+		t.Fatalf("label with next: %d %s", r.status, r.body)
+	}
+	if l4, i4 := f.next("ann1"); l4 != withNext.Next.Lease.ID || i4 != withNext.Next.Item.ID {
+		t.Errorf("GET next after a label with next gives %s %s, want the same lease %+v", l4, i4, withNext.Next.Lease)
+	}
 	r = f.do("GET", "/api/v1/me", "ann1", nil)
 	var me MeReply
 	json.Unmarshal(r.body, &me)
-	if me.Progress.Labelled != 1 || me.Progress.Today != 1 || me.Training.State != "off" {
+	if me.Progress.Labelled != 2 || me.Progress.Today != 2 || me.Training.State != "off" {
 		t.Errorf("me: %s", r.body)
 	}
 }

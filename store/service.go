@@ -83,13 +83,10 @@ var (
 // maxKey is the longest idempotency key accepted, in bytes.
 const maxKey = 200
 
-// SetBatch caps how many writes share one group commit (size ≤ 0 keeps
-// the default, 2000). delay is ignored: see batch. Call it before the store
-// is in use.
-func (s *Store) SetBatch(size int, delay time.Duration) {
-	if size > 0 {
-		s.groupOf().setMax(size)
-	}
+// SetGroupSize caps how many writes share one group commit (n ≤ 0 keeps
+// the default, 2000).
+func (s *Store) SetGroupSize(n int) {
+	s.groupOf().setMax(n)
 }
 
 // groups holds each open Store's group-commit queue (kept beside the Store

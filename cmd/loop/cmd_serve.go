@@ -96,6 +96,5 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 	f.Float64Var(&cfg.Rate, "rate", 200, "requests per second allowed per person, on average")
 	f.IntVar(&cfg.Burst, "burst", 400, "requests allowed per person at once")
 	f.Uint64Var(&cfg.Seed, "seed", 1, "seed for rounds run from the board and for bootstrap intervals")
-	f.DurationVar(&cfg.BatchDelay, "batch-delay", 2*time.Millisecond, "longest wait to gather concurrent writes into one commit")
 	return c
 }
