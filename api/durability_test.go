@@ -102,10 +102,26 @@ func TestKillDuringLabelling(t *testing.T) {
 		}
 	}
 	st.Close()
+	// The command line adds an admin and prints the token once.
+	out, err := exec.Command(bin, "people", "add", dir, "lead", "--admin", "--quiet").Output()
+	if err != nil {
+		t.Fatalf("loop people add: %v", err)
+	}
+	leadToken := strings.TrimSpace(string(out))
+	if list, err := exec.Command(bin, "people", "list", dir, "--json").Output(); err != nil || !strings.Contains(string(list), `"id": "lead"`) || strings.Contains(string(list), leadToken) {
+		t.Fatalf("loop people list: %v %s", err, list)
+	}
 
 	var base atomic.Value
 	srv := startServer(t, bin, dir)
 	base.Store(srv.base)
+	req, _ := http.NewRequest("GET", srv.base+"/api/v1/status", nil)
+	req.Header.Set("Authorization", "Bearer "+leadToken)
+	if resp, err := http.DefaultClient.Do(req); err != nil || resp.StatusCode != http.StatusOK {
+		t.Fatalf("the token from loop people add: %v %v", resp, err)
+	} else {
+		resp.Body.Close()
+	}
 
 	type ack struct {
 		item, annotator, key string
