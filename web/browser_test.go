@@ -3,6 +3,9 @@ package web_test
 import (
 	"context"
 	"fmt"
+	"image"
+	"image/color"
+	"image/png"
 	"net/http/httptest"
 	"os"
 	"os/exec"
@@ -431,4 +434,52 @@ func TestBoard(t *testing.T) {
 		t.Errorf("the verdict report has %d plots", plots)
 	}
 	screenshot(t, ctx, "verdict-report.png")
+}
+
+// TestImageItem shows an image item (served by item id) and zooms it with
+// the keyboard.
+func TestImageItem(t *testing.T) {
+	dir := t.TempDir()
+	img := image.NewRGBA(image.Rect(0, 0, 120, 80))
+	for y := 0; y < 80; y++ {
+		for x := 0; x < 120; x++ {
+			img.Set(x, y, color.RGBA{uint8(2 * x), uint8(3 * y), 120, 255})
+		}
+	}
+	path := filepath.Join(dir, "cells.png")
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := png.Encode(f, img); err != nil {
+		t.Fatal(err)
+	}
+	f.Close()
+	st, err := store.Create(filepath.Join(dir, "p"), codebook, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { st.Close() })
+	if _, err := st.PutItems([]handoff.Item{{ID: "cells", Kind: handoff.KindImage, Path: path}}, false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	p := serve(t, st, api.Config{Training: -1, Quiz: -1}, map[string]bool{"sam": false})
+	ctx := browser(t, 1000, 800)
+	signIn(t, ctx, p.ts.URL, p.tokens["sam"], "/label")
+	until(t, ctx, `document.getElementById("img").complete && document.getElementById("img").naturalWidth === 120`)
+	if err := chromedp.Do(ctx, chromedp.KeyEvent("+"), chromedp.KeyEvent("+")); err != nil {
+		t.Fatal(err)
+	}
+	until(t, ctx, `document.getElementById("img").style.width === "156.25%"`)
+	if !eval[bool](t, ctx, `(() => { const b = document.getElementById("zoombox"); return b.scrollWidth > b.clientWidth; })()`) {
+		t.Error("the zoomed image does not overflow its box (no scrolling to see it whole)")
+	}
+	screenshot(t, ctx, "label-image-zoomed.png")
+	if err := chromedp.Do(ctx, chromedp.KeyEvent("0")); err != nil {
+		t.Fatal(err)
+	}
+	until(t, ctx, `document.getElementById("img").style.width === "100%"`)
+	if alt := text(ctx, "#item-id"); alt != "Item cells" {
+		t.Errorf("item id %q", alt)
+	}
 }

@@ -55,6 +55,7 @@
     const imgBox = $("item-image");
     if (!item) {
       text.textContent = "";
+      text.hidden = false;
       imgBox.hidden = true;
       $("item-id").textContent = "";
       setAnswering(false);
@@ -62,14 +63,17 @@
     }
     if (item.kind === "image") {
       text.textContent = "";
+      text.hidden = true;
       imgBox.hidden = false;
       state.zoom = 1;
       applyZoom();
       const img = $("img");
       img.alt = "Image of item " + item.id;
+      img.onload = () => img.classList.toggle("small", img.naturalWidth < 200);
       img.src = item.image;
     } else {
       imgBox.hidden = true;
+      text.hidden = false;
       text.textContent = item.text; // always text, never markup
     }
     $("item-id").textContent = "Item " + item.id;
@@ -91,9 +95,11 @@
     $("unsure").hidden = !work;
   }
 
+  // applyZoom sizes the image as a share of the box's width (1 = fit the
+  // width); the box scrolls when it is larger.
   function applyZoom() {
     const img = $("img");
-    img.style.transform = "scale(" + state.zoom + ")";
+    img.style.width = (100 * state.zoom) + "%";
     $("zoombox").classList.toggle("zoomed", state.zoom !== 1);
   }
 
