@@ -36,6 +36,11 @@ var (
 // items within a bundle, scores each batch with one call to
 // learner.Machine.Label, and emits the rows of each batch grouped by output
 // shard: machine labels for confidence ≥ Threshold, items for people below.
+//
+// One batch is scored in the background while the next is read, so the
+// reading (one goroutine) overlaps the parsing, featurising and scoring
+// (all cores); rows are emitted from ProcessElement or FinishBundle, as
+// Beam requires, in batch order.
 type scoreFn struct {
 	Model     string
 	Threshold float64
@@ -43,10 +48,25 @@ type scoreFn struct {
 	Batch     int
 	Shards    int
 
-	m     *learner.Machine
+	m       *learner.Machine
+	cur     *batch
+	pending chan *scored // the batch in flight, nil if none
+}
+
+// batch is the lines buffered for one scoring call.
+type batch struct {
 	lines []string // JSONL records (text) or resolved paths (images)
 	ids   []string // image ids (the path as written)
-	files []string // the file each buffered line came from, for errors
+	files []string // the file each line came from, for errors
+}
+
+// scored is a batch's rows by output shard, or the error that stopped it.
+type scored struct {
+	lab    [][]Label
+	ppl    [][]ForPeople
+	n      int
+	err    error
+	reused *batch
 }
 
 // Setup loads the model once per worker process (shared by every
@@ -61,43 +81,140 @@ func (f *scoreFn) Setup(ctx context.Context) error {
 }
 
 func (f *scoreFn) StartBundle(ctx context.Context, _ func(int, labelRows), _ func(int, peopleRows)) {
-	f.lines, f.ids, f.files = f.lines[:0], f.ids[:0], f.files[:0]
+	if f.cur == nil {
+		f.cur = &batch{}
+	}
+	f.cur.reset()
+	f.pending = nil
 }
+
+func (b *batch) reset() { b.lines, b.ids, b.files = b.lines[:0], b.ids[:0], b.files[:0] }
 
 func (f *scoreFn) ProcessElement(ctx context.Context, file, line string, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
 	t := strings.TrimSpace(line)
 	if t == "" {
 		return nil
 	}
+	b := f.cur
 	if f.Images {
 		if strings.HasPrefix(t, "#") {
 			return nil
 		}
-		f.ids = append(f.ids, t)
+		b.ids = append(b.ids, t)
 		t = resolve(file, t)
 	}
-	f.lines = append(f.lines, t)
-	f.files = append(f.files, file)
-	if len(f.lines) >= f.Batch {
+	b.lines = append(b.lines, t)
+	b.files = append(b.files, file)
+	if len(b.lines) >= f.Batch {
 		return f.flush(ctx, emitL, emitP)
 	}
 	return nil
 }
 
 func (f *scoreFn) FinishBundle(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
-	return f.flush(ctx, emitL, emitP)
+	if err := f.flush(ctx, emitL, emitP); err != nil {
+		return err
+	}
+	return f.drain(ctx, emitL, emitP)
 }
 
-// items turns the buffered lines into items. Text records are parsed by
+// flush emits the batch in flight, if any, and starts scoring the current
+// one in the background.
+func (f *scoreFn) flush(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
+	if len(f.cur.lines) == 0 {
+		return nil
+	}
+	next := &batch{}
+	if f.pending != nil {
+		s := <-f.pending
+		f.pending = nil
+		if err := f.emit(ctx, s, emitL, emitP); err != nil {
+			return err
+		}
+		next = s.reused
+		next.reset()
+	}
+	b := f.cur
+	f.cur = next
+	ch := make(chan *scored, 1)
+	go func() { ch <- f.score(b) }()
+	f.pending = ch
+	return nil
+}
+
+// drain emits the batch in flight, if any.
+func (f *scoreFn) drain(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
+	if f.pending == nil {
+		return nil
+	}
+	s := <-f.pending
+	f.pending = nil
+	return f.emit(ctx, s, emitL, emitP)
+}
+
+func (f *scoreFn) emit(ctx context.Context, s *scored, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
+	if s.err != nil {
+		return s.err
+	}
+	var nl, np int64
+	for sh := range f.Shards {
+		if len(s.lab[sh]) > 0 {
+			emitL(sh, labelRows{Rows: s.lab[sh]})
+			nl += int64(len(s.lab[sh]))
+		}
+		if len(s.ppl[sh]) > 0 {
+			emitP(sh, peopleRows{Rows: s.ppl[sh]})
+			np += int64(len(s.ppl[sh]))
+		}
+	}
+	cItems.Inc(ctx, int64(s.n))
+	cLabels.Inc(ctx, nl)
+	cPeople.Inc(ctx, np)
+	return nil
+}
+
+// score parses, featurises and scores one batch and splits its rows by
+// threshold and output shard. It touches only b and read-only fields of f.
+func (f *scoreFn) score(b *batch) *scored {
+	s := &scored{reused: b, n: len(b.lines)}
+	items, err := f.items(b)
+	if err != nil {
+		s.err = err
+		return s
+	}
+	ml, err := f.m.Label(items)
+	if err != nil {
+		s.err = fmt.Errorf("autolabel: scoring %d items from %s: %w", len(items), b.files[0], err)
+		return s
+	}
+	s.lab = make([][]Label, f.Shards)
+	s.ppl = make([][]ForPeople, f.Shards)
+	for i, l := range ml {
+		it := &items[i]
+		sh := shardOf(it.ID, f.Shards)
+		if l.Confidence >= f.Threshold {
+			s.lab[sh] = append(s.lab[sh], Label{Item: it.ID, Class: l.Class, Confidence: l.Confidence, Model: l.Model})
+			continue
+		}
+		s.ppl[sh] = append(s.ppl[sh], ForPeople{
+			ID: it.ID, Kind: string(it.Kind), Text: it.Text, Path: it.Path, Parent: it.Parent,
+			Position: int64(it.Position), Covariates: it.Covariates,
+			Class: l.Class, Confidence: l.Confidence, Model: l.Model,
+		})
+	}
+	return s
+}
+
+// items turns a batch's lines into items. Text records are parsed by
 // package ingest, the reader `loop items add` uses, so both accept and
 // refuse the same records; the batch is cut into GOMAXPROCS parts parsed at
 // once (as Machine.Label then featurises and scores on all cores).
-func (f *scoreFn) items() ([]handoff.Item, error) {
-	n := len(f.lines)
+func (f *scoreFn) items(b *batch) ([]handoff.Item, error) {
+	n := len(b.lines)
 	items := make([]handoff.Item, n)
 	if f.Images {
-		for i, p := range f.lines {
-			items[i] = handoff.Item{ID: f.ids[i], Kind: handoff.KindImage, Path: p}
+		for i, p := range b.lines {
+			items[i] = handoff.Item{ID: b.ids[i], Kind: handoff.KindImage, Path: p}
 		}
 		return items, nil
 	}
@@ -109,7 +226,7 @@ func (f *scoreFn) items() ([]handoff.Item, error) {
 		wg.Add(1)
 		go func() {
 			defer wg.Done()
-			errs[w] = f.parse(items[lo:hi], lo)
+			errs[w] = b.parse(items[lo:hi], lo)
 		}()
 	}
 	wg.Wait()
@@ -121,10 +238,10 @@ func (f *scoreFn) items() ([]handoff.Item, error) {
 	return items, nil
 }
 
-// parse reads the records f.lines[lo:lo+len(dst)] into dst.
-func (f *scoreFn) parse(dst []handoff.Item, lo int) error {
+// parse reads the records b.lines[lo:lo+len(dst)] into dst.
+func (b *batch) parse(dst []handoff.Item, lo int) error {
 	var buf bytes.Buffer
-	for _, l := range f.lines[lo : lo+len(dst)] {
+	for _, l := range b.lines[lo : lo+len(dst)] {
 		buf.WriteString(l)
 		buf.WriteByte('\n')
 	}
@@ -135,7 +252,7 @@ func (f *scoreFn) parse(dst []handoff.Item, lo int) error {
 	for i := range dst {
 		it, err := r.Next()
 		if err == io.EOF {
-			return fmt.Errorf("autolabel: %s: read %d items from %d records", f.files[lo], i, len(dst))
+			return fmt.Errorf("autolabel: %s: read %d items from %d records", b.files[lo], i, len(dst))
 		}
 		if err != nil {
 			// Name the source file and the record rather than the
@@ -143,63 +260,18 @@ func (f *scoreFn) parse(dst []handoff.Item, lo int) error {
 			var ie *ingest.Error
 			if errors.As(err, &ie) && ie.Line >= 1 && ie.Line <= len(dst) {
 				at := lo + ie.Line - 1
-				rec := f.lines[at]
+				rec := b.lines[at]
 				if len(rec) > 80 {
 					rec = rec[:80] + "…"
 				}
 				if ie.Field != "" {
-					return fmt.Errorf("%s: record %s: field %q: %w", f.files[at], rec, ie.Field, ie.Err)
+					return fmt.Errorf("%s: record %s: field %q: %w", b.files[at], rec, ie.Field, ie.Err)
 				}
-				return fmt.Errorf("%s: record %s: %w", f.files[at], rec, ie.Err)
+				return fmt.Errorf("%s: record %s: %w", b.files[at], rec, ie.Err)
 			}
 			return err
 		}
 		dst[i] = it
 	}
-	return nil
-}
-
-func (f *scoreFn) flush(ctx context.Context, emitL func(int, labelRows), emitP func(int, peopleRows)) error {
-	if len(f.lines) == 0 {
-		return nil
-	}
-	items, err := f.items()
-	if err != nil {
-		return err
-	}
-	ml, err := f.m.Label(items)
-	if err != nil {
-		return fmt.Errorf("autolabel: scoring %d items from %s: %w", len(items), f.files[0], err)
-	}
-	lab := make([][]Label, f.Shards)
-	ppl := make([][]ForPeople, f.Shards)
-	for i, l := range ml {
-		it := &items[i]
-		sh := shardOf(it.ID, f.Shards)
-		if l.Confidence >= f.Threshold {
-			lab[sh] = append(lab[sh], Label{Item: it.ID, Class: l.Class, Confidence: l.Confidence, Model: l.Model})
-			continue
-		}
-		ppl[sh] = append(ppl[sh], ForPeople{
-			ID: it.ID, Kind: string(it.Kind), Text: it.Text, Path: it.Path, Parent: it.Parent,
-			Position: int64(it.Position), Covariates: it.Covariates,
-			Class: l.Class, Confidence: l.Confidence, Model: l.Model,
-		})
-	}
-	var nl, np int64
-	for sh := range f.Shards {
-		if len(lab[sh]) > 0 {
-			emitL(sh, labelRows{Rows: lab[sh]})
-			nl += int64(len(lab[sh]))
-		}
-		if len(ppl[sh]) > 0 {
-			emitP(sh, peopleRows{Rows: ppl[sh]})
-			np += int64(len(ppl[sh]))
-		}
-	}
-	cItems.Inc(ctx, int64(len(items)))
-	cLabels.Inc(ctx, nl)
-	cPeople.Inc(ctx, np)
-	f.lines, f.ids, f.files = f.lines[:0], f.ids[:0], f.files[:0]
 	return nil
 }
