@@ -16,7 +16,8 @@ func main() {
 	sort.Strings(files)
 	fmt.Println("# Benchmarks")
 	fmt.Println()
-	fmt.Println("Written by `make bench` (bench/run.sh) from the \"Summary\" table of each")
+	fmt.Println("Written by `make bench` (bench/run.sh) from the \"Summary\" table (or the")
+	fmt.Println("figure | ours | peer | ratio | target | result tables) of each")
 	fmt.Println("bench/AREA/RESULTS.md; each area's RESULTS.md has the details, the machine, the")
 	fmt.Println("date and how to run it alone (`BENCH=area make bench`). Every figure was measured")
 	fmt.Println("side by side with its peer in one run; ratios are ours over the peer's (for times,")
@@ -40,38 +41,66 @@ func main() {
 	}
 }
 
-// summary reads the rows of the table under "## Summary" in path.
+// summary reads the rows of the table under "## Summary" in path or, when
+// there is none, of every table whose header is "figure | ours | peer |
+// ratio | target | result" (any name for the first column).
 func summary(path string) ([][]string, error) {
-	f, err := os.Open(path)
+	b, err := os.ReadFile(path)
 	if err != nil {
 		return nil, err
 	}
-	defer f.Close()
-	var rows [][]string
-	in, header := false, 0
-	sc := bufio.NewScanner(f)
+	var marked, matching [][]string
+	section := ""
+	inTable, take := false, false
+	sc := bufio.NewScanner(strings.NewReader(string(b)))
 	for sc.Scan() {
 		l := strings.TrimSpace(sc.Text())
 		if strings.HasPrefix(l, "## ") {
-			in = strings.EqualFold(strings.TrimPrefix(l, "## "), "Summary")
-			header = 0
+			section = strings.ToLower(strings.TrimPrefix(l, "## "))
+			inTable = false
 			continue
 		}
-		if !in || !strings.HasPrefix(l, "|") {
-			continue
-		}
-		header++
-		if header <= 2 { // the header row and its rule
+		if !strings.HasPrefix(l, "|") {
+			inTable = false
 			continue
 		}
 		cells := strings.Split(strings.Trim(l, "|"), "|")
 		for i := range cells {
 			cells[i] = strings.TrimSpace(cells[i])
 		}
+		if !inTable { // a header row
+			inTable = true
+			take = section == "summary" || standard(cells)
+			continue
+		}
+		if !take || strings.HasPrefix(cells[0], "---") {
+			continue
+		}
 		for len(cells) < 6 {
 			cells = append(cells, "")
 		}
-		rows = append(rows, cells[:6])
+		if section == "summary" {
+			marked = append(marked, cells[:6])
+		} else {
+			matching = append(matching, cells[:6])
+		}
 	}
-	return rows, sc.Err()
+	if len(marked) > 0 {
+		return marked, sc.Err()
+	}
+	return matching, sc.Err()
+}
+
+// standard reports whether a header row is figure | ours | peer | ratio |
+// target | result.
+func standard(h []string) bool {
+	if len(h) != 6 {
+		return false
+	}
+	for i, w := range []string{"ours", "peer", "ratio", "target", "result"} {
+		if !strings.HasPrefix(strings.ToLower(h[i+1]), w) {
+			return false
+		}
+	}
+	return true
 }
