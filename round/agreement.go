@@ -41,6 +41,7 @@ type AnnotatorKappa struct {
 // alpha under the four metrics, pairwise Cohen's kappa and each annotator's
 // kappa against the leave-one-out majority, with bootstrap 95% intervals.
 type AgreementReport struct {
+	Ordinal     bool                            `json:"ordinal"` // the codebook's classes are ordered
 	Items       int                             `json:"items"`
 	Labels      int                             `json:"labels"`
 	Annotators  int                             `json:"annotators"`
@@ -94,7 +95,7 @@ func agreement(p *project, cfg AgreementConfig) (*AgreementReport, error) {
 		}
 	}
 	r := &AgreementReport{
-		Items: len(items), Labels: kept.Len(), Annotators: nann,
+		Ordinal: p.cb.IsOrdinal(), Items: len(items), Labels: kept.Len(), Annotators: nann,
 		Fleiss: a.Fleiss, FleissPo: a.FleissPo, FleissPe: a.FleissPe, Alpha: a.Alpha,
 	}
 	for _, pk := range a.Pairs {

@@ -24,8 +24,9 @@ func newAgreementCmd() *cobra.Command {
 		Short: "How well the crowd agrees: Fleiss' kappa, Krippendorff's alpha, Cohen's kappa",
 		Long: `agreement measures the crowd's agreement with itself after the cleaning rules
 (only each annotator's first label on an item counts): Fleiss' kappa,
-Krippendorff's alpha under the nominal, ordinal, interval and ratio metrics
-(missing labels allowed), Cohen's kappa for each pair of annotators who share
+Krippendorff's alpha (nominal; for an ordinal codebook also the ordinal,
+interval and ratio metrics, with classes standing for 1, 2, …; missing labels
+allowed), Cohen's kappa for each pair of annotators who share
 enough items (--pairs), and each annotator's Cohen's kappa against the
 leave-one-out majority of the others. Every figure has a seeded bootstrap 95%
 interval over items.`,
@@ -80,6 +81,9 @@ func agreementText(r *round.AgreementReport) string {
 	fmt.Fprintf(&b, "agreement over %d items, %d labels, %d annotators (95%% bootstrap intervals)\n", r.Items, r.Labels, r.Annotators)
 	fmt.Fprintf(&b, "  Fleiss' kappa          %s   (P̄ %.3f, P̄e %.3f)\n", estimate(r.Fleiss), r.FleissPo, r.FleissPe)
 	for _, m := range crowd.Metrics {
+		if m != crowd.MetricNominal && !r.Ordinal {
+			continue // order-based metrics mean nothing for unordered classes
+		}
 		if e, ok := r.Alpha[m]; ok {
 			fmt.Fprintf(&b, "  Krippendorff's alpha, %-8s %s\n", m, estimate(e))
 		}
