@@ -108,9 +108,10 @@ func report(runsPath, featuresPath, load string) {
 	fmt.Fprintf(w, "starting the runner.\n\n")
 	fmt.Fprintf(w, "What was varied for \"workers\": GOMAXPROCS (1 or 2), the number of cores the one worker\n")
 	fmt.Fprintf(w, "process may use. Prism's loopback mode runs a single SDK worker in the launching process;\n")
-	fmt.Fprintf(w, "it has no worker-count option. Inside it, parallelism comes from Prism running bundles of\n")
-	fmt.Fprintf(w, "different stages and split residuals at once (up to 8), from the two shard writers running\n")
-	fmt.Fprintf(w, "side by side, and from Machine.Label using GOMAXPROCS goroutines per batch.\n\n")
+	fmt.Fprintf(w, "it has no worker-count option. Inside it, parallelism comes from the scoring DoFn (one\n")
+	fmt.Fprintf(w, "batch parsed, featurised and scored on all GOMAXPROCS cores in the background while the next\n")
+	fmt.Fprintf(w, "is read), and from Prism running bundles of different stages at once (the labels and people\n")
+	fmt.Fprintf(w, "shard writers run side by side).\n\n")
 	fmt.Fprintf(w, "| measure | ours (Prism) | peer (single process) | ratio | target | result |\n")
 	fmt.Fprintf(w, "| --- | --- | --- | --- | --- | --- |\n")
 	fmt.Fprintf(w, "| items per second, 2 cores, wall clock | %.0f | %.0f | %.2f× its time | Prism within 2× of the single process | %s |\n",
@@ -170,5 +171,11 @@ func report(runsPath, featuresPath, load string) {
 	for _, r := range runs {
 		fmt.Fprintf(w, "%-6s GOMAXPROCS=%d  %8.0f items/s  %6.2f s  %6.2f CPU-s\n", r.Mode, r.Procs, r.PerSecond, r.Seconds, r.CPUSeconds)
 	}
-	fmt.Fprintf(w, "```\n")
+	fmt.Fprintf(w, "```\n\n")
+	fmt.Fprintf(w, "## Summary\n\n")
+	fmt.Fprintf(w, "| figure | ours | peer | ratio | target | result |\n| --- | --- | --- | --- | --- | --- |\n")
+	fmt.Fprintf(w, "| autolabel on Prism vs single process, items/s, %d short texts, 2 cores | %.0f | %.0f | %.2f | ≥ 0.5 (within 2×) | %s |\n",
+		int(s2.Items), p2.PerSecond, s2.PerSecond, p2.PerSecond/s2.PerSecond, passShort(ratio <= 2))
+	fmt.Fprintf(w, "| Prism speed-up from 1 to 2 cores (peer: the single process's) | %.2f× | %.2f× | %.2f | ≥ 1.6× | %s |\n",
+		speedup, s2.PerSecond/s1.PerSecond, speedup/(s2.PerSecond/s1.PerSecond), passShort(speedup >= 1.6))
 }
