@@ -13,8 +13,11 @@ import (
 	"flag"
 	"fmt"
 	"os"
+	"slices"
+	"strings"
 
 	"github.com/apache/beam/sdks/v2/go/pkg/beam"
+	"github.com/apache/beam/sdks/v2/go/pkg/beam/core/metrics"
 	"github.com/apache/beam/sdks/v2/go/pkg/beam/x/beamx"
 
 	"handoff/beam/autolabel"
@@ -48,8 +51,10 @@ func main() {
 		os.Exit(1)
 	}
 	if res != nil {
-		for _, c := range res.Metrics().AllMetrics().Counters() {
-			fmt.Printf("%s\t%d\n", c.Key.Name, c.Committed)
+		cs := res.Metrics().AllMetrics().Counters()
+		slices.SortFunc(cs, func(a, b metrics.CounterResult) int { return strings.Compare(a.Key.Name, b.Key.Name) })
+		for _, c := range cs {
+			fmt.Printf("%s\t%d\n", c.Key.Name, c.Result())
 		}
 	}
 }
