@@ -71,5 +71,13 @@ $(cat "$tmp/sep.txt")
 ---
 $(cat "$tmp/peer.txt")
 \`\`\`
+
+## Summary
+
+| figure | ours | peer | ratio | target | result |
+| --- | --- | --- | --- | --- | --- |
+| acknowledged labels/s, 200 concurrent annotators | $ours_r | $peer_r | $(ratio "$ours_r" "$peer_r") | ≥ 5,000 | $(pf "$ours_r" 5000 ge) |
+| p99 latency of a label (ms) | $ours_99 | $peer_99 | — | < 50 | $(pf "$ours_99" 50 lt) |
+| acknowledged labels lost | $ours_lost | $peer_lost | — | 0 | $(pf "$ours_lost" 1 lt) |
 MD
 cat bench/service/RESULTS.md
