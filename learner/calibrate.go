@@ -135,6 +135,35 @@ func Calibrate(m Model, X features.Matrix, targets [][]float64, weights []float6
 	}
 	base := make([]float64, n*k)
 	m.PredictProbaInto(base, X)
+	cal := fitTemperature(base, n, k, targets, weights, wsum)
+	return &Calibrated{Base: m, Temperature: cal.Temperature}, cal, nil
+}
+
+// FitTemperature fits a temperature to probabilities that come from models
+// which did not see the rows (for example out-of-fold predictions of k-fold
+// cross-validation), as Calibrate does for one model's validation rows:
+// probs[i] are row i's predicted class probabilities and targets[i] its soft
+// targets, all rows weighted equally. It panics if the lengths differ and
+// returns T = 1 for no rows.
+func FitTemperature(probs, targets [][]float64) Calibration {
+	if len(probs) != len(targets) {
+		panic("learner: FitTemperature with mismatched lengths")
+	}
+	n := len(probs)
+	if n == 0 {
+		return Calibration{Temperature: 1}
+	}
+	k := len(probs[0])
+	base := make([]float64, 0, n*k)
+	for _, p := range probs {
+		base = append(base, p...)
+	}
+	return fitTemperature(base, n, k, targets, nil, float64(n))
+}
+
+// fitTemperature minimises the weighted mean NLL of the targets over
+// log T by golden-section search; base holds n×k probabilities row-major.
+func fitTemperature(base []float64, n, k int, targets [][]float64, weights []float64, wsum float64) Calibration {
 	logp := make([]float64, n*k)
 	for i, v := range base {
 		logp[i] = max(math.Log(v), minLogP)
@@ -190,7 +219,7 @@ func Calibrate(m Model, X features.Matrix, targets [][]float64, weights []float6
 		scale(after[i], T)
 	}
 	cal.ECEBefore, cal.ECEAfter = ECE(before, labels), ECE(after, labels)
-	return &Calibrated{Base: m, Temperature: T}, cal, nil
+	return cal
 }
 
 func logSumExp(z []float64) float64 {

@@ -8,7 +8,6 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"math"
 	"os"
 	"slices"
 
@@ -117,34 +116,11 @@ func (m *Machine) ProbaInto(dst []float64, X features.Matrix) {
 	}
 }
 
-// Temper replaces the probabilities p by p^(1/T) renormalised, in place
-// (temperature scaling, Guo et al. 2017: softmax(z/T) of the log-probabilities
-// z = log p). It works in log space so that tiny probabilities do not
-// underflow; zero stays zero. T == 1 leaves p as it is.
-func Temper(p []float64, T float64) {
-	if T == 1 {
-		return
-	}
-	invT := 1 / T
-	mx := math.Inf(-1)
-	for _, v := range p {
-		if v > 0 {
-			mx = max(mx, math.Log(v)*invT)
-		}
-	}
-	s := 0.0
-	for i, v := range p {
-		if v > 0 {
-			p[i] = math.Exp(math.Log(v)*invT - mx)
-		} else {
-			p[i] = 0
-		}
-		s += p[i]
-	}
-	for i := range p {
-		p[i] /= s
-	}
-}
+// Temper replaces the probabilities p by softmax(log p / T) in place
+// (temperature scaling, Guo et al. 2017), the same rescaling a Calibrated
+// model applies; log p is clamped below at log 1e-300. T == 1 leaves p as
+// it is.
+func Temper(p []float64, T float64) { scale(p, T) }
 
 // Proba featurises items and returns their calibrated class probabilities,
 // row-major (len(items)×len(Classes)).

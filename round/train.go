@@ -3,16 +3,13 @@ package round
 import (
 	"encoding/json"
 	"fmt"
-	"math"
 	"math/rand/v2"
 	"slices"
-	"strconv"
 
 	"handoff"
 	"handoff/features"
 	"handoff/learner"
 	"handoff/store"
-	"handoff/verdict"
 )
 
 // TrainConfig says how the machine is trained.
@@ -359,11 +356,20 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	for j := range rows {
 		truth[j] = argmax(sub[j])
 	}
-	T := fitTemperature(oofRaw, truth, kp)
+	raw1 := rowsAt(oofRaw, len(rows), kp, 1)
+	cal := learner.FitTemperature(raw1, sub)
+	T := cal.Temperature
+	if len(rows) < 10 {
+		T, cal.ECEAfter = 1, cal.ECEBefore // too few rows to fit a temperature
+	}
 	m.Temperature = T
-	before := calib(oofRaw, truth, kp, 1)
-	after := calib(oofRaw, truth, kp, T)
-	acc, f1 := accuracyF1(oofRaw, truth, kp, T)
+	rawT := rowsAt(oofRaw, len(rows), kp, T)
+	before, after := cal.ECEBefore, cal.ECEAfter
+	pred := make([]int, len(rows))
+	for j := range pred {
+		pred[j] = argmax(rawT[j])
+	}
+	acc, f1 := learner.AccuracyF1(truth, pred, kp)
 	final, err := fit.Fit(X, sub, nil)
 	if err != nil {
 		return nil, fmt.Errorf("training %s: %w", lname, err)
@@ -415,97 +421,14 @@ func groupFolds(groups []string, k int, seed uint64) []int {
 	return out
 }
 
-// nll is the mean negative log-likelihood of the true classes under the
-// probabilities tempered by T.
-func nll(raw []float64, truth []int, k int, T float64) float64 {
-	s := 0.0
-	row := make([]float64, k)
-	for j, c := range truth {
-		copy(row, raw[j*k:(j+1)*k])
-		learner.Temper(row, T)
-		s -= math.Log(max(row[c], 1e-300))
+// rowsAt returns the out-of-fold probabilities as rows, tempered by T.
+func rowsAt(raw []float64, n, k int, T float64) [][]float64 {
+	out := make([][]float64, n)
+	for j := range n {
+		out[j] = slices.Clone(raw[j*k : (j+1)*k])
+		learner.Temper(out[j], T)
 	}
-	return s / float64(len(truth))
-}
-
-// fitTemperature minimises the negative log-likelihood of the out-of-fold
-// probabilities over T ∈ [0.05, 20] by golden-section search on log T
-// (temperature scaling, Guo et al. 2017).
-func fitTemperature(raw []float64, truth []int, k int) float64 {
-	if len(truth) < 10 {
-		return 1
-	}
-	a, b := math.Log(0.05), math.Log(20)
-	g := (math.Sqrt(5) - 1) / 2
-	x1, x2 := b-g*(b-a), a+g*(b-a)
-	f1, f2 := nll(raw, truth, k, math.Exp(x1)), nll(raw, truth, k, math.Exp(x2))
-	for range 60 {
-		if f1 < f2 {
-			b, x2, f2 = x2, x1, f1
-			x1 = b - g*(b-a)
-			f1 = nll(raw, truth, k, math.Exp(x1))
-		} else {
-			a, x1, f1 = x1, x2, f2
-			x2 = a + g*(b-a)
-			f2 = nll(raw, truth, k, math.Exp(x2))
-		}
-	}
-	T := math.Exp((a + b) / 2)
-	// Round so that the stored value is stable across platforms.
-	T, _ = strconv.ParseFloat(strconv.FormatFloat(T, 'g', 8, 64), 64)
-	return T
-}
-
-// calib returns the expected calibration error (15 bins) of tempered
-// probabilities.
-func calib(raw []float64, truth []int, k int, T float64) float64 {
-	conf := make([]float64, len(truth))
-	ok := make([]bool, len(truth))
-	row := make([]float64, k)
-	for j, c := range truth {
-		copy(row, raw[j*k:(j+1)*k])
-		learner.Temper(row, T)
-		b := argmax(row)
-		conf[j] = min(1, max(0, row[b]))
-		ok[j] = b == c
-	}
-	cal, err := verdict.Calibrate(conf, ok, 15)
-	if err != nil {
-		return 0
-	}
-	return cal.ECE
-}
-
-// accuracyF1 returns accuracy and macro-F1 of the argmax predictions.
-func accuracyF1(raw []float64, truth []int, k int, T float64) (float64, float64) {
-	tp := make([]float64, k)
-	fp := make([]float64, k)
-	fn := make([]float64, k)
-	right := 0
-	for j, c := range truth {
-		b := argmax(raw[j*k : (j+1)*k])
-		if b == c {
-			right++
-			tp[c]++
-		} else {
-			fp[b]++
-			fn[c]++
-		}
-	}
-	f1, n := 0.0, 0
-	for c := range k {
-		if tp[c]+fn[c] == 0 {
-			continue
-		}
-		n++
-		if tp[c] > 0 {
-			f1 += 2 * tp[c] / (2*tp[c] + fp[c] + fn[c])
-		}
-	}
-	if n > 0 {
-		f1 /= float64(n)
-	}
-	return float64(right) / float64(len(truth)), f1
+	return out
 }
 
 // learnerFor returns the configured learner.
