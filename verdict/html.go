@@ -384,6 +384,7 @@ figure{margin:1rem 0}
 <tr><th>consensus \ machine</th>{{range .R.Classes}}<th>{{.}}</th>{{end}}</tr>
 {{range $t, $row := .Cells}}<tr><th>{{index $.R.Classes $t}}</th>{{range $row}}<td style="{{.Style}}"{{if .Diag}} class="diag"{{end}} title="{{pct .Share.Est}} of items [{{pct .Share.Lo}}, {{pct .Share.Hi}}]">{{.Count}}</td>{{end}}</tr>
 {{end}}</table>
+{{if .ConfusionPlot}}<figure>{{.ConfusionPlot}}</figure>{{end}}
 
 {{if .R.Ceiling}}{{with .R.Ceiling}}
 <h2>Crowd ceiling</h2>
@@ -431,8 +432,8 @@ The machine's kappa is {{f3 .MachineKappa}}: {{if .AtLeastMedian}}at least as go
 
 // WriteHTML writes the report as one self-contained HTML page: inline CSS
 // and inline SVG plots (learning curve, coverage–risk with the bound,
-// reliability diagram, annotator reliability) and a shaded confusion-matrix
-// table. Nothing is fetched; every string is HTML-escaped. title "" means
+// reliability diagram, confusion matrix as a heat map, annotator
+// reliability) beside a shaded confusion-matrix table. Nothing is fetched; every string is HTML-escaped. title "" means
 // "Handoff verdict".
 func (r *Report) WriteHTML(w io.Writer, title string) error {
 	if title == "" {
@@ -443,6 +444,7 @@ func (r *Report) WriteHTML(w io.Writer, title string) error {
 		R                                                   *Report
 		Cells                                               [][]cell
 		RiskPlot, ReliabilityPlot, CurvePlot, AnnotatorPlot template.HTML
+		ConfusionPlot                                       template.HTML
 	}{Title: title, Headline: r.Headline(), R: r, Cells: r.confusionCells()}
 	var err error
 	if len(r.CoverageRisk) > 0 {
@@ -456,6 +458,11 @@ func (r *Report) WriteHTML(w io.Writer, title string) error {
 	if len(r.Curve) > 0 {
 		if data.CurvePlot, err = r.plotCurve(); err != nil {
 			return fmt.Errorf("learning-curve plot: %w", err)
+		}
+	}
+	if len(r.Agreement.Confusion) > 0 {
+		if data.ConfusionPlot, err = r.plotConfusion(); err != nil {
+			return fmt.Errorf("confusion-matrix plot: %w", err)
 		}
 	}
 	if r.Ceiling != nil {

@@ -435,8 +435,9 @@ func TestComputeAndRender(t *testing.T) {
 		t.Fatal(err)
 	}
 	h := html.String()
-	if strings.Count(h, "<svg") != 4 {
-		t.Errorf("HTML has %d inline SVG plots, want 4", strings.Count(h, "<svg"))
+	// Learning curve, coverage–risk, reliability, confusion matrix, annotators.
+	if strings.Count(h, "<svg") != 5 {
+		t.Errorf("HTML has %d inline SVG plots, want 5", strings.Count(h, "<svg"))
 	}
 	for _, bad := range []string{"<script", "<b>1", "<selection>", "<for>", "src=", "href=", "@import", "url("} {
 		if strings.Contains(h, bad) {
