@@ -357,7 +357,14 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 		truth[j] = argmax(sub[j])
 	}
 	raw1 := rowsAt(oofRaw, len(rows), kp, 1)
-	cal := learner.FitTemperature(raw1, sub)
+	// Calibrate against the consensus class, the answer the verdict
+	// counts agreement with.
+	hard := make([][]float64, len(rows))
+	for j, c := range truth {
+		hard[j] = make([]float64, kp)
+		hard[j][c] = 1
+	}
+	cal := learner.FitTemperature(raw1, hard)
 	T := cal.Temperature
 	if len(rows) < 10 {
 		T, cal.ECEAfter = 1, cal.ECEBefore // too few rows to fit a temperature
