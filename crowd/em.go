@@ -5,6 +5,7 @@ import (
 	"runtime"
 	"sort"
 	"sync"
+	"unsafe"
 )
 
 // The EM kernel shared by DawidSkene and OneCoin.
@@ -135,14 +136,16 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 			s.seg[wk][b] = [2]int{s.boff[b] + a, s.boff[b] + e}
 		}
 	}
-	s.logT = make([]F, l.NAnnotators*k*k)
+	// Tables padded to whole blocks, so every code of a block indexes its
+	// block's part of them (the hot loops run without bounds checks).
+	s.logT = make([]F, nb*bsz*k*k)
 	s.logPrior = make([]float64, k)
 	s.acc = make([]F, l.NItems*k)
 	s.counts = make([][]F, w)
 	s.prior = make([][]float64, w)
 	s.ll = make([]float64, w)
 	for wk := range w {
-		s.counts[wk] = make([]F, l.NAnnotators*k*k)
+		s.counts[wk] = make([]F, nb*bsz*k*k)
 		s.prior[wk] = make([]float64, k)
 	}
 	return s
@@ -328,17 +331,7 @@ func (s *emState[F]) estep(wk int, post []float64) {
 		lt := s.logT[base:min(len(s.logT), base+s.bsz*k*k)]
 		acc := s.acc
 		if k == 5 {
-			for j, it := range items {
-				o := int(codes[j]) * 5
-				d := int(it) * 5
-				src := lt[o : o+5 : o+5]
-				dst := acc[d : d+5 : d+5]
-				dst[0] += src[0]
-				dst[1] += src[1]
-				dst[2] += src[2]
-				dst[3] += src[3]
-				dst[4] += src[4]
-			}
+			gatherAdd5(acc, lt, items, codes, s.bsz*k)
 			continue
 		}
 		for j, it := range items {
@@ -427,19 +420,55 @@ func isFloat32[F float]() bool {
 	return ok
 }
 
-// expNeg is e^x for x ≤ 0 with a relative error below 2e-7, enough for the
-// float32 tables: e^x = 2^n·√2·2^g with n = ⌊x·log₂e⌋ and g in [−½, ½),
-// 2^g by its Taylor series to degree 6.
+// expNeg is e^x for x ≤ 0 with a relative error below 1e-10 (the float32
+// tables need 2e-7): with N = round(64·x/ln 2) and r = x − N·ln2/64
+// (|r| ≤ ln2/128), e^x = 2^⌊N/64⌋ · 2^((N mod 64)/64) · e^r, the middle
+// factor from a table and e^r by its Taylor series to degree 4. Below
+// x = −707.7 (under the smallest normal float64) it returns 0, within 1e-307
+// of the truth.
 func expNeg(x float64) float64 {
-	t := x * math.Log2E
-	if t < -1021 { // below the smallest normal float64: 0 is within 1e-307 of the truth
+	t := x * (64 / math.Ln2)
+	if t < -1021*64 {
 		return 0
 	}
-	n := math.Floor(t)
-	g := (t - n - 0.5) * math.Ln2
-	p := 1 + g*(1+g*(1.0/2+g*(1.0/6+g*(1.0/24+g*(1.0/120+g*(1.0/720))))))
-	return p * math.Sqrt2 * math.Float64frombits(uint64(int64(n)+1023)<<52)
+	const shift = 0x1.8p52 // adding and subtracting it rounds to an integer
+	nf := (t + shift) - shift
+	n := int64(nf)
+	r := x - nf*(math.Ln2/64)
+	p := 1 + r*(1+r*(1.0/2+r*(1.0/6+r*(1.0/24))))
+	return p * exp2Tab[n&63] * math.Float64frombits(uint64((n>>6)+1023)<<52)
 }
+
+// exp2Tab[j] = 2^(j/64).
+var exp2Tab = func() (t [64]float64) {
+	for j := range t {
+		t[j] = math.Exp2(float64(j) / 64)
+	}
+	return
+}()
+
+// logPos is ln x for a normal x > 0 with an absolute error below 1e-11
+// (the float32 tables need about 1e-7): x = 2^e · m with m in [1, 2), m
+// rounded down to c = 1 + j/128, ln x = e·ln 2 + ln c + ln(1 + r) with
+// r = m/c − 1 in [0, 1/128), ln(1 + r) by its series to degree 5.
+func logPos(x float64) float64 {
+	b := math.Float64bits(x)
+	e := int64(b>>52) - 1023
+	j := (b >> 45) & 127
+	m := math.Float64frombits(b&(1<<52-1) | 1023<<52)
+	r := m*logInvTab[j] - 1
+	l := r * (1 - r*(1.0/2-r*(1.0/3-r*(1.0/4-r*(1.0/5)))))
+	return float64(e)*math.Ln2 + logTab[j] + l
+}
+
+// logInvTab[j] = 1/(1 + j/128), logTab[j] = ln(1 + j/128).
+var logInvTab, logTab = func() (inv, lg [128]float64) {
+	for j := range inv {
+		c := 1 + float64(j)/128
+		inv[j], lg[j] = 1/c, math.Log(c)
+	}
+	return
+}()
 
 // accumulate adds each label's item posterior into the worker's count table.
 func (s *emState[F]) accumulate(wk int) {
@@ -454,17 +483,7 @@ func (s *emState[F]) accumulate(wk int) {
 		cb := cnt[base:min(len(cnt), base+s.bsz*k*k)]
 		acc := s.acc
 		if k == 5 {
-			for j, it := range items {
-				o := int(codes[j]) * 5
-				d := int(it) * 5
-				src := acc[d : d+5 : d+5]
-				dst := cb[o : o+5 : o+5]
-				dst[0] += src[0]
-				dst[1] += src[1]
-				dst[2] += src[2]
-				dst[3] += src[3]
-				dst[4] += src[4]
-			}
+			scatterAdd5(cb, acc, items, codes, s.bsz*k)
 			continue
 		}
 		for j, it := range items {
@@ -513,6 +532,7 @@ func (s *emState[F]) mstepRange(method string, alpha float64, a0, a1 int) {
 	cnt := s.counts[0]
 	floor := floorFor[F]()
 	uni := F(math.Log(1 / float64(k)))
+	fast := isFloat32[F]()
 	rowSum := make([]float64, k)
 	for a := a0; a < a1; a++ {
 		blk := cnt[a*k*k : (a+1)*k*k]
@@ -557,8 +577,93 @@ func (s *emState[F]) mstepRange(method string, alpha float64, a0, a1 int) {
 					lt[c*k+t] = uni
 					continue
 				}
-				lt[c*k+t] = F(math.Log(max((float64(blk[c*k+t])+alpha)/rowSum[t], floor)))
+				q := max((float64(blk[c*k+t])+alpha)/rowSum[t], floor)
+				if fast {
+					lt[c*k+t] = F(logPos(q))
+				} else {
+					lt[c*k+t] = F(math.Log(q))
+				}
 			}
 		}
+	}
+}
+
+// gatherAdd5 adds, for every label j, row codes[j] of src to row items[j] of
+// dst, rows 5 wide: dst[5·items[j]+c] += src[5·codes[j]+c]. It panics unless
+// every row lies inside its slice (codes below maxCode); the loop itself runs without bounds
+// checks (the hot loop of the E-step).
+func gatherAdd5[F float](dst, src []F, items []int32, codes []uint16, maxCode int) {
+	if len(codes) < len(items) {
+		panic("crowd: gatherAdd5: codes shorter than items")
+	}
+	checkRows5(len(dst), len(src), maxCode, items)
+	if len(items) == 0 {
+		return
+	}
+	if d32, ok := any(dst).([]float32); ok && haveRows5Asm {
+		gatherAdd5f32(&d32[0], &any(src).([]float32)[0], &items[0], &codes[0], len(items))
+		return
+	}
+	var z F
+	sz := unsafe.Sizeof(z)
+	d0, s0 := unsafe.Pointer(unsafe.SliceData(dst)), unsafe.Pointer(unsafe.SliceData(src))
+	ip, cp := unsafe.Pointer(unsafe.SliceData(items)), unsafe.Pointer(unsafe.SliceData(codes))
+	for j := 0; j < len(items); j++ {
+		it := *(*int32)(unsafe.Add(ip, 4*j))
+		co := *(*uint16)(unsafe.Add(cp, 2*j))
+		d := (*[5]F)(unsafe.Add(d0, uintptr(it)*5*sz))
+		s := (*[5]F)(unsafe.Add(s0, uintptr(co)*5*sz))
+		d[0] += s[0]
+		d[1] += s[1]
+		d[2] += s[2]
+		d[3] += s[3]
+		d[4] += s[4]
+	}
+}
+
+// scatterAdd5 adds, for every label j, row items[j] of src to row codes[j]
+// of dst, rows 5 wide: dst[5·codes[j]+c] += src[5·items[j]+c]; the M-step's
+// hot loop, with the same checks as gatherAdd5.
+func scatterAdd5[F float](dst, src []F, items []int32, codes []uint16, maxCode int) {
+	if len(codes) < len(items) {
+		panic("crowd: scatterAdd5: codes shorter than items")
+	}
+	checkRows5(len(src), len(dst), maxCode, items)
+	if len(items) == 0 {
+		return
+	}
+	if d32, ok := any(dst).([]float32); ok && haveRows5Asm {
+		scatterAdd5f32(&d32[0], &any(src).([]float32)[0], &items[0], &codes[0], len(items))
+		return
+	}
+	var z F
+	sz := unsafe.Sizeof(z)
+	d0, s0 := unsafe.Pointer(unsafe.SliceData(dst)), unsafe.Pointer(unsafe.SliceData(src))
+	ip, cp := unsafe.Pointer(unsafe.SliceData(items)), unsafe.Pointer(unsafe.SliceData(codes))
+	for j := 0; j < len(items); j++ {
+		it := *(*int32)(unsafe.Add(ip, 4*j))
+		co := *(*uint16)(unsafe.Add(cp, 2*j))
+		s := (*[5]F)(unsafe.Add(s0, uintptr(it)*5*sz))
+		d := (*[5]F)(unsafe.Add(d0, uintptr(co)*5*sz))
+		d[0] += s[0]
+		d[1] += s[1]
+		d[2] += s[2]
+		d[3] += s[3]
+		d[4] += s[4]
+	}
+}
+
+// checkRows5 panics unless the items (sorted, so their range is their ends)
+// index 5-wide rows of a slice of length nItem and every code below maxCode
+// (the block size × k, by construction) a 5-wide row of one of length nCode.
+func checkRows5(nItem, nCode, maxCode int, items []int32) {
+	if len(items) == 0 {
+		return
+	}
+	if items[0] < 0 || items[len(items)-1] < items[0] || 5*int(items[len(items)-1])+5 > nItem {
+		panic("crowd: label item outside the accumulator")
+	}
+	if 5*maxCode > nCode || maxCode > 1<<16 {
+		panic("crowd: table shorter than a block")
 	}
 }
