@@ -151,10 +151,17 @@ func (sv *Server) nextFor(pr *principal) (NextReply, error) {
 	}
 	if g.lease != nil && !g.renewed {
 		// The pool holds the lease from now on; the stored copy (for a
-		// restart) is written in the background, so that handing out work
-		// costs no disk wait. A label is checked against the pool.
+		// restart) rides along with the next group commit, so that handing
+		// out work costs no disk wait and no commit of its own. A label is
+		// checked against the pool.
 		sl := store.ServiceLease{ID: g.lease.id, Item: g.itemID, Annotator: pr.ID, Expires: g.lease.expires.UTC()}
-		sv.background(func() error { return sv.st.GrantLease(sl) })
+		sv.bg.Add(1)
+		sv.st.GrantLeaseLater(sl, func(err error) {
+			if err != nil {
+				sv.cfg.Logf("storing lease %s: %v", sl.ID, err)
+			}
+			sv.bg.Done()
+		})
 		sv.metrics.leases.WithLabelValues("granted").Inc()
 	}
 	pg, err := sv.pool.progress(pr.ID, now)

@@ -113,13 +113,32 @@ type groupCommit struct {
 	mu      sync.Mutex
 	pending []*groupCall
 	running bool
+	timer   bool // a rider's timer is set to start commitLoop
 	max     int
 }
 
+// groupCall is one queued write: a caller waiting on done, or (done nil) a
+// rider that nobody waits for, whose outcome goes to after.
 type groupCall struct {
-	fn   func(tx *bolt.Tx) error
-	done chan error
+	fn    func(tx *bolt.Tx) error
+	done  chan error
+	after func(error)
 }
+
+// finish hands the call its outcome.
+func (c *groupCall) finish(err error) {
+	if c.done != nil {
+		c.done <- err
+		return
+	}
+	if c.after != nil {
+		c.after(err)
+	}
+}
+
+// riderDelay is how long a rider waits for a write that someone waits on
+// before it is committed on its own.
+const riderDelay = 2 * time.Millisecond
 
 // batch runs fn in a group-committed write transaction and returns once it
 // has committed (group commit). While one transaction commits, the writes
@@ -144,6 +163,33 @@ func (s *Store) batch(fn func(tx *bolt.Tx) error) error {
 	}
 	g.mu.Unlock()
 	return <-c.done
+}
+
+// ride queues fn for the next group commit without waiting for it (a
+// rider): it shares the transaction of the next writes that callers wait
+// on, so it costs no commit and no fsync of its own; if none comes within
+// riderDelay, it is committed on its own. after (may be nil) gets the
+// outcome once that transaction has ended; it runs in the committing
+// goroutine, so it must be quick and must not write to the store. fn
+// follows the rules of batch.
+func (s *Store) ride(fn func(tx *bolt.Tx) error, after func(error)) {
+	c := &groupCall{fn: fn, after: after}
+	g := s.groupOf()
+	g.mu.Lock()
+	g.pending = append(g.pending, c)
+	if !g.running && !g.timer {
+		g.timer = true
+		time.AfterFunc(riderDelay, func() {
+			g.mu.Lock()
+			g.timer = false
+			if !g.running && len(g.pending) > 0 {
+				g.running = true
+				go s.commitLoop()
+			}
+			g.mu.Unlock()
+		})
+	}
+	g.mu.Unlock()
 }
 
 // commitLoop commits queued writes, a group at a time, until none are left.
@@ -186,12 +232,12 @@ func (s *Store) commitGroup(calls []*groupCall) {
 			return nil
 		})
 		if err != nil && failed >= 0 {
-			calls[failed].done <- err
+			calls[failed].finish(err)
 			calls = append(calls[:failed], calls[failed+1:]...)
 			continue
 		}
 		for _, c := range calls {
-			c.done <- err
+			c.finish(err)
 		}
 		return
 	}
@@ -391,14 +437,39 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 // recorded in the audit trail: they change no data, only who is working on
 // what.
 func (s *Store) GrantLease(l ServiceLease) error {
-	if l.ID == "" || l.Item == "" || l.Annotator == "" {
-		return dataErr("lease", "a lease needs an id, an item and an annotator")
-	}
-	v, err := json.Marshal(l)
+	fn, err := grantLease(l)
 	if err != nil {
 		return err
 	}
-	return s.batch(func(tx *bolt.Tx) error {
+	return s.batch(fn)
+}
+
+// GrantLeaseLater stores a lease like GrantLease but does not wait: the
+// write rides along with the next group commit (see ride), so handing out
+// work costs neither a wait nor a commit of its own. after (may be nil)
+// gets the outcome once that commit has ended (quick, no store writes: see
+// ride); until then a crash may lose the lease.
+func (s *Store) GrantLeaseLater(l ServiceLease, after func(error)) {
+	fn, err := grantLease(l)
+	if err != nil {
+		if after != nil {
+			after(err)
+		}
+		return
+	}
+	s.ride(fn, after)
+}
+
+// grantLease checks l and returns the write that stores it.
+func grantLease(l ServiceLease) (func(tx *bolt.Tx) error, error) {
+	if l.ID == "" || l.Item == "" || l.Annotator == "" {
+		return nil, dataErr("lease", "a lease needs an id, an item and an annotator")
+	}
+	v, err := json.Marshal(l)
+	if err != nil {
+		return nil, err
+	}
+	return func(tx *bolt.Tx) error {
 		if tx.Bucket(bItemIDs).Get([]byte(l.Item)) == nil {
 			return dataErr("item", "unknown item %q", l.Item)
 		}
@@ -407,7 +478,7 @@ func (s *Store) GrantLease(l ServiceLease) error {
 			return err
 		}
 		return b.Put([]byte(l.ID), v)
-	})
+	}, nil
 }
 
 // EndLeases deletes the leases with the given ids (absent ones are ignored)

@@ -187,3 +187,53 @@ func TestUnsure(t *testing.T) {
 		t.Errorf("UnsureCounts = %v, %v", m, err)
 	}
 }
+
+// A lease stored with GrantLeaseLater is written by a later commit (its own
+// after riderDelay when nothing else comes, or a waited-on write's); after
+// reports the outcome, and a bad lease gets an error and writes nothing.
+func TestGrantLeaseLater(t *testing.T) {
+	s := newStore(t)
+	now := time.Date(2026, 3, 1, 10, 0, 0, 0, time.UTC)
+	s.Now = func() time.Time { return now }
+	if _, err := s.PutItems(textItems(3, "i"), false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	wait := func(l ServiceLease) error {
+		done := make(chan error, 1)
+		s.GrantLeaseLater(l, func(err error) { done <- err })
+		select {
+		case err := <-done:
+			return err
+		case <-time.After(5 * time.Second):
+			t.Fatalf("lease %q: after never called", l.ID)
+			return nil
+		}
+	}
+	// Alone: committed on its own after the delay.
+	if err := wait(ServiceLease{ID: "L1", Item: "i000", Annotator: "ann", Expires: now.Add(time.Minute)}); err != nil {
+		t.Fatal(err)
+	}
+	// Riding with a write someone waits on.
+	done := make(chan error, 1)
+	s.GrantLeaseLater(ServiceLease{ID: "L2", Item: "i001", Annotator: "ann", Expires: now.Add(time.Minute)}, func(err error) { done <- err })
+	if err := s.MarkUnsure("i002", "ann", "test"); err != nil {
+		t.Fatal(err)
+	}
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+	// Bad leases: refused, nothing written, the other writes unharmed.
+	if err := wait(ServiceLease{ID: "L3", Item: "nope", Annotator: "ann"}); err == nil {
+		t.Error("a lease of an unknown item was stored")
+	}
+	if err := wait(ServiceLease{ID: "", Item: "i000", Annotator: "ann"}); err == nil {
+		t.Error("a lease without an id was stored")
+	}
+	ls, err := s.ServiceLeases()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(ls) != 2 || ls[0].ID != "L1" || ls[1].ID != "L2" || ls[1].Item != "i001" || !ls[1].Expires.Equal(now.Add(time.Minute)) {
+		t.Errorf("stored leases: %+v", ls)
+	}
+}

@@ -31,6 +31,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"runtime"
+	"runtime/debug"
 	"slices"
 	"strings"
 	"sync"
@@ -56,6 +57,10 @@ func main() {
 		separate   = flag.Bool("separate", false, "fetch each item with its own GET /api/v1/next instead of asking for it in the label's reply")
 	)
 	flag.Parse()
+	// The clients share the cores with the server under test: collect
+	// their garbage less often (as the server does, see
+	// api.DefaultGCPercent) so that the load generator takes less CPU.
+	debug.SetGCPercent(400)
 	if !*peer && *loopBin == "" {
 		log.Fatal("give -loop PATH (go build -o /tmp/loop ./cmd/loop)")
 	}
