@@ -29,14 +29,17 @@ type float interface{ ~float32 | ~float64 }
 // (256 KiB to 8 MiB) on the 40-million-label benchmark.
 const blockBytes = 1 << 20
 
+// A chunk is a run of one block's labels whose items share their upper
+// bits: items base … base+2¹⁶−1, labels lab[lo:hi].
+type chunk struct{ base, lo, hi int }
+
 type emState[F float] struct {
 	k, nA, nI int
-	bsz       int      // annotators per block
-	item      []int32  // labels sorted by (block, item)
-	code      []uint16 // annotator-in-block × k + class
-	boff      []int    // block b's labels: boff[b]..boff[b+1]
-	seg       [][][2]int
-	irange    [][2]int // per worker: items
+	bsz       int         // annotators per block
+	lab       []uint32    // labels sorted by (block, item): code<<16 | item mod 2¹⁶
+	boff      []int       // block b's labels: boff[b]..boff[b+1]
+	seg       [][][]chunk // per worker, per block: its labels by item chunk
+	irange    [][2]int    // per worker: items
 	nlab      []int32
 	gold      []int
 	logT      []F // [a][given c][true k]
@@ -96,8 +99,8 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 		s.boff[b+1] += s.boff[b]
 	}
 	next := append([]int(nil), s.boff[:nb]...)
-	s.item = make([]int32, n)
-	s.code = make([]uint16, n)
+	item := make([]int32, n)
+	s.lab = make([]uint32, n)
 	for q := 0; q < n; q++ {
 		j := q
 		if perm != nil {
@@ -107,8 +110,8 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 		b := a / bsz
 		p := next[b]
 		next[b]++
-		s.item[p] = l.Item[j]
-		s.code[p] = uint16((a-b*bsz)*k + int(l.Class[j]))
+		item[p] = l.Item[j]
+		s.lab[p] = uint32((a-b*bsz)*k+int(l.Class[j]))<<16 | uint32(l.Item[j])&0xffff
 	}
 	perm = nil
 	// Item ranges per worker, balanced by labels.
@@ -126,16 +129,24 @@ func newEMState[F float](l *Labels, gold []int, workers int) *emState[F] {
 		lo = hi
 	}
 	s.irange[w-1][1] = l.NItems
-	s.seg = make([][][2]int, w)
+	s.seg = make([][][]chunk, w)
 	for wk := range s.seg {
-		s.seg[wk] = make([][2]int, nb)
+		s.seg[wk] = make([][]chunk, nb)
 		for b := 0; b < nb; b++ {
-			blk := s.item[s.boff[b]:s.boff[b+1]]
-			a := sort.Search(len(blk), func(x int) bool { return int(blk[x]) >= s.irange[wk][0] })
-			e := sort.Search(len(blk), func(x int) bool { return int(blk[x]) >= s.irange[wk][1] })
-			s.seg[wk][b] = [2]int{s.boff[b] + a, s.boff[b] + e}
+			blk := item[s.boff[b]:s.boff[b+1]]
+			first := func(i int) int {
+				return s.boff[b] + sort.Search(len(blk), func(x int) bool { return int(blk[x]) >= i })
+			}
+			lo, hi := s.irange[wk][0], s.irange[wk][1]
+			for c := lo >> 16; c<<16 < hi; c++ {
+				a, e := first(max(lo, c<<16)), first(min(hi, (c+1)<<16))
+				if a < e {
+					s.seg[wk][b] = append(s.seg[wk][b], chunk{c << 16, a, e})
+				}
+			}
 		}
 	}
+	item = nil
 	// Tables padded to whole blocks, so every code of a block indexes its
 	// block's part of them (the hot loops run without bounds checks).
 	s.logT = make([]F, nb*bsz*k*k)
@@ -285,11 +296,10 @@ func (s *emState[F]) shares(wk int) {
 	acc := s.acc[lo*k : hi*k]
 	clear(acc)
 	for b := range s.seg[wk] {
-		sg := s.seg[wk][b]
-		items, codes := s.item[sg[0]:sg[1]], s.code[sg[0]:sg[1]]
-		codes = codes[:len(items)]
-		for j, it := range items {
-			s.acc[int(it)*k+int(codes[j])%k]++
+		for _, ch := range s.seg[wk][b] {
+			for _, v := range s.lab[ch.lo:ch.hi] {
+				s.acc[(ch.base+int(v&0xffff))*k+int(v>>16)%k]++
+			}
 		}
 	}
 	pr := s.prior[wk]
@@ -324,23 +334,23 @@ func (s *emState[F]) estep(wk int, post []float64) {
 		}
 	}
 	for b := range s.seg[wk] {
-		sg := s.seg[wk][b]
-		items, codes := s.item[sg[0]:sg[1]], s.code[sg[0]:sg[1]]
-		codes = codes[:len(items)]
 		base := b * s.bsz * k * k
 		lt := s.logT[base:min(len(s.logT), base+s.bsz*k*k)]
-		acc := s.acc
-		if k == 5 {
-			gatherAdd5(acc, lt, items, codes, s.bsz*k)
-			continue
-		}
-		for j, it := range items {
-			o := int(codes[j]) * k
-			d := int(it) * k
-			src := lt[o : o+k : o+k]
-			dst := acc[d : d+k : d+k]
-			for c := range dst {
-				dst[c] += src[c]
+		for _, ch := range s.seg[wk][b] {
+			lab := s.lab[ch.lo:ch.hi]
+			acc := s.acc[ch.base*k:]
+			if k == 5 {
+				gatherAdd5(acc, lt, lab, s.bsz*k)
+				continue
+			}
+			for _, v := range lab {
+				o := int(v>>16) * k
+				d := int(v&0xffff) * k
+				src := lt[o : o+k : o+k]
+				dst := acc[d : d+k : d+k]
+				for c := range dst {
+					dst[c] += src[c]
+				}
 			}
 		}
 	}
@@ -476,23 +486,23 @@ func (s *emState[F]) accumulate(wk int) {
 	cnt := s.counts[wk]
 	clear(cnt)
 	for b := range s.seg[wk] {
-		sg := s.seg[wk][b]
-		items, codes := s.item[sg[0]:sg[1]], s.code[sg[0]:sg[1]]
-		codes = codes[:len(items)]
 		base := b * s.bsz * k * k
 		cb := cnt[base:min(len(cnt), base+s.bsz*k*k)]
-		acc := s.acc
-		if k == 5 {
-			scatterAdd5(cb, acc, items, codes, s.bsz*k)
-			continue
-		}
-		for j, it := range items {
-			o := int(codes[j]) * k
-			d := int(it) * k
-			src := acc[d : d+k : d+k]
-			dst := cb[o : o+k : o+k]
-			for c := range dst {
-				dst[c] += src[c]
+		for _, ch := range s.seg[wk][b] {
+			lab := s.lab[ch.lo:ch.hi]
+			acc := s.acc[ch.base*k:]
+			if k == 5 {
+				scatterAdd5(cb, acc, lab, s.bsz*k)
+				continue
+			}
+			for _, v := range lab {
+				o := int(v>>16) * k
+				d := int(v&0xffff) * k
+				src := acc[d : d+k : d+k]
+				dst := cb[o : o+k : o+k]
+				for c := range dst {
+					dst[c] += src[c]
+				}
 			}
 		}
 	}
@@ -588,31 +598,28 @@ func (s *emState[F]) mstepRange(method string, alpha float64, a0, a1 int) {
 	}
 }
 
-// gatherAdd5 adds, for every label j, row codes[j] of src to row items[j] of
-// dst, rows 5 wide: dst[5·items[j]+c] += src[5·codes[j]+c]. It panics unless
-// every row lies inside its slice (codes below maxCode); the loop itself runs without bounds
-// checks (the hot loop of the E-step).
-func gatherAdd5[F float](dst, src []F, items []int32, codes []uint16, maxCode int) {
-	if len(codes) < len(items) {
-		panic("crowd: gatherAdd5: codes shorter than items")
-	}
-	checkRows5(len(dst), len(src), maxCode, items)
-	if len(items) == 0 {
+// gatherAdd5 adds, for every label v, row code = v>>16 of src to row
+// item = v&0xffff of dst, rows 5 wide: dst[5·item+c] += src[5·code+c]. The
+// labels are sorted by item. It panics unless every row lies inside its
+// slice (codes below maxCode); the loop itself runs without bounds checks
+// (the hot loop of the E-step).
+func gatherAdd5[F float](dst, src []F, lab []uint32, maxCode int) {
+	checkRows5(len(dst), len(src), maxCode, lab)
+	if len(lab) == 0 {
 		return
 	}
 	if d32, ok := any(dst).([]float32); ok && haveRows5Asm {
-		gatherAdd5f32(&d32[0], &any(src).([]float32)[0], &items[0], &codes[0], len(items))
+		gatherAdd5f32(&d32[0], &any(src).([]float32)[0], &lab[0], len(lab))
 		return
 	}
 	var z F
 	sz := unsafe.Sizeof(z)
 	d0, s0 := unsafe.Pointer(unsafe.SliceData(dst)), unsafe.Pointer(unsafe.SliceData(src))
-	ip, cp := unsafe.Pointer(unsafe.SliceData(items)), unsafe.Pointer(unsafe.SliceData(codes))
-	for j := 0; j < len(items); j++ {
-		it := *(*int32)(unsafe.Add(ip, 4*j))
-		co := *(*uint16)(unsafe.Add(cp, 2*j))
-		d := (*[5]F)(unsafe.Add(d0, uintptr(it)*5*sz))
-		s := (*[5]F)(unsafe.Add(s0, uintptr(co)*5*sz))
+	lp := unsafe.Pointer(unsafe.SliceData(lab))
+	for j := 0; j < len(lab); j++ {
+		v := *(*uint32)(unsafe.Add(lp, 4*j))
+		d := (*[5]F)(unsafe.Add(d0, uintptr(v&0xffff)*5*sz))
+		s := (*[5]F)(unsafe.Add(s0, uintptr(v>>16)*5*sz))
 		d[0] += s[0]
 		d[1] += s[1]
 		d[2] += s[2]
@@ -621,30 +628,26 @@ func gatherAdd5[F float](dst, src []F, items []int32, codes []uint16, maxCode in
 	}
 }
 
-// scatterAdd5 adds, for every label j, row items[j] of src to row codes[j]
-// of dst, rows 5 wide: dst[5·codes[j]+c] += src[5·items[j]+c]; the M-step's
-// hot loop, with the same checks as gatherAdd5.
-func scatterAdd5[F float](dst, src []F, items []int32, codes []uint16, maxCode int) {
-	if len(codes) < len(items) {
-		panic("crowd: scatterAdd5: codes shorter than items")
-	}
-	checkRows5(len(src), len(dst), maxCode, items)
-	if len(items) == 0 {
+// scatterAdd5 adds, for every label v, row item = v&0xffff of src to row
+// code = v>>16 of dst, rows 5 wide: dst[5·code+c] += src[5·item+c]; the
+// M-step's hot loop, with the same checks as gatherAdd5.
+func scatterAdd5[F float](dst, src []F, lab []uint32, maxCode int) {
+	checkRows5(len(src), len(dst), maxCode, lab)
+	if len(lab) == 0 {
 		return
 	}
 	if d32, ok := any(dst).([]float32); ok && haveRows5Asm {
-		scatterAdd5f32(&d32[0], &any(src).([]float32)[0], &items[0], &codes[0], len(items))
+		scatterAdd5f32(&d32[0], &any(src).([]float32)[0], &lab[0], len(lab))
 		return
 	}
 	var z F
 	sz := unsafe.Sizeof(z)
 	d0, s0 := unsafe.Pointer(unsafe.SliceData(dst)), unsafe.Pointer(unsafe.SliceData(src))
-	ip, cp := unsafe.Pointer(unsafe.SliceData(items)), unsafe.Pointer(unsafe.SliceData(codes))
-	for j := 0; j < len(items); j++ {
-		it := *(*int32)(unsafe.Add(ip, 4*j))
-		co := *(*uint16)(unsafe.Add(cp, 2*j))
-		s := (*[5]F)(unsafe.Add(s0, uintptr(it)*5*sz))
-		d := (*[5]F)(unsafe.Add(d0, uintptr(co)*5*sz))
+	lp := unsafe.Pointer(unsafe.SliceData(lab))
+	for j := 0; j < len(lab); j++ {
+		v := *(*uint32)(unsafe.Add(lp, 4*j))
+		s := (*[5]F)(unsafe.Add(s0, uintptr(v&0xffff)*5*sz))
+		d := (*[5]F)(unsafe.Add(d0, uintptr(v>>16)*5*sz))
 		d[0] += s[0]
 		d[1] += s[1]
 		d[2] += s[2]
@@ -653,14 +656,15 @@ func scatterAdd5[F float](dst, src []F, items []int32, codes []uint16, maxCode i
 	}
 }
 
-// checkRows5 panics unless the items (sorted, so their range is their ends)
-// index 5-wide rows of a slice of length nItem and every code below maxCode
-// (the block size × k, by construction) a 5-wide row of one of length nCode.
-func checkRows5(nItem, nCode, maxCode int, items []int32) {
-	if len(items) == 0 {
+// checkRows5 panics unless the labels' items (sorted, so the largest is the
+// last label's) index 5-wide rows of a slice of length nItem and every code
+// below maxCode (the block size × k, by construction) a 5-wide row of one
+// of length nCode.
+func checkRows5(nItem, nCode, maxCode int, lab []uint32) {
+	if len(lab) == 0 {
 		return
 	}
-	if items[0] < 0 || items[len(items)-1] < items[0] || 5*int(items[len(items)-1])+5 > nItem {
+	if last := int(lab[len(lab)-1] & 0xffff); 5*last+5 > nItem || int(lab[0]&0xffff) > last {
 		panic("crowd: label item outside the accumulator")
 	}
 	if 5*maxCode > nCode || maxCode > 1<<16 {

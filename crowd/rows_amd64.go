@@ -4,9 +4,9 @@ package crowd
 // callers (gatherAdd5, scatterAdd5) have checked every index.
 
 //go:noescape
-func gatherAdd5f32(dst, src *float32, items *int32, codes *uint16, n int)
+func gatherAdd5f32(dst, src *float32, lab *uint32, n int)
 
 //go:noescape
-func scatterAdd5f32(dst, src *float32, items *int32, codes *uint16, n int)
+func scatterAdd5f32(dst, src *float32, lab *uint32, n int)
 
 const haveRows5Asm = true

@@ -2,11 +2,11 @@
 
 package crowd
 
-func gatherAdd5f32(dst, src *float32, items *int32, codes *uint16, n int) {
+func gatherAdd5f32(dst, src *float32, lab *uint32, n int) {
 	panic("crowd: no assembly kernel on this architecture")
 }
 
-func scatterAdd5f32(dst, src *float32, items *int32, codes *uint16, n int) {
+func scatterAdd5f32(dst, src *float32, lab *uint32, n int) {
 	panic("crowd: no assembly kernel on this architecture")
 }
 
