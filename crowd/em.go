@@ -360,7 +360,29 @@ func (s *emState[F]) estep(wk int, post []float64) {
 	prod := 1.0 // Π z over items since ll was last updated: one log per hundreds of items
 	fast := isFloat32[F]()
 	sc := make([]float64, k)
+	// The common case unrolled (k = 5, float32 tables, no gold, not the
+	// final pass): the same operations in the same order as the loop below,
+	// the prior sums kept in registers (pr is only touched here then).
+	k5 := k == 5 && fast && s.gold == nil && post == nil
+	var p0, p1, p2, p3, p4 float64
 	for i := lo; i < hi; i++ {
+		if k5 && s.nlab[i] > 0 {
+			r := (*[5]F)(s.acc[i*5 : i*5+5])
+			v0, v1, v2, v3, v4 := float64(r[0]), float64(r[1]), float64(r[2]), float64(r[3]), float64(r[4])
+			m := max(v0, v1, v2, v3, v4)
+			e0, e1, e2, e3, e4 := expNeg(v0-m), expNeg(v1-m), expNeg(v2-m), expNeg(v3-m), expNeg(v4-m)
+			z := e0 + e1 + e2 + e3 + e4
+			ll += m
+			if prod *= z; prod > 1e200 {
+				ll += math.Log(prod)
+				prod = 1
+			}
+			inv := 1 / z
+			e0, e1, e2, e3, e4 = e0*inv, e1*inv, e2*inv, e3*inv, e4*inv
+			r[0], r[1], r[2], r[3], r[4] = F(e0), F(e1), F(e2), F(e3), F(e4)
+			p0, p1, p2, p3, p4 = p0+e0, p1+e1, p2+e2, p3+e3, p4+e4
+			continue
+		}
 		row := s.acc[i*k : (i+1)*k]
 		g := goldOf(s.gold, i)
 		if s.nlab[i] == 0 && g < 0 {
@@ -420,6 +442,9 @@ func (s *emState[F]) estep(wk int, post []float64) {
 				p[c] = float64(row[c])
 			}
 		}
+	}
+	if k5 {
+		pr[0], pr[1], pr[2], pr[3], pr[4] = p0, p1, p2, p3, p4
 	}
 	s.ll[wk] = ll + math.Log(prod)
 }
