@@ -18,8 +18,16 @@ import (
 // item's posterior into its annotator's count row. Items are split into one
 // contiguous range per worker, so workers never write the same accumulator,
 // and each worker has its own count table, summed after the sweep. A label
-// is stored as its item (int32) and a 16-bit code (annotator-within-block ×
-// K + class): 6 bytes.
+// is stored in 4 bytes: a 16-bit code (annotator-within-block × K + class)
+// and the low 16 bits of its item; each block's labels are cut into chunks
+// of 2¹⁶ items, which supply the upper bits. At K = 5 with float32 tables
+// the two sweeps run in assembly on amd64 (rows_amd64.s: one 4-wide SSE add
+// and one scalar add a label, no bounds checks; the indices are checked per
+// chunk), and the E-step's normalisation and the M-step's logs use the
+// table-driven expNeg and logPos. Profile on 40 million labels (1 million
+// items, 100,000 annotators): the two sweeps take about three quarters of an
+// iteration, the rest is normalisation (5 exps an item) and the M-step (25
+// logs an annotator).
 
 type float interface{ ~float32 | ~float64 }
 
