@@ -150,6 +150,9 @@ func (sv *Server) postItems(c echo.Context) error {
 	if err != nil {
 		return bodyError(err)
 	}
+	// Readers may see an import's rows before it lands or is rolled back:
+	// forget the items' views afterwards, whatever the outcome.
+	defer sv.views.clear()
 	res, err := sv.st.ImportItems(sv.source(c), update, r.Next)
 	if err != nil {
 		return bodyError(err)

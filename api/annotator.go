@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 	"time"
 
 	"github.com/labstack/echo/v4"
@@ -23,6 +24,57 @@ type ItemView struct {
 	Kind  handoff.Kind `json:"kind"`
 	Text  string       `json:"text,omitempty"`
 	Image string       `json:"image,omitempty"`
+}
+
+// viewCache remembers the views of items handed out, so that handing out
+// work reads no item from the store. The service is the only writer of the
+// project while it runs; an item import clears the cache (and bumps gen, so
+// that a view read before the clear is not stored after it).
+type viewCache struct {
+	mu  sync.RWMutex
+	gen uint64
+	m   map[string]ItemView
+}
+
+func (c *viewCache) get(id string) (ItemView, uint64, bool) {
+	c.mu.RLock()
+	defer c.mu.RUnlock()
+	v, ok := c.m[id]
+	return v, c.gen, ok
+}
+
+func (c *viewCache) put(gen uint64, v ItemView) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if gen != c.gen {
+		return
+	}
+	if c.m == nil {
+		c.m = map[string]ItemView{}
+	}
+	c.m[v.ID] = v
+}
+
+func (c *viewCache) clear() {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	c.gen++
+	c.m = nil
+}
+
+// itemViewOf returns the view of item id, from the cache or the store.
+func (sv *Server) itemViewOf(id string) (ItemView, error) {
+	v, gen, ok := sv.views.get(id)
+	if ok {
+		return v, nil
+	}
+	it, _, err := sv.st.Item(id)
+	if err != nil {
+		return ItemView{}, err
+	}
+	v = itemView(it)
+	sv.views.put(gen, v)
+	return v, nil
 }
 
 func itemView(it handoff.Item) ItemView {
@@ -172,11 +224,10 @@ func (sv *Server) nextFor(pr *principal) (NextReply, error) {
 		return NextReply{Progress: pg,
 			Message: "Nothing is waiting for you right now: every item has its answers or is in someone's hands. Try again later."}, nil
 	}
-	it, _, err := sv.st.Item(g.itemID)
+	v, err := sv.itemViewOf(g.itemID)
 	if err != nil {
 		return NextReply{}, err
 	}
-	v := itemView(it)
 	return NextReply{Lease: &LeaseView{ID: g.lease.id, Item: g.itemID, Expires: g.lease.expires.UTC()},
 		Item: &v, Progress: pg}, nil
 }

@@ -169,6 +169,8 @@ type Server struct {
 	metrics *metrics
 	rounds  *roundRunner
 
+	views viewCache // item views handed out
+
 	trMu  sync.Mutex
 	trSet *trainingSet // cached training split (nil: read gold again)
 

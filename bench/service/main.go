@@ -18,7 +18,7 @@
 package main
 
 import (
-	"bytes"
+	"bufio"
 	"encoding/binary"
 	"encoding/json"
 	"flag"
@@ -32,7 +32,9 @@ import (
 	"path/filepath"
 	"runtime"
 	"runtime/debug"
+	"runtime/pprof"
 	"slices"
+	"strconv"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -54,6 +56,7 @@ func main() {
 		warmup     = flag.Duration("warmup", 2*time.Second, "unmeasured run before the measured one")
 		peer       = flag.Bool("peer", false, "run against the one-transaction-per-label baseline instead")
 		keep       = flag.String("dir", "", "project directory (default: a temporary one, removed afterwards)")
+		cpuprofile = flag.String("cpuprofile", "", "write the clients' CPU profile of the measured run to this file")
 		separate   = flag.Bool("separate", false, "fetch each item with its own GET /api/v1/next instead of asking for it in the label's reply")
 	)
 	flag.Parse()
@@ -118,10 +121,21 @@ func main() {
 		base, stopServer = startLoop(*loopBin, dir)
 	}
 
-	client := &http.Client{Transport: &http.Transport{MaxIdleConnsPerHost: *annotators * 2, MaxConnsPerHost: *annotators * 2}, Timeout: 10 * time.Second}
+	client := newClients(base, *annotators)
+	defer client.close()
 	// Warm-up: every token is verified once (argon2id) and connections open.
 	run(client, base, tokens, *warmup, *maxLabels, "w", *separate)
+	if *cpuprofile != "" {
+		f, err := os.Create(*cpuprofile)
+		if err != nil {
+			log.Fatal(err)
+		}
+		if err := pprof.StartCPUProfile(f); err != nil {
+			log.Fatal(err)
+		}
+	}
 	res := run(client, base, tokens, *duration, *maxLabels, "m", *separate)
+	pprof.StopCPUProfile()
 	stopServer()
 
 	if !*peer {
@@ -189,7 +203,7 @@ type result struct {
 
 // run lets every annotator fetch and label items until d has passed or max
 // labels are acknowledged.
-func run(client *http.Client, base string, tokens []string, d time.Duration, max int, tag string, separate bool) result {
+func run(client *clients, base string, tokens []string, d time.Duration, max int, tag string, separate bool) result {
 	var (
 		mu    sync.Mutex
 		res   result
@@ -205,13 +219,13 @@ func run(client *http.Client, base string, tokens []string, d time.Duration, max
 			var acked []string
 			var ll, nl []time.Duration
 			errs := 0
-			var nr *api.NextReply
+			var nr *slimNext
 			for k := 0; time.Now().Before(deadline) && count.Load() < int64(max); k++ {
 				if nr == nil || nr.Lease == nil {
 					t0 := time.Now()
-					code, b := do(client, "GET", base+"/api/v1/next", tok, nil, "")
+					code, b := client.conn(a).do("GET", "/api/v1/next", tok, nil, "")
 					nl = append(nl, time.Since(t0))
-					nr = new(api.NextReply)
+					nr = new(slimNext)
 					if code != http.StatusOK || json.Unmarshal(b, nr) != nil {
 						errs++
 						nr = nil
@@ -225,7 +239,7 @@ func run(client *http.Client, base string, tokens []string, d time.Duration, max
 				body, _ := json.Marshal(api.LabelRequest{Lease: nr.Lease.ID, Item: nr.Item.ID, Label: []string{"a", "b", "c"}[k%3], Seconds: 1.5, Next: !separate})
 				key := fmt.Sprintf("%s-%d-%d", tag, a, k)
 				t1 := time.Now()
-				code, b := do(client, "POST", base+"/api/v1/labels", tok, body, key)
+				code, b := client.conn(a).do("POST", "/api/v1/labels", tok, body, key)
 				ll = append(ll, time.Since(t1))
 				item := nr.Item.ID
 				nr = nil
@@ -236,7 +250,7 @@ func run(client *http.Client, base string, tokens []string, d time.Duration, max
 				count.Add(1)
 				acked = append(acked, item+"/"+fmt.Sprintf("ann%03d", a))
 				if !separate {
-					var lr api.LabelReply
+					var lr slimLabelReply
 					if json.Unmarshal(b, &lr) == nil && lr.Next != nil {
 						nr = lr.Next
 					}
@@ -255,20 +269,118 @@ func run(client *http.Client, base string, tokens []string, d time.Duration, max
 	return res
 }
 
-func do(client *http.Client, method, url, tok string, body []byte, key string) (int, []byte) {
-	req, _ := http.NewRequest(method, url, bytes.NewReader(body))
-	req.Header.Set("Authorization", "Bearer "+tok)
-	if key != "" {
-		req.Header.Set("Idempotency-Key", key)
-		req.Header.Set("Content-Type", "application/json")
+// slimNext is the part of api.NextReply the clients use (decoding only the
+// ids keeps the load generator's CPU, which shares the cores with the
+// server, low).
+type slimNext struct {
+	Lease *struct {
+		ID string `json:"id"`
+	} `json:"lease"`
+	Item *struct {
+		ID string `json:"id"`
+	} `json:"item"`
+}
+
+// slimLabelReply is the part of api.LabelReply the clients use.
+type slimLabelReply struct {
+	Next *slimNext `json:"next"`
+}
+
+// clients holds one kept-alive HTTP/1.1 connection per annotator. Each
+// annotator sends one request at a time and reads its answer on its own
+// connection, with no goroutines or channels in between (what wrk does): the
+// load generator shares the two cores with the server, and net/http's
+// client spends about as much CPU per request as the server does.
+type clients struct {
+	host  string
+	conns []*conn
+}
+
+func newClients(base string, n int) *clients {
+	cl := &clients{host: strings.TrimPrefix(base, "http://")}
+	for range n {
+		cl.conns = append(cl.conns, &conn{host: cl.host})
 	}
-	resp, err := client.Do(req)
-	if err != nil {
-		return 0, nil
+	return cl
+}
+
+func (cl *clients) conn(a int) *conn { return cl.conns[a] }
+
+func (cl *clients) close() {
+	for _, k := range cl.conns {
+		k.drop()
 	}
-	defer resp.Body.Close()
-	b, _ := io.ReadAll(resp.Body)
-	return resp.StatusCode, b
+}
+
+// conn is one annotator's connection (used by one goroutine at a time).
+type conn struct {
+	host string
+	c    net.Conn
+	r    *bufio.Reader
+	w    *bufio.Writer
+}
+
+func (k *conn) drop() {
+	if k.c != nil {
+		k.c.Close()
+		k.c = nil
+	}
+}
+
+// do sends one request and returns the status and body (0, nil when the
+// exchange failed twice). A request that fails on a kept-alive connection is
+// sent again on a new one, as net/http does for requests with an
+// Idempotency-Key; the server answers a repeated label as a duplicate.
+func (k *conn) do(method, path, tok string, body []byte, key string) (int, []byte) {
+	for attempt := 0; attempt < 2; attempt++ {
+		if k.c == nil {
+			c, err := net.DialTimeout("tcp", k.host, 10*time.Second)
+			if err != nil {
+				return 0, nil
+			}
+			k.c, k.r, k.w = c, bufio.NewReaderSize(c, 8<<10), bufio.NewWriterSize(c, 4<<10)
+		}
+		k.c.SetDeadline(time.Now().Add(10 * time.Second))
+		w := k.w
+		w.WriteString(method)
+		w.WriteByte(' ')
+		w.WriteString(path)
+		w.WriteString(" HTTP/1.1\r\nHost: ")
+		w.WriteString(k.host)
+		w.WriteString("\r\nAuthorization: Bearer ")
+		w.WriteString(tok)
+		if key != "" {
+			w.WriteString("\r\nIdempotency-Key: ")
+			w.WriteString(key)
+			w.WriteString("\r\nContent-Type: application/json")
+		}
+		if body != nil {
+			w.WriteString("\r\nContent-Length: ")
+			w.WriteString(strconv.Itoa(len(body)))
+		}
+		w.WriteString("\r\n\r\n")
+		w.Write(body)
+		if err := w.Flush(); err != nil {
+			k.drop()
+			continue
+		}
+		resp, err := http.ReadResponse(k.r, nil)
+		if err != nil {
+			k.drop()
+			continue
+		}
+		b, err := io.ReadAll(resp.Body)
+		resp.Body.Close()
+		if err != nil {
+			k.drop()
+			continue
+		}
+		if resp.Close {
+			k.drop()
+		}
+		return resp.StatusCode, b
+	}
+	return 0, nil
 }
 
 // startLoop runs `loop serve` on a free loopback port.
