@@ -1,9 +1,12 @@
 package api
 
 import (
+	crand "crypto/rand"
+	"encoding/base64"
 	"encoding/json"
 	"errors"
 	"fmt"
+	"math/rand/v2"
 	"sort"
 	"sync"
 	"time"
@@ -35,6 +38,7 @@ type pool struct {
 	open    int               // work items with fewer labels than wanted
 	seqBase uint64            // labels numbered below this are counted
 	seq     uint64            // lease ids start with it: time-ordered keys in the store
+	rnd     *rand.ChaCha8     // the random part of lease ids (seeded from crypto/rand)
 	anns    map[string]*annState
 	leases  map[string]*lease // live leases by id
 	stale   map[string]*lease // expired leases, kept an hour so that late answers are told so
@@ -56,8 +60,12 @@ type lease struct {
 }
 
 func newPool(st *store.Store, cfg Config, m *metrics) (*pool, error) {
+	var seed [32]byte
+	if _, err := crand.Read(seed[:]); err != nil {
+		return nil, err
+	}
 	p := &pool{st: st, cfg: cfg, m: m, seq: uint64(time.Now().UnixNano()), anns: map[string]*annState{},
-		leases: map[string]*lease{}, stale: map[string]*lease{}}
+		leases: map[string]*lease{}, stale: map[string]*lease{}, rnd: rand.NewChaCha8(seed)}
 	if err := p.rebuild(); err != nil {
 		return nil, err
 	}
@@ -337,7 +345,7 @@ func (p *pool) next(person string, now time.Time) (grant, error) {
 			continue
 		}
 		p.seq++
-		l := &lease{id: fmt.Sprintf("%016x", p.seq) + randomString(6), item: n, ann: person, expires: now.Add(p.cfg.LeaseTime)}
+		l := &lease{id: p.leaseID(), item: n, ann: person, expires: now.Add(p.cfg.LeaseTime)}
 		p.leases[l.id] = l
 		p.leased[n]++
 		a.lease = l
@@ -345,6 +353,22 @@ func (p *pool) next(person string, now time.Time) (grant, error) {
 		return grant{lease: l, itemID: p.ids[n]}, nil
 	}
 	return grant{}, nil
+}
+
+// leaseID returns a new lease id: p.seq in 16 hex digits, then 6 random
+// bytes in unpadded base64url (from a ChaCha8 stream seeded by crypto/rand,
+// so that ids stay unguessable without a system call per lease). Call with
+// p.mu held, after p.seq++.
+func (p *pool) leaseID() string {
+	var b [16 + 8]byte
+	const hex = "0123456789abcdef"
+	for i := range 16 {
+		b[15-i] = hex[(p.seq>>(4*i))&15]
+	}
+	var r [6]byte
+	p.rnd.Read(r[:])
+	base64.RawURLEncoding.Encode(b[16:], r[:])
+	return string(b[:])
 }
 
 // cancel gives back a lease that could not be stored.

@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"math"
+	"strconv"
 	"sync"
 	"time"
 
@@ -311,6 +312,10 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 		res     SubmitResult
 		outcome error
 	)
+	// The audit entry's detail, but for the label's number: formatted here
+	// rather than in the shared transaction, which one goroutine runs for
+	// everyone.
+	detail := fmt.Sprintf(": item %q, class %q, by %q", l.Item, l.Class, l.Annotator)
 	err := s.batch(func(tx *bolt.Tx) error {
 		res, outcome = SubmitResult{}, nil
 		keys, err := tx.CreateBucketIfNotExists(bSvcKeys)
@@ -424,7 +429,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 		if !l.Time.IsZero() {
 			res.Label.Time = time.Unix(0, r.Time).UTC()
 		}
-		return s.audit(tx, source, "labels.add", fmt.Sprintf("label %d: item %q, class %q, by %q", seq, l.Item, l.Class, l.Annotator))
+		return s.audit(tx, source, "labels.add", "label "+strconv.FormatUint(seq, 10)+detail)
 	})
 	if err != nil {
 		return SubmitResult{}, err
