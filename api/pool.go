@@ -331,6 +331,12 @@ func (p *pool) next(person string, now time.Time) (grant, error) {
 	advancing := true
 	for i := a.from; i < len(p.order); i++ {
 		n := p.order[i]
+		taken := p.count[n]+p.leased[n] >= p.target[n]
+		if taken && !advancing && p.count[n] < p.target[n] {
+			// In others' hands, past this person's frontier: nothing to
+			// note, so skip the map lookups below (most of the scan).
+			continue
+		}
 		_, done := a.done[n]
 		_, skipped := a.skipped[n]
 		full := p.count[n] >= p.target[n]
@@ -341,7 +347,7 @@ func (p *pool) next(person string, now time.Time) (grant, error) {
 			continue
 		}
 		advancing = false
-		if p.count[n]+p.leased[n] >= p.target[n] {
+		if taken {
 			continue
 		}
 		p.seq++
