@@ -9,6 +9,8 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -49,9 +51,6 @@ func writePNG(path string, share float64, rng *rand.Rand) error {
 // the list's folder, as `loop items add` takes them — and checks every
 // label and confidence against loop's and Machine.Label's.
 func TestPrismImagesMatchLoopAutolabel(t *testing.T) {
-	// Two well-separated colours give confident scores: a high threshold
-	// leaves the mixed images for people.
-	const imgThreshold = 0.99
 	pr := loopProject(t) // builds loop
 	loop := filepath.Join(pr.dir, "loop")
 	dir := t.TempDir()
@@ -86,22 +85,42 @@ func TestPrismImagesMatchLoopAutolabel(t *testing.T) {
 		}
 	}
 	pd, model, export := filepath.Join(dir, "proj"), filepath.Join(dir, "images.hom"), filepath.Join(dir, "export.jsonl")
-	for _, args := range [][]string{
-		{"init", pd, "--codebook", filepath.Join(dir, "cb.yaml")},
-		{"items", "add", pd, filepath.Join(dir, "train.txt"), filepath.Join(dir, "archive.txt")},
-		{"labels", "add", pd, filepath.Join(dir, "labels.csv")},
-		{"consensus", pd},
-		{"round", pd},
-		{"autolabel", pd, "--force", "--threshold", fmt.Sprint(imgThreshold)},
-		{"model", "export", pd, model},
-		{"export", pd, "--format", "jsonl", "--out", export},
-	} {
+	run := func(args ...string) {
 		cmd := exec.Command(loop, args...)
 		cmd.Dir = dir
 		if out, err := cmd.CombinedOutput(); err != nil {
 			t.Fatalf("loop %s: %v\n%s", strings.Join(args, " "), err, out)
 		}
 	}
+	run("init", pd, "--codebook", filepath.Join(dir, "cb.yaml"))
+	run("items", "add", pd, filepath.Join(dir, "train.txt"), filepath.Join(dir, "archive.txt"))
+	run("labels", "add", pd, filepath.Join(dir, "labels.csv"))
+	run("consensus", pd)
+	run("round", pd)
+	run("model", "export", pd, model)
+	// The threshold splits the archive in two: the median of the model's
+	// confidences on it (rounded), so that both sides are checked.
+	var archive []handoff.Item
+	for i := range 300 {
+		name := fmt.Sprintf("img/a%03d.png", i)
+		archive = append(archive, handoff.Item{ID: name, Kind: handoff.KindImage, Path: filepath.Join(dir, name)})
+	}
+	m0, err := learner.LoadMachine(model)
+	if err != nil {
+		t.Fatal(err)
+	}
+	pre, err := m0.Label(archive)
+	if err != nil {
+		t.Fatal(err)
+	}
+	confs := make([]float64, len(pre))
+	for i, l := range pre {
+		confs[i] = l.Confidence
+	}
+	slices.Sort(confs)
+	imgThreshold, _ := strconv.ParseFloat(strconv.FormatFloat(confs[len(confs)/2], 'f', 6, 64), 64)
+	run("autolabel", pd, "--force", "--threshold", fmt.Sprint(imgThreshold))
+	run("export", pd, "--format", "jsonl", "--out", export)
 	out := t.TempDir()
 	runPrism(t, Config{Items: filepath.Join(dir, "archive.txt"), Images: true, Model: model,
 		Threshold: imgThreshold, Out: out, Shards: 2, Batch: 64})
@@ -133,12 +152,7 @@ func TestPrismImagesMatchLoopAutolabel(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var items []handoff.Item
-	for i := range 300 {
-		name := fmt.Sprintf("img/a%03d.png", i)
-		items = append(items, handoff.Item{ID: name, Kind: handoff.KindImage, Path: filepath.Join(dir, name)})
-	}
-	want, err := m.Label(items)
+	want, err := m.Label(archive)
 	if err != nil {
 		t.Fatal(err)
 	}
