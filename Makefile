@@ -14,9 +14,9 @@ chromium:
 vet:
 	$(GO) vet ./...
 
+# Both modules' tests; ends with a "N passed, M failed" line (scripts/unit.sh).
 unit:
-	$(GO) test ./...
-	cd beam && $(GO) vet ./... && $(GO) test ./...
+	GO=$(GO) bash scripts/unit.sh
 
 build:
 	$(GO) build -o bin/loop ./cmd/loop
