@@ -11,13 +11,16 @@ log=testdata/artefacts/test.log
 : >"$log"
 status=0
 show='^(ok|FAIL|--- FAIL|panic:)'
-$GO test -v ./... 2>&1 | tee -a "$log" | grep -E "$show" || true
+$GO test -v ./... 2>&1 | tee -a "$log" | { grep -E "$show" || true; }
 [ "${PIPESTATUS[0]}" -eq 0 ] || status=1
-(cd beam && $GO vet ./... && $GO test -v ./...) 2>&1 | tee -a "$log" | grep -E "$show" || true
+(cd beam && $GO vet ./... && $GO test -v ./...) 2>&1 | tee -a "$log" | { grep -E "$show" || true; }
 [ "${PIPESTATUS[0]}" -eq 0 ] || status=1
 if grep -qE '^(--- FAIL|panic:)' "$log"; then
   echo "== failures (the whole log is in $log):"
-  grep -E -A25 '^(--- FAIL|panic:)' "$log" | head -300
+  # Each failing test's output: from its "=== RUN" line to its "--- FAIL".
+  awk '/^[[:space:]]*=== RUN/ {buf = ""} {buf = buf $0 "\n"}
+       /^[[:space:]]*--- FAIL/ {printf "%s", buf; buf = ""}
+       /^panic:/ {p = 40} p > 0 {print; p--}' "$log" | head -400
 fi
 passed=$(grep -cE '^--- PASS' "$log" || true)
 failed=$(grep -cE '^--- FAIL' "$log" || true)
