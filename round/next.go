@@ -4,6 +4,7 @@ import (
 	"fmt"
 
 	"handoff"
+	"handoff/features"
 	"handoff/selector"
 	"handoff/store"
 )
@@ -36,6 +37,8 @@ type current struct {
 	s       *state
 	r       *Result
 	machine map[string]handoff.MachineLabel
+	x       features.Matrix // feature rows of the items of the model's kind…
+	idx     []int           // …at these item positions
 }
 
 func loadCurrent(st *store.Store) (*current, error) {
@@ -71,10 +74,12 @@ func loadCurrent(st *store.Store) (*current, error) {
 			items = append(items, it)
 		}
 	}
-	pr, err := m.Proba(items)
+	x, err := m.Featurise(items)
 	if err != nil {
 		return nil, err
 	}
+	pr := make([]float64, len(items)*K)
+	m.ProbaInto(pr, x)
 	proba := make([]float64, len(p.items)*K)
 	for j, i := range idx {
 		copy(proba[i*K:(i+1)*K], pr[j*K:(j+1)*K])
@@ -83,7 +88,7 @@ func loadCurrent(st *store.Store) (*current, error) {
 	if err := st.MachineLabels(func(ml handoff.MachineLabel) error { machine[ml.Item] = ml; return nil }); err != nil {
 		return nil, err
 	}
-	return &current{p: p, cr: cr, t: &trained{m: m}, proba: proba, s: s, r: r, machine: machine}, nil
+	return &current{p: p, cr: cr, t: &trained{m: m}, proba: proba, s: s, r: r, machine: machine, x: x, idx: idx}, nil
 }
 
 // Next picks the next batch with the latest round's model and returns it.
@@ -130,19 +135,7 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 		return nil, fmt.Errorf("%w: no machine labels to audit; run `loop autolabel DIR` first", ErrNothing)
 	}
 	if rc.Diversity != "" || rc.Beta != 0 {
-		var items []handoff.Item
-		var idx []int
-		for i, it := range c.p.items {
-			if it.Kind == c.t.m.Kind {
-				items = append(items, it)
-				idx = append(idx, i)
-			}
-		}
-		x, err := c.t.m.Featurise(items)
-		if err != nil {
-			return nil, err
-		}
-		c.t.all = spread(x, idx, len(c.p.items))
+		c.t.all = spread(c.x, c.idx, len(c.p.items)) // rows by item, for density and diversity
 	}
 	held := setOf(c.s.HeldOut)
 	pending := setOf(c.s.PendingHeldOut)
