@@ -150,3 +150,30 @@ func (d *Demo) Answer(ids []string, labelsPerItem, round int) ([]handoff.Label, 
 	}
 	return append(a, b...), nil
 }
+
+// Of returns the demo's items of one kind with their round-0 labels and gold
+// answers — one project's worth (sentences for TopicCodebook, images for
+// ParticleCodebook).
+func (d *Demo) Of(kind handoff.Kind) ([]handoff.Item, []handoff.Label, []handoff.Gold) {
+	var items []handoff.Item
+	ids := map[string]bool{}
+	for _, it := range d.Items {
+		if it.Kind == kind {
+			items = append(items, it)
+			ids[it.ID] = true
+		}
+	}
+	var labels []handoff.Label
+	for _, l := range d.Labels {
+		if ids[l.Item] {
+			labels = append(labels, l)
+		}
+	}
+	var gold []handoff.Gold
+	for _, g := range d.Gold {
+		if ids[g.Item] {
+			gold = append(gold, g)
+		}
+	}
+	return items, labels, gold
+}

@@ -376,20 +376,7 @@ func TestBoard(t *testing.T) {
 		t.Fatal(err)
 	}
 	t.Cleanup(func() { st.Close() })
-	var items []handoff.Item
-	ids := map[string]bool{}
-	for _, it := range d.Items {
-		if it.Kind == handoff.KindText {
-			items = append(items, it)
-			ids[it.ID] = true
-		}
-	}
-	var labels []handoff.Label
-	for _, l := range d.Labels {
-		if ids[l.Item] {
-			labels = append(labels, l)
-		}
-	}
+	items, labels, _ := d.Of(handoff.KindText)
 	if _, err := st.PutItems(items, false, "test"); err != nil {
 		t.Fatal(err)
 	}

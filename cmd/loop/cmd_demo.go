@@ -126,26 +126,7 @@ func demoProjectRun(cmd *cobra.Command, d *sim.Demo, dir string, pr demoProject,
 		return "", err
 	}
 	defer st.Close()
-	var items []handoff.Item
-	ids := map[string]bool{}
-	for _, it := range d.Items {
-		if it.Kind == pr.kind {
-			items = append(items, it)
-			ids[it.ID] = true
-		}
-	}
-	var labels []handoff.Label
-	for _, l := range d.Labels {
-		if ids[l.Item] {
-			labels = append(labels, l)
-		}
-	}
-	var gold []handoff.Gold
-	for _, g := range d.Gold {
-		if ids[g.Item] {
-			gold = append(gold, g)
-		}
-	}
+	items, labels, gold := d.Of(pr.kind)
 	if _, err := st.PutItems(items, false, src); err != nil {
 		return "", err
 	}
