@@ -24,6 +24,10 @@
 //     careless annotators, spammers (random or always one class) and
 //     resubmitters (who label the same items many times), each with a
 //     confusion matrix of their own drawn around their type's accuracy.
+//   - A stream crowd (NewStream, Stream.Answer): the crowd a real project
+//     gets — people arrive, give 10–70 labels each and leave, with spammers,
+//     one-class annotators, a few resubmitters and confusions most of them
+//     share (Shared). Use it to test anything that must hold on real crowds.
 //   - Planning (CrowdSpec): a crowd described by shares of annotator types,
 //     labels per item, classes and prevalence, generated with known truth.
 //   - The demo (NewDemo): the text and image scenarios with one crowd that has
