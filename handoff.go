@@ -13,6 +13,7 @@ import (
 	"strconv"
 	"strings"
 	"time"
+	"unicode"
 )
 
 // Kind says what an item holds.
@@ -101,9 +102,15 @@ type Class struct {
 	Description string `json:"description,omitempty" yaml:"description,omitempty"`
 }
 
+// MaxClasses is the most classes a codebook may have: the consensus and
+// agreement code keeps a label's class in one byte (crowd.Labels), and the
+// store keeps it in two.
+const MaxClasses = 255
+
 // Codebook is the question people answer, with its classes.
 //
-// Rules: at least two classes with unique keys. For an Ordinal codebook the
+// Rules: at least two and at most MaxClasses classes, with unique keys
+// made of printable characters (no control characters). For an Ordinal codebook the
 // classes are listed in order, lowest first, and Class index i is position i.
 // An empty Scale means Nominal.
 type Codebook struct {
@@ -127,10 +134,16 @@ func (c *Codebook) Validate() error {
 	if len(c.Classes) < 2 {
 		return fmt.Errorf("classes: need at least two classes, have %d", len(c.Classes))
 	}
+	if len(c.Classes) > MaxClasses {
+		return fmt.Errorf("classes: %d classes; at most %d are supported (the consensus keeps a class in one byte): merge rare classes or split the question in two", len(c.Classes), MaxClasses)
+	}
 	seen := make(map[string]int, len(c.Classes))
 	for i, cl := range c.Classes {
 		if strings.TrimSpace(cl.Key) == "" {
 			return fmt.Errorf("classes[%d].key: empty class key", i)
+		}
+		if strings.IndexFunc(cl.Key, unicode.IsControl) >= 0 {
+			return fmt.Errorf("classes[%d].key: %q holds a control character", i, cl.Key)
 		}
 		if j, ok := seen[cl.Key]; ok {
 			return fmt.Errorf("classes[%d].key: %q repeats classes[%d]", i, cl.Key, j)

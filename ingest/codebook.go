@@ -2,6 +2,7 @@ package ingest
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -38,17 +39,30 @@ func ParseCodebook(name string, data []byte) (handoff.Codebook, error) {
 	if !isUTF8(data) {
 		return cb, errf(Location{File: name}, "", "not UTF-8 text")
 	}
+	if t := bytes.TrimSpace(data); len(t) > 0 && t[0] == '{' {
+		if err := checkJSON(name, data); err != nil {
+			return cb, err
+		}
+	}
 	dec := yaml.NewDecoder(bytes.NewReader(data))
 	dec.KnownFields(true)
 	if err := dec.Decode(&cb); err != nil {
 		if errors.Is(err, io.EOF) {
 			return cb, errf(Location{File: name}, "", "empty codebook")
 		}
-		return cb, yamlError(name, err)
+		return cb, yamlError(name, data, err)
+	}
+	var more yaml.Node
+	if err := dec.Decode(&more); !errors.Is(err, io.EOF) {
+		line := 0
+		if err == nil {
+			line = more.Line
+		}
+		return cb, errf(Location{File: name, Line: line}, "", "a second YAML document after the codebook (after \"---\"): a codebook file holds one")
 	}
 	var node yaml.Node
 	if err := yaml.Unmarshal(data, &node); err != nil {
-		return cb, yamlError(name, err)
+		return cb, yamlError(name, data, err)
 	}
 	if err := cb.Validate(); err != nil {
 		field, msg := splitField(err.Error())
@@ -80,18 +94,107 @@ func ParseCodebook(name string, data []byte) (handoff.Codebook, error) {
 	return cb, nil
 }
 
-func yamlError(name string, err error) error {
+// checkJSON checks that a codebook written as JSON is one well-formed JSON
+// object with nothing after it (YAML, which reads the rest, would stop at
+// the end of the first value and ignore what follows).
+func checkJSON(name string, data []byte) error {
+	dec := json.NewDecoder(bytes.NewReader(data))
+	var v json.RawMessage
+	if err := dec.Decode(&v); err != nil {
+		var se *json.SyntaxError
+		if errors.As(err, &se) {
+			return errf(Location{File: name, Line: lineAt(data, se.Offset)}, "", "malformed JSON: %s", strings.TrimPrefix(se.Error(), "json: "))
+		}
+		return errf(Location{File: name}, "", "malformed JSON: %s", strings.TrimPrefix(err.Error(), "json: "))
+	}
+	off := dec.InputOffset()
+	if rest := bytes.TrimSpace(data[off:]); len(rest) > 0 {
+		at := off + int64(bytes.Index(data[off:], rest[:1]))
+		junk := string(rest)
+		if len(junk) > 20 {
+			junk = junk[:20] + "…"
+		}
+		return errf(Location{File: name, Line: lineAt(data, at)}, "", "unexpected %q after the JSON object: a codebook file holds one object and nothing after it", junk)
+	}
+	return nil
+}
+
+// lineAt returns the 1-based line of byte offset off in data.
+func lineAt(data []byte, off int64) int {
+	if off > int64(len(data)) {
+		off = int64(len(data))
+	}
+	return 1 + bytes.Count(data[:off], []byte("\n"))
+}
+
+// yamlTypes names, in words, the Go types the YAML decoder mentions, and
+// yamlTags the YAML node kinds.
+var (
+	yamlTypes = map[string]string{
+		"[]handoff.Class":  "a list of classes",
+		"handoff.Class":    "a class (a mapping with key, name and description)",
+		"handoff.Codebook": "a codebook (a mapping with name, question, scale, classes and instructions)",
+		"handoff.Scale":    "nominal or ordinal",
+		"string":           "text",
+	}
+	yamlTags = map[string]string{
+		"!!str": "text", "!!seq": "a list", "!!map": "a mapping", "!!int": "a number", "!!float": "a number",
+		"!!bool": "true or false", "!!null": "nothing", "!!binary": "binary data", "!!timestamp": "a date",
+	}
+	yamlUnmarshal = regexp.MustCompile("^cannot unmarshal (!!\\w+)(?: `([^`]*)`)? into (\\S+)$")
+	yamlUnknown   = regexp.MustCompile(`^field (\S+) not found in type (\S+)$`)
+	knownFields   = map[string]string{
+		"handoff.Class":    "key, name, description",
+		"handoff.Codebook": "name, question, scale, classes, instructions",
+	}
+)
+
+// yamlError turns a YAML decoding error into an *Error with the line and a
+// message in plain words (no Go type names).
+func yamlError(name string, data []byte, err error) error {
 	msg := err.Error()
 	var te *yaml.TypeError
 	if errors.As(err, &te) && len(te.Errors) > 0 {
 		msg = te.Errors[0]
 	}
 	msg = strings.TrimPrefix(msg, "yaml: ")
+	line := 0
 	if m := yamlLine.FindStringSubmatch(msg); m != nil {
-		line, _ := strconv.Atoi(m[1])
-		return &Error{File: name, Line: line, Err: errors.New(m[2])}
+		line, _ = strconv.Atoi(m[1])
+		msg = m[2]
 	}
-	return &Error{File: name, Err: errors.New(msg)}
+	if m := yamlUnmarshal.FindStringSubmatch(msg); m != nil {
+		want := yamlTypes[m[3]]
+		if want == "" {
+			want = "another kind of value"
+		}
+		found := yamlTags[m[1]]
+		if found == "" {
+			found = "a value"
+		}
+		if m[2] != "" {
+			found += fmt.Sprintf(" (%q)", m[2])
+		}
+		msg = fmt.Sprintf("expected %s, found %s", want, found)
+	} else if m := yamlUnknown.FindStringSubmatch(msg); m != nil {
+		msg = fmt.Sprintf("unknown field %q", m[1])
+		if k := knownFields[m[2]]; k != "" {
+			msg += " (known fields: " + k + ")"
+		}
+		if line > 0 && strings.Contains(lineText(data, line), "{") {
+			msg += `; in a {…} mapping, put a value holding commas in quotes, e.g. description: "oil, foam"`
+		}
+	}
+	return &Error{File: name, Line: line, Err: errors.New(msg)}
+}
+
+// lineText returns line n (1-based) of data.
+func lineText(data []byte, n int) string {
+	lines := strings.Split(string(data), "\n")
+	if n < 1 || n > len(lines) {
+		return ""
+	}
+	return lines[n-1]
 }
 
 // splitField splits "classes[1].key: empty class key" into its field and

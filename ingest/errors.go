@@ -60,3 +60,9 @@ type Location struct {
 func errf(loc Location, field, format string, a ...any) *Error {
 	return &Error{File: loc.File, Line: loc.Line, Field: field, Err: fmt.Errorf(format, a...)}
 }
+
+// emptyFile is the error of a file that holds no records of the kind
+// expected ("items", "labels", "gold answers").
+func emptyFile(name, what string) *Error {
+	return errf(Location{File: name}, "", "no %s in the file (a header row alone is not enough): add at least one or leave the file out", what)
+}

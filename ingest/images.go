@@ -42,6 +42,7 @@ type ImageReader struct {
 	listDir string
 	name    string
 	line    int
+	n       int // images read (list mode)
 
 	loc Location
 }
@@ -101,12 +102,18 @@ func (ir *ImageReader) Where() Location { return ir.loc }
 func (ir *ImageReader) Next() (handoff.Item, error) {
 	if ir.list == nil {
 		if ir.i >= len(ir.paths) {
+			if len(ir.paths) == 0 {
+				return handoff.Item{}, errf(Location{File: ir.name}, "", "no images (.png, .jpg, .jpeg or .gif files) in this folder or below it")
+			}
 			return handoff.Item{}, io.EOF
 		}
 		rel := ir.paths[ir.i]
 		ir.i++
 		abs := filepath.Join(ir.root, filepath.FromSlash(rel))
 		ir.loc = Location{File: filepath.Join(ir.name, filepath.FromSlash(rel))}
+		if err := checkID(ir.loc, "path", rel); err != nil {
+			return handoff.Item{}, err
+		}
 		return ir.read(rel, abs)
 	}
 	for {
@@ -115,6 +122,9 @@ func (ir *ImageReader) Next() (handoff.Item, error) {
 				ir.line++
 				ir.loc = Location{File: ir.name, Line: ir.line}
 				return handoff.Item{}, errf(ir.loc, "path", "%v", err)
+			}
+			if ir.n == 0 {
+				return handoff.Item{}, emptyFile(ir.name, "image paths")
 			}
 			return handoff.Item{}, io.EOF
 		}
@@ -127,6 +137,10 @@ func (ir *ImageReader) Next() (handoff.Item, error) {
 		p := strings.TrimSpace(string(raw))
 		if p == "" || strings.HasPrefix(p, "#") {
 			continue
+		}
+		ir.n++
+		if err := checkID(ir.loc, "path", p); err != nil {
+			return handoff.Item{}, err
 		}
 		return readImage(ir.loc, "path", p, ir.listDir)
 	}

@@ -3,6 +3,7 @@ package ingest
 import (
 	"bytes"
 	"errors"
+	"fmt"
 	"image"
 	"image/color"
 	"image/gif"
@@ -140,6 +141,19 @@ func TestBadInput(t *testing.T) {
 		{"label negative seconds", "labels.csv", "item,annotator,label,seconds\ni,a,a,-3\n", "labels", `labels.csv:2: field "seconds"`},
 		{"gold not in codebook", "gold.csv", "item,label\ni,q\n", "gold", `gold.csv:2: field "label": label "q" is not in the codebook`},
 		{"gold missing label column", "gold.jsonl", `{"item":"i"}`, "gold", `gold.jsonl:1: field "label": missing label`},
+		// NUL bytes and control characters (issue 14).
+		{"NUL in text csv", "items.csv", "id,text\na,\"one\x00two\"\n", "items", `items.csv:2: field "text": holds a NUL byte`},
+		{"NUL in text jsonl", "items.jsonl", `{"id":"a","text":"one\u0000two"}`, "items", `items.jsonl:1: field "text": holds a NUL byte`},
+		{"newline in item id", "items.csv", "id,text\n\"a\nb\",x\n", "items", `items.csv:2: field "id": id "a\nb" holds the control character U+000A`},
+		{"escape in parent id", "items.jsonl", `{"id":"a","text":"x","parent":"p\u001b[31m"}`, "items", `field "parent": id "p\x1b[31m" holds the control character U+001B`},
+		{"escape in annotator id", "labels.csv", "item,annotator,label\ni,\"ann\x1b[2J\",a\n", "labels", `labels.csv:2: field "annotator": id "ann\x1b[2J" holds the control character`},
+		{"newline in annotator id", "labels.jsonl", `{"item":"i","annotator":"a\nfake line","label":"a"}`, "labels", `field "annotator": id "a\nfake line"`},
+		{"reordering character in item id", "gold.csv", "item,label\n\"a\u202eb\",a\n", "gold", `field "item": id "a\u202eb" holds the control character U+202E`},
+		// Empty files (issue 14): a header alone is refused.
+		{"items csv header only", "items.csv", "id,text\n", "items", `items.csv: no items in the file`},
+		{"items jsonl blank", "items.jsonl", "\n\n", "items", `items.jsonl: no items in the file`},
+		{"labels header only", "labels.csv", "item,annotator,label\n", "labels", `labels.csv: no labels in the file`},
+		{"gold header only", "gold.csv", "item,label\n", "gold", `gold.csv: no gold answers in the file`},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -230,7 +244,16 @@ func TestCodebook(t *testing.T) {
 		{"empty key", "question: q\nclasses:\n  - key: a\n  - name: B\n", `cb.yaml:4: field "classes[1].key": empty class key`},
 		{"no question", "classes: [{key: a}, {key: b}]\n", `field "question"`},
 		{"bad scale", "question: q\nscale: interval\nclasses: [{key: a}, {key: b}]\n", `cb.yaml:2: field "scale"`},
-		{"unknown field", "question: q\nclases: [{key: a}, {key: b}]\n", `cb.yaml:2: field clases not found`},
+		{"unknown field", "question: q\nclases: [{key: a}, {key: b}]\n", `cb.yaml:2: unknown field "clases" (known fields: name, question, scale, classes, instructions)`},
+		{"unquoted commas in a flow mapping", "question: q\nclasses:\n  - {key: a, description: oil, foam}\n  - key: b\n", `cb.yaml:3: unknown field "foam" (known fields: key, name, description); in a {…} mapping, put a value holding commas in quotes`},
+		{"a list for text", "question: [a, b]\nclasses: [{key: a}, {key: b}]\n", `cb.yaml:1: expected text, found a list`},
+		{"text for the classes", "question: q\nclasses: abc\n", `cb.yaml:2: expected a list of classes, found text ("abc")`},
+		{"a list for the codebook", "- a\n- b\n", `cb.yaml:1: expected a codebook (a mapping with`},
+		{"junk after a JSON codebook", `{"question": "q", "classes": [{"key": "a"}, {"key": "b"}]}` + "\n}", `cb.yaml:2: unexpected "}" after the JSON object`},
+		{"text after a JSON codebook", `{"question": "q", "classes": [{"key": "a"}, {"key": "b"}]} and more`, `cb.yaml:1: unexpected "and more" after the JSON object`},
+		{"malformed JSON codebook", "{\"question\": \"q\",\n \"classes\": [}", `cb.yaml:2: malformed JSON`},
+		{"two YAML documents", "question: q\nclasses: [{key: a}, {key: b}]\n---\nquestion: r\n", `a second YAML document`},
+		{"too many classes", "question: q\nclasses:\n" + manyClasses(256), `field "classes": 256 classes; at most 255 are supported`},
 		{"malformed", "question: [q\n", `cb.yaml`},
 		{"empty", "", `cb.yaml: empty codebook`},
 		{"ordinal out of order", "question: q\nscale: ordinal\nclasses:\n  - key: \"1\"\n  - key: \"3\"\n  - key: \"2\"\n", `cb.yaml:6: field "classes[2].key": ordinal classes must be listed lowest first`},
@@ -242,12 +265,29 @@ func TestCodebook(t *testing.T) {
 			if err == nil || !strings.Contains(err.Error(), c.want) {
 				t.Errorf("error %v, want it to contain %q", err, c.want)
 			}
+			// Messages are for people: no Go type names.
+			if err != nil && (strings.Contains(err.Error(), "handoff.") || strings.Contains(err.Error(), "[]")) {
+				t.Errorf("error %q names a Go type", err)
+			}
 		})
+	}
+	// 255 classes, the most the analysis supports, are accepted.
+	if _, err := ParseCodebook("cb.yaml", []byte("question: q\nclasses:\n"+manyClasses(255))); err != nil {
+		t.Errorf("255 classes: %v", err)
 	}
 	// The shipped ds1979 codebook parses.
 	if cb, err := ReadCodebook("../testdata/ingest/ds1979_codebook.yaml"); err != nil || len(cb.Classes) != 4 {
 		t.Errorf("ds1979 codebook: %+v %v", cb, err)
 	}
+}
+
+// manyClasses returns n YAML class entries k0, k1, ….
+func manyClasses(n int) string {
+	var b strings.Builder
+	for i := range n {
+		fmt.Fprintf(&b, "  - key: k%d\n", i)
+	}
+	return b.String()
 }
 
 func writeImage(t *testing.T, path string, enc func(io.Writer, image.Image) error) {

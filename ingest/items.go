@@ -62,6 +62,7 @@ type ItemReader struct {
 
 	images  bool   // records list image files (NewImageTable)
 	baseDir string // for relative image paths
+	n       int    // records read
 }
 
 // NewItemReader reads items from r, a CSV or JSONL file called name (used
@@ -133,9 +134,12 @@ func (ir *ItemReader) Next() (handoff.Item, error) {
 		if err != nil {
 			if err != io.EOF {
 				ir.loc = ir.t.where()
+			} else if ir.n == 0 {
+				return handoff.Item{}, emptyFile(ir.t.where().File, "items")
 			}
 			return handoff.Item{}, err
 		}
+		ir.n++
 		ir.loc = rec.loc
 		it, err := ir.item(rec)
 		if err != nil {
@@ -177,6 +181,9 @@ func (ir *ItemReader) item(rec *record) (handoff.Item, error) {
 			}
 			it.ID = id
 		}
+		if err := checkID(rec.lineOf(o.IDField), o.IDField, it.ID); err != nil {
+			return it, err
+		}
 		return it, ir.meta(rec, &it)
 	}
 	id, ok := rec.get(o.IDField)
@@ -185,6 +192,9 @@ func (ir *ItemReader) item(rec *record) (handoff.Item, error) {
 	}
 	if strings.TrimSpace(id) == "" {
 		return it, errf(rec.lineOf(o.IDField), o.IDField, "empty item id")
+	}
+	if err := checkID(rec.lineOf(o.IDField), o.IDField, id); err != nil {
+		return it, err
 	}
 	it.ID = id
 	text, ok := rec.get(o.TextField)
@@ -202,6 +212,9 @@ func (ir *ItemReader) item(rec *record) (handoff.Item, error) {
 func (ir *ItemReader) meta(rec *record, it *handoff.Item) error {
 	o := &ir.opt
 	if p, ok := rec.get(o.ParentField); ok {
+		if err := checkID(rec.lineOf(o.ParentField), o.ParentField, p); err != nil {
+			return err
+		}
 		it.Parent = p
 	}
 	if p, ok := rec.get(o.PositionField); ok && strings.TrimSpace(p) != "" {

@@ -48,6 +48,7 @@ type LabelReader struct {
 	t   table
 	opt LabelOptions
 	loc Location
+	n   int // records read
 }
 
 // NewLabelReader reads labels from r, a CSV or JSONL file called name.
@@ -73,15 +74,18 @@ func (lr *LabelReader) Next() (handoff.Label, error) {
 	if err != nil {
 		if err != io.EOF {
 			lr.loc = lr.t.where()
+		} else if lr.n == 0 {
+			return l, emptyFile(lr.t.where().File, "labels")
 		}
 		return l, err
 	}
+	lr.n++
 	lr.loc = rec.loc
 	o := &lr.opt
-	if l.Item, err = required(rec, o.ItemField); err != nil {
+	if l.Item, err = requiredID(rec, o.ItemField); err != nil {
 		return l, err
 	}
-	if l.Annotator, err = required(rec, o.AnnotatorField); err != nil {
+	if l.Annotator, err = requiredID(rec, o.AnnotatorField); err != nil {
 		return l, err
 	}
 	if l.Class, err = classOf(rec, o.LabelField, o.Codebook); err != nil {
@@ -116,6 +120,19 @@ func required(rec *record, field string) (string, error) {
 	return v, nil
 }
 
+// requiredID is required for an identifier: it must also be printable
+// (see checkID).
+func requiredID(rec *record, field string) (string, error) {
+	v, err := required(rec, field)
+	if err != nil {
+		return "", err
+	}
+	if err := checkID(rec.lineOf(field), field, v); err != nil {
+		return "", err
+	}
+	return v, nil
+}
+
 func classOf(rec *record, field string, cb *handoff.Codebook) (string, error) {
 	v, err := required(rec, field)
 	if err != nil {
@@ -144,6 +161,7 @@ type GoldReader struct {
 	opt  GoldOptions
 	loc  Location
 	base string
+	n    int // records read
 }
 
 // NewGoldReader reads gold answers from r, a CSV or JSONL file called name.
@@ -177,11 +195,14 @@ func (gr *GoldReader) Next() (handoff.Gold, error) {
 	if err != nil {
 		if err != io.EOF {
 			gr.loc = gr.t.where()
+		} else if gr.n == 0 {
+			return g, emptyFile(gr.t.where().File, "gold answers")
 		}
 		return g, err
 	}
+	gr.n++
 	gr.loc = rec.loc
-	if g.Item, err = required(rec, gr.opt.ItemField); err != nil {
+	if g.Item, err = requiredID(rec, gr.opt.ItemField); err != nil {
 		return g, err
 	}
 	if g.Class, err = classOf(rec, gr.opt.LabelField, gr.opt.Codebook); err != nil {

@@ -183,6 +183,9 @@ func (t *csvTable) next() (*record, error) {
 		if !utf8.ValidString(v) {
 			return nil, errf(Location{File: t.name, Line: l}, t.header[i], "not UTF-8 text")
 		}
+		if err := checkNUL(Location{File: t.name, Line: l}, t.header[i], v); err != nil {
+			return nil, err
+		}
 		rec.values[i] = v
 	}
 	return rec, nil
@@ -280,6 +283,9 @@ func (t *jsonlTable) parse(line []byte) (*record, error) {
 		}
 		if !present {
 			continue
+		}
+		if err := checkNUL(loc, k, v); err != nil {
+			return nil, err
 		}
 		rec.values = append(rec.values, v)
 	}
