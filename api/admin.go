@@ -398,7 +398,7 @@ func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
 			if t.Seconds[i] != 0 {
 				secs = strconv.FormatFloat(float64(t.Seconds[i]), 'g', -1, 32)
 			}
-			if err := cw.Write([]string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], t.Classes[t.Class[i]], when(i), secs}); err != nil {
+			if err := cw.Write(round.SafeCells([]string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], t.Classes[t.Class[i]], when(i), secs})); err != nil {
 				return err
 			}
 		}

@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"regexp"
 	"sort"
 	"strconv"
 
@@ -136,7 +137,7 @@ func writeCSV(w io.Writer, rows []Row, classes []string) error {
 	for _, n := range names {
 		head = append(head, "cov_"+n)
 	}
-	if err := cw.Write(head); err != nil {
+	if err := cw.Write(SafeCells(head)); err != nil {
 		return err
 	}
 	f := func(x float64) string { return strconv.FormatFloat(x, 'g', 10, 64) }
@@ -152,13 +153,38 @@ func writeCSV(w io.Writer, rows []Row, classes []string) error {
 		for _, n := range names {
 			rec = append(rec, r.Covariates[n])
 		}
-		if err := cw.Write(rec); err != nil {
+		if err := cw.Write(SafeCells(rec)); err != nil {
 			return err
 		}
 	}
 	cw.Flush()
 	return cw.Error()
 }
+
+// SafeCells makes the cells of one CSV record safe to open in a
+// spreadsheet, in place, and returns rec: a cell that starts with =, +, -,
+// @, a tab or a carriage return, and is not a plain number, gets a single
+// quote in front, so that spreadsheet programs show it as text instead of
+// running it as a formula (the OWASP guidance on CSV injection recommends
+// this; common practice). Plain numbers such as -3.5 or +1e-3 are left as
+// they are. JSON lines and Parquet exports are never changed.
+func SafeCells(rec []string) []string {
+	for i, c := range rec {
+		if c == "" {
+			continue
+		}
+		switch c[0] {
+		case '=', '+', '-', '@', '\t', '\r':
+			if !plainNumber.MatchString(c) {
+				rec[i] = "'" + c
+			}
+		}
+	}
+	return rec
+}
+
+// plainNumber is a decimal number: sign, digits, point, exponent.
+var plainNumber = regexp.MustCompile(`^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$`)
 
 // errNoRows is returned when an export would be empty.
 var errNoRows = errors.New("the project has no items to export")

@@ -37,6 +37,7 @@ type TrainConfig struct {
 // CVMetrics are k-fold cross-validated figures, machine against consensus.
 type CVMetrics struct {
 	Folds     int     `json:"folds"`
+	Grouped   bool    `json:"grouped,omitempty"` // some items have a parent: folds keep each parent's items together
 	Rows      int     `json:"rows"`
 	Accuracy  float64 `json:"accuracy"`
 	MacroF1   float64 `json:"macro_f1"`
@@ -310,8 +311,10 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 		folds = 5
 	}
 	groups := make([]string, len(rows))
+	grouped := false
 	for j, i := range rows {
 		groups[j] = p.items[i].Parent
+		grouped = grouped || groups[j] != ""
 		if groups[j] == "" {
 			groups[j] = p.items[i].ID
 		}
@@ -385,7 +388,7 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	rep := &TrainReport{
 		Learner: lname, Kind: kind, Rows: len(rows), Columns: all.Cols(), Classes: m.Classes, Missing: missing,
 		Temperature: T, Fingerprint: m.Fingerprint, Skipped: skipped,
-		CV: CVMetrics{Folds: nf, Rows: len(rows), Accuracy: acc, MacroF1: f1, ECEBefore: before, ECEAfter: after},
+		CV: CVMetrics{Folds: nf, Grouped: grouped, Rows: len(rows), Accuracy: acc, MacroF1: f1, ECEBefore: before, ECEAfter: after},
 	}
 	m.Metrics, _ = json.Marshal(rep.CV)
 	// Out-of-fold probabilities over all codebook classes, calibrated.

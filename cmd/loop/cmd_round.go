@@ -101,7 +101,7 @@ temperature scaling, and stores the model.`,
 func trainText(r *round.TrainReport) string {
 	var b strings.Builder
 	fmt.Fprintf(&b, "model %s: %s on %s features, %d items, %d features\n", r.Version, r.Learner, r.Kind, r.Rows, r.Columns)
-	fmt.Fprintf(&b, "  %d-fold cross-validation (parents kept together): accuracy %.3f, macro-F1 %.3f\n", r.CV.Folds, r.CV.Accuracy, r.CV.MacroF1)
+	fmt.Fprintf(&b, "  %d-fold cross-validation%s: accuracy %.3f, macro-F1 %.3f\n", r.CV.Folds, map[bool]string{true: " (parents kept together)"}[r.CV.Grouped], r.CV.Accuracy, r.CV.MacroF1)
 	fmt.Fprintf(&b, "  calibration error (ECE, 15 bins): %.3f before, %.3f after temperature scaling (T = %.3g)\n", r.CV.ECEBefore, r.CV.ECEAfter, r.Temperature)
 	if len(r.Missing) > 0 {
 		fmt.Fprintf(&b, "  classes with no training example (never predicted): %s\n", strings.Join(r.Missing, ", "))
@@ -332,7 +332,7 @@ func writeBatch(w io.Writer, format string, b []round.BatchItem) error {
 	cw := csv.NewWriter(w)
 	cw.Write([]string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"})
 	for _, x := range b {
-		cw.Write([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd})
+		cw.Write(round.SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
 	}
 	cw.Flush()
 	return cw.Error()
