@@ -314,6 +314,25 @@ func (s *Store) PutToken(key string, data []byte, source string) error {
 // Token returns a token's record, or ErrNotFound.
 func (s *Store) Token(key string) ([]byte, error) { return s.get(bTokens, []byte(key)) }
 
+// Tokens calls fn for every token record, ordered by key.
+func (s *Store) Tokens(fn func(key string, data []byte) error) error {
+	return s.each(bTokens, func(k, v []byte) error { return fn(string(k), v) })
+}
+
+// DeleteTokens removes tokens (absent ones are ignored) in one transaction,
+// with one audit entry that does not show the keys.
+func (s *Store) DeleteTokens(keys []string, source string) error {
+	return s.update(source, "token.delete", fmt.Sprintf("%d token(s) revoked", len(keys)), func(tx *bolt.Tx) error {
+		b := tx.Bucket(bTokens)
+		for _, k := range keys {
+			if err := b.Delete([]byte(k)); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+}
+
 // DeleteToken removes a token (no error if absent).
 func (s *Store) DeleteToken(key string, source string) error {
 	return s.update(source, "token.delete", "token revoked", func(tx *bolt.Tx) error {

@@ -28,6 +28,7 @@ var (
 	bSvcKeys   = []byte("svc_labels") // item number (8 bytes BE) ‖ annotator id → label number (8 bytes BE) ‖ class index (2 bytes BE) ‖ idempotency key
 	bSvcLeases = []byte("svc_leases") // lease id → JSON ServiceLease
 	bSvcUnsure = []byte("svc_unsure") // item id ‖ 0 ‖ annotator id → time (Unix ns, 8 bytes BE)
+	bSvcTarget = []byte("svc_targets") // next-batch key → JSON targets (the service's; see PutServiceTargets)
 )
 
 // ServiceLease is an item handed out to one person until Expires. While a
@@ -79,6 +80,10 @@ var (
 	ErrLeaseMismatch   = errors.New("the lease was given for another item or person")
 	ErrAlreadyLabelled = errors.New("this person has already labelled this item")
 	ErrKeyReused       = errors.New("the idempotency key was already used for a different label")
+	// ErrNotLatest is returned by ChangeLabel.
+	ErrNotLatest = errors.New("only your latest answer given on the labelling page can be changed")
+	// ErrTooLate is returned by ChangeLabel.
+	ErrTooLate = errors.New("the answer is too old to change")
 )
 
 // maxKey is the longest idempotency key accepted, in bytes.
@@ -90,16 +95,15 @@ func (s *Store) SetGroupSize(n int) {
 	s.groupOf().setMax(n)
 }
 
-// groups holds each open Store's group-commit queue (kept beside the Store
-// so that the Store type, defined in store.go, stays as it is; an entry is a
-// few words and lives as long as the process).
-var groups sync.Map // *Store → *groupCommit
+// groups holds each open file's group-commit queue, keyed by its bbolt
+// handle so that borrowed Store handles share it; Close drops the entry.
+var groups sync.Map // *bolt.DB → *groupCommit (shared by borrowed handles)
 
 func (s *Store) groupOf() *groupCommit {
-	if g, ok := groups.Load(s); ok {
+	if g, ok := groups.Load(s.db); ok {
 		return g.(*groupCommit)
 	}
-	g, _ := groups.LoadOrStore(s, &groupCommit{})
+	g, _ := groups.LoadOrStore(s.db, &groupCommit{})
 	return g.(*groupCommit)
 }
 
@@ -648,4 +652,109 @@ func (s *Store) labelAt(tx *bolt.Tx, n uint64) (handoff.Label, error) {
 		return handoff.Label{}, fmt.Errorf("store: label %d: %w", n, err)
 	}
 	return s.toLabel(tx, &r, map[uint32]string{}, map[uint32]string{})
+}
+
+// ChangeLabel changes the class of a person's latest label, which must be
+// on item, have been sent through Submit, and have been given at or after
+// notBefore (group commit; recorded in the audit trail as labels.change
+// with the old and the new class). It returns the label as now stored. The
+// label keeps its number and time; its idempotency record keeps the class
+// first sent, so a late retry of the first submission is still answered as
+// the duplicate it is (with the label as now stored).
+func (s *Store) ChangeLabel(annotator, item, class string, notBefore time.Time, source string) (handoff.Label, error) {
+	ci, ok := s.cbIx[class]
+	if !ok {
+		return handoff.Label{}, dataErr("label", "label %q is not in the codebook (classes: %v)", class, s.cb.Keys())
+	}
+	var (
+		out     handoff.Label
+		outcome error
+	)
+	err := s.batch(func(tx *bolt.Tx) error {
+		out, outcome = handoff.Label{}, nil
+		ak := tx.Bucket(bAnnotatorIDs).Get([]byte(annotator))
+		itemNum := tx.Bucket(bItemIDs).Get([]byte(item))
+		keys := tx.Bucket(bSvcKeys)
+		if ak == nil || itemNum == nil || keys == nil {
+			outcome = fmt.Errorf("item %q: %w", item, ErrNotLatest)
+			return nil
+		}
+		prefix := append([]byte(nil), ak...)
+		c := tx.Bucket(bLabelAnn).Cursor()
+		k, _ := c.Seek(u64(binary.BigEndian.Uint64(ak) + 1))
+		if k == nil {
+			k, _ = c.Last()
+		} else {
+			k, _ = c.Prev()
+		}
+		if k == nil || !bytes.HasPrefix(k, prefix) {
+			outcome = fmt.Errorf("item %q: %w", item, ErrNotLatest)
+			return nil
+		}
+		n := binary.BigEndian.Uint64(k[8:])
+		labels := tx.Bucket(bLabels)
+		var r LabelRecord
+		if err := decodeLabel(labels.Get(u64(n)), &r); err != nil {
+			return err
+		}
+		v := keys.Get(doneKey(itemNum, annotator))
+		first, _, _, ok := doneRecord(v)
+		if uint64(r.Item) != binary.BigEndian.Uint64(itemNum) || !ok || first != n {
+			outcome = fmt.Errorf("item %q: %w", item, ErrNotLatest)
+			return nil
+		}
+		if r.Time != 0 && time.Unix(0, r.Time).Before(notBefore) {
+			outcome = fmt.Errorf("item %q: %w", item, ErrTooLate)
+			return nil
+		}
+		old := s.cb.Classes[r.Class].Key
+		r.Class = uint16(ci)
+		if err := labels.Put(u64(n), encodeLabel(&r)); err != nil {
+			return err
+		}
+		l, err := s.toLabel(tx, &r, map[uint32]string{}, map[uint32]string{})
+		if err != nil {
+			return err
+		}
+		out = l
+		return s.audit(tx, source, "labels.change", fmt.Sprintf("label %d: item %q, class %q → %q, by %q", n, item, old, class, annotator))
+	})
+	if err != nil {
+		return handoff.Label{}, err
+	}
+	return out, outcome
+}
+
+// PutServiceTargets stores the service's label targets for one next batch
+// under key (free-form bytes; the service writes JSON), replacing every
+// earlier entry: only the latest batch's targets are kept.
+func (s *Store) PutServiceTargets(key string, data []byte) error {
+	return s.write(func(tx *bolt.Tx) error {
+		if err := tx.DeleteBucket(bSvcTarget); err != nil && !errors.Is(err, bolt.ErrBucketNotFound) {
+			return err
+		}
+		b, err := tx.CreateBucket(bSvcTarget)
+		if err != nil {
+			return err
+		}
+		return b.Put([]byte(key), append([]byte(nil), data...))
+	})
+}
+
+// ServiceTargets returns the targets stored under key, or ErrNotFound.
+func (s *Store) ServiceTargets(key string) ([]byte, error) {
+	var out []byte
+	err := s.db.View(func(tx *bolt.Tx) error {
+		b := tx.Bucket(bSvcTarget)
+		if b == nil {
+			return fmt.Errorf("targets %q: %w", key, ErrNotFound)
+		}
+		v := b.Get([]byte(key))
+		if v == nil {
+			return fmt.Errorf("targets %q: %w", key, ErrNotFound)
+		}
+		out = append([]byte(nil), v...)
+		return nil
+	})
+	return out, err
 }

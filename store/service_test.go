@@ -237,3 +237,94 @@ func TestGrantLeaseLater(t *testing.T) {
 		t.Errorf("stored leases: %+v", ls)
 	}
 }
+
+// TestChangeLabel changes a person's latest answer: only the latest, only
+// one sent through Submit, only within the time allowed.
+func TestChangeLabel(t *testing.T) {
+	s := newStore(t)
+	now := time.Date(2026, 3, 1, 10, 0, 0, 0, time.UTC)
+	s.Now = func() time.Time { return now }
+	if _, err := s.PutItems(textItems(4, "i"), false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	sub := func(item, class, key string) {
+		t.Helper()
+		if _, err := s.Submit(Submission{Label: handoff.Label{Item: item, Annotator: "ann", Class: class, Time: now}, Key: key}, "test"); err != nil {
+			t.Fatal(err)
+		}
+	}
+	sub("i000", "a", "k0")
+	sub("i001", "a", "k1")
+	if _, err := s.ChangeLabel("ann", "i000", "b", now.Add(-time.Hour), "test"); !errors.Is(err, ErrNotLatest) {
+		t.Errorf("changing an older answer: %v", err)
+	}
+	if _, err := s.ChangeLabel("ann", "i001", "b", now.Add(time.Second), "test"); !errors.Is(err, ErrTooLate) {
+		t.Errorf("changing an answer given before notBefore: %v", err)
+	}
+	if _, err := s.ChangeLabel("ann", "i001", "zz", now, "test"); err == nil {
+		t.Error("changed to a class not in the codebook")
+	}
+	l, err := s.ChangeLabel("ann", "i001", "b", now.Add(-time.Minute), "test")
+	if err != nil || l.Class != "b" || l.Item != "i001" || !l.Time.Equal(now) {
+		t.Fatalf("change: %+v %v", l, err)
+	}
+	got, _ := s.LabelsFor("i001")
+	if len(got) != 1 || got[0].Class != "b" {
+		t.Errorf("stored after the change: %+v", got)
+	}
+	// A late retry of the first submission is still a duplicate.
+	r, err := s.Submit(Submission{Label: handoff.Label{Item: "i001", Annotator: "ann", Class: "a", Time: now}, Key: "k1"}, "test")
+	if err != nil || !r.Duplicate || r.Label.Class != "b" {
+		t.Errorf("retry after the change: %+v %v", r, err)
+	}
+	// An imported label is not the person's to change on the page.
+	if _, err := s.PutLabels([]handoff.Label{{Item: "i002", Annotator: "ann", Class: "a"}}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.ChangeLabel("ann", "i002", "b", time.Time{}, "test"); !errors.Is(err, ErrNotLatest) {
+		t.Errorf("changing an imported label: %v", err)
+	}
+	if _, err := s.ChangeLabel("nobody", "i002", "b", time.Time{}, "test"); !errors.Is(err, ErrNotLatest) {
+		t.Errorf("changing as an unknown person: %v", err)
+	}
+	audit, _ := s.Audit()
+	if last := audit[len(audit)-2]; last.Action != "labels.change" || last.Detail != `label 1: item "i001", class "a" → "b", by "ann"` {
+		t.Errorf("audit entry %+v", last)
+	}
+}
+
+// TestBorrow checks that a borrowed handle's Close leaves the file open and
+// that writes through both handles land.
+func TestBorrow(t *testing.T) {
+	s := newStore(t)
+	b := s.Borrow()
+	if _, err := b.PutItems(textItems(2, "b"), false, "borrowed"); err != nil {
+		t.Fatal(err)
+	}
+	if err := b.Close(); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.PutItems(textItems(2, "o"), false, "owner"); err != nil {
+		t.Fatalf("the owner's handle after the borrowed one closed: %v", err)
+	}
+	if n, err := s.ItemCount(); err != nil || n != 4 {
+		t.Errorf("items %d %v", n, err)
+	}
+}
+
+func TestDeleteTokens(t *testing.T) {
+	s := newStore(t)
+	for _, k := range []string{"t1", "t2", "t3"} {
+		if err := s.PutToken(k, []byte(`{}`), "test"); err != nil {
+			t.Fatal(err)
+		}
+	}
+	if err := s.DeleteTokens([]string{"t1", "t3", "absent"}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	var left []string
+	s.Tokens(func(k string, _ []byte) error { left = append(left, k); return nil })
+	if fmt.Sprint(left) != "[t2]" {
+		t.Errorf("tokens left %v", left)
+	}
+}

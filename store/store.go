@@ -124,8 +124,11 @@ type Store struct {
 	cbIx map[string]int
 	// wmu: a chunked import holds it exclusively for its whole run (so that
 	// its rollback cannot remove anyone else's writes); every other write
-	// holds it shared, so they still run as usual among themselves.
-	wmu sync.RWMutex
+	// holds it shared, so they still run as usual among themselves. Shared
+	// with borrowed handles (Borrow).
+	wmu *sync.RWMutex
+	// borrowed: Close does nothing (see Borrow).
+	borrowed bool
 
 	// ImportChunk is the number of records an import writes per
 	// transaction; DefaultImportChunk if ≤ 0.
@@ -164,7 +167,7 @@ func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
 	if err != nil {
 		return nil, fmt.Errorf("create %s: %w", p, err)
 	}
-	s := &Store{db: db, dir: dir}
+	s := &Store{db: db, dir: dir, wmu: new(sync.RWMutex)}
 	err = db.Update(func(tx *bolt.Tx) error {
 		for _, name := range allBuckets {
 			if _, err := tx.CreateBucketIfNotExists(name); err != nil {
@@ -213,7 +216,7 @@ func Open(dir string) (*Store, error) {
 		}
 		return nil, fmt.Errorf("open %s: %w", p, err)
 	}
-	s := &Store{db: db, dir: dir}
+	s := &Store{db: db, dir: dir, wmu: new(sync.RWMutex)}
 	var cb handoff.Codebook
 	err = db.View(func(tx *bolt.Tx) error {
 		m := tx.Bucket(bMeta)
@@ -255,8 +258,25 @@ func (s *Store) setCodebook(cb handoff.Codebook) {
 	}
 }
 
-// Close closes the file.
-func (s *Store) Close() error { return s.db.Close() }
+// Close closes the file (a borrowed handle's Close does nothing).
+func (s *Store) Close() error {
+	if s.borrowed {
+		return nil
+	}
+	err := s.db.Close()
+	groups.Delete(s.db)
+	return err
+}
+
+// Borrow returns another handle on the same open file, for code that will
+// Close what it was given while the owner keeps using the file (a command
+// run inside `loop serve`): its Close does nothing. Writes through either
+// handle share the write lock and the group commit. ImportChunk and Now
+// start as the owner's and are the handle's own.
+func (s *Store) Borrow() *Store {
+	return &Store{db: s.db, dir: s.dir, cb: s.cb, cbIx: s.cbIx, wmu: s.wmu, borrowed: true,
+		ImportChunk: s.ImportChunk, Now: s.Now}
+}
 
 // Dir returns the project directory.
 func (s *Store) Dir() string { return s.dir }
