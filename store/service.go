@@ -25,9 +25,9 @@ import (
 // The service's buckets are created on first use, so files made before they
 // existed open as usual.
 var (
-	bSvcKeys   = []byte("svc_labels") // item number (8 bytes BE) ‖ annotator id → label number (8 bytes BE) ‖ class index (2 bytes BE) ‖ idempotency key
-	bSvcLeases = []byte("svc_leases") // lease id → JSON ServiceLease
-	bSvcUnsure = []byte("svc_unsure") // item id ‖ 0 ‖ annotator id → time (Unix ns, 8 bytes BE)
+	bSvcKeys   = []byte("svc_labels")  // item number (8 bytes BE) ‖ annotator id → label number (8 bytes BE) ‖ class index (2 bytes BE) ‖ idempotency key
+	bSvcLeases = []byte("svc_leases")  // lease id → JSON ServiceLease
+	bSvcUnsure = []byte("svc_unsure")  // item id ‖ 0 ‖ annotator id → time (Unix ns, 8 bytes BE)
 	bSvcTarget = []byte("svc_targets") // next-batch key → JSON targets (the service's; see PutServiceTargets)
 )
 
