@@ -21,13 +21,17 @@ import (
 	"handoff/store"
 )
 
-// StatusReply is the project at a glance.
+// StatusReply is the project at a glance. Stats.Annotators counts every
+// annotator the project knows (people added for the service among them);
+// Labellers those with at least one label.
 type StatusReply struct {
 	store.Stats
-	Pool   PoolStatus `json:"pool"`
-	People int        `json:"people"`
-	Round  RoundJob   `json:"round_job"`
-	Rounds int        `json:"rounds"`
+	Labellers int        `json:"labellers"`
+	Scale     string     `json:"scale"`
+	Pool      PoolStatus `json:"pool"`
+	People    int        `json:"people"`
+	Round     RoundJob   `json:"round_job"`
+	Rounds    int        `json:"rounds"`
 }
 
 func (sv *Server) getStatus(c echo.Context) error {
@@ -43,7 +47,15 @@ func (sv *Server) getStatus(c echo.Context) error {
 	if err != nil {
 		return err
 	}
-	return c.JSON(http.StatusOK, StatusReply{Stats: st, Pool: sv.pool.status(), People: len(people),
+	labellers, err := sv.st.AnnotatorsWithLabels()
+	if err != nil {
+		return err
+	}
+	scale := string(handoff.Nominal)
+	if cb := sv.st.Codebook(); cb.IsOrdinal() {
+		scale = string(handoff.Ordinal)
+	}
+	return c.JSON(http.StatusOK, StatusReply{Stats: st, Labellers: labellers, Scale: scale, Pool: sv.pool.status(), People: len(people),
 		Round: sv.rounds.job(), Rounds: len(rounds)})
 }
 
@@ -75,13 +87,45 @@ func (sv *Server) getLabelsPerDay(c echo.Context) error {
 	return c.JSON(http.StatusOK, map[string]any{"days": out, "without_time": unknown})
 }
 
-func (sv *Server) getPeople(c echo.Context) error {
+// PersonView is a person as the board lists them: the record (without the
+// check items drawn for them), their tokens' ids, and where they stand in
+// the practice gate.
+type PersonView struct {
+	ID      string       `json:"id"`
+	Admin   bool         `json:"admin"`
+	Created time.Time    `json:"created"`
+	Check   CheckSummary `json:"check"`
+	Tokens  []TokenInfo  `json:"tokens"`
+}
+
+func (sv *Server) peopleViews() ([]PersonView, error) {
 	people, err := People(sv.st)
 	if err != nil {
-		return err
+		return nil, err
 	}
-	if people == nil {
-		people = []Person{}
+	toks, err := Tokens(sv.st)
+	if err != nil {
+		return nil, err
+	}
+	ts, err := sv.practiceItems()
+	if err != nil {
+		return nil, err
+	}
+	out := make([]PersonView, 0, len(people))
+	for _, p := range people {
+		v := PersonView{ID: p.ID, Admin: p.Admin, Created: p.Created, Check: sv.checkSummary(ts, p.Practice), Tokens: toks[p.ID]}
+		if v.Tokens == nil {
+			v.Tokens = []TokenInfo{}
+		}
+		out = append(out, v)
+	}
+	return out, nil
+}
+
+func (sv *Server) getPeople(c echo.Context) error {
+	people, err := sv.peopleViews()
+	if err != nil {
+		return err
 	}
 	return c.JSON(http.StatusOK, map[string]any{"people": people})
 }
@@ -92,9 +136,7 @@ type PersonRequest struct {
 	Admin bool   `json:"admin"`
 }
 
-// postPeople adds a person and returns their token, shown this once (the
-// server holds the project file, so `loop people add` cannot run beside
-// it).
+// postPeople adds a person and returns their token, shown this once.
 func (sv *Server) postPeople(c echo.Context) error {
 	var req PersonRequest
 	if err := decodeJSON(c, &req); err != nil {
@@ -111,6 +153,88 @@ func (sv *Server) postPeople(c echo.Context) error {
 		return err
 	}
 	return c.JSON(http.StatusCreated, map[string]any{"id": req.ID, "admin": req.Admin, "token": tok})
+}
+
+// knownPerson reads the :id of the path and checks the person exists.
+func (sv *Server) knownPerson(c echo.Context) (string, error) {
+	id := c.Param("id")
+	if _, err := sv.st.Person(id); errors.Is(err, store.ErrNotFound) {
+		return "", jsonError(http.StatusNotFound, "no person %s in the project", quoteID(id))
+	} else if err != nil {
+		return "", err
+	}
+	return id, nil
+}
+
+// postPersonToken issues another token for a person (shown once).
+func (sv *Server) postPersonToken(c echo.Context) error {
+	id, err := sv.knownPerson(c)
+	if err != nil {
+		return err
+	}
+	tok, err := NewToken(sv.st, id, sv.source(c))
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusCreated, map[string]any{"id": id, "token": tok})
+}
+
+// deletePersonTokens revokes every token of a person: they are signed out
+// at once and cannot sign in again until given a new token.
+func (sv *Server) deletePersonTokens(c echo.Context) error {
+	id, err := sv.knownPerson(c)
+	if err != nil {
+		return err
+	}
+	toks, err := Tokens(sv.st)
+	if err != nil {
+		return err
+	}
+	n, err := RevokePerson(sv.st, id, sv.source(c))
+	if err != nil {
+		return err
+	}
+	for _, t := range toks[id] {
+		sv.auth.forgetToken(t.ID)
+	}
+	return c.JSON(http.StatusOK, map[string]any{"id": id, "revoked": n})
+}
+
+// deleteToken revokes one token by its id.
+func (sv *Server) deleteToken(c echo.Context) error {
+	id := c.Param("id")
+	person, err := RevokeToken(sv.st, id, sv.source(c))
+	if err != nil {
+		if _, serr := sv.st.Token(id); errors.Is(serr, store.ErrNotFound) {
+			return jsonError(http.StatusNotFound, "%v", err)
+		}
+		return err
+	}
+	sv.auth.forgetToken(id)
+	return c.JSON(http.StatusOK, map[string]any{"token": id, "person": person, "revoked": 1})
+}
+
+// postPersonCheck grants a person one more check attempt (after they used
+// up Config.CheckAttempts).
+func (sv *Server) postPersonCheck(c echo.Context) error {
+	id, err := sv.knownPerson(c)
+	if err != nil {
+		return err
+	}
+	ts, err := sv.practiceItems()
+	if err != nil {
+		return err
+	}
+	p, err := sv.auth.updatePerson(id, sv.source(c), func(p *Person) error {
+		if st, _ := sv.stateOf(ts, p.Practice); st == stateLocked {
+			p.Practice.Extra++
+		}
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	return c.JSON(http.StatusOK, map[string]any{"id": id, "check": sv.checkSummary(ts, p.Practice)})
 }
 
 // importFormat reads the body's format from its Content-Type: CSV
@@ -197,7 +321,7 @@ func (sv *Server) postGold(c echo.Context) error {
 	if err != nil {
 		return bodyError(err)
 	}
-	sv.forgetTraining()
+	sv.forgetPractice()
 	if err := sv.pool.rebuild(); err != nil {
 		return err
 	}
@@ -242,15 +366,26 @@ func (sv *Server) getAgreement(c echo.Context) error {
 }
 
 // AnnotatorRow is one line of the reliability table: labels given, kappa
-// against the others' majority (absent when undefined or before any
-// labels), mean seconds per label, unsure marks, and the training state.
+// against the others' majority after the default cleaning rules (absent
+// when undefined, before any labels, or when the rules dropped the person),
+// mean seconds per label, unsure marks, the practice gate, and, from the
+// latest stored consensus, the person's reliability there and why the
+// cleaning rules dropped or flagged them.
 type AnnotatorRow struct {
-	Annotator string          `json:"annotator"`
-	Labels    int             `json:"labels"`
-	Kappa     *crowd.Estimate `json:"kappa,omitempty"`
-	MeanSecs  float64         `json:"mean_seconds,omitempty"`
-	Unsure    int             `json:"unsure"`
-	Quiz      *TrainingState  `json:"quiz,omitempty"`
+	Annotator   string          `json:"annotator"`
+	Labels      int             `json:"labels"`
+	Kappa       *crowd.Estimate `json:"kappa,omitempty"`
+	MeanSecs    float64         `json:"mean_seconds,omitempty"`
+	Unsure      int             `json:"unsure"`
+	Check       *CheckSummary   `json:"check,omitempty"`
+	Reliability *float64        `json:"reliability,omitempty"`
+	// Dropped says why the cleaning rules of the latest consensus dropped
+	// all of the person's labels ("gold-screen: …"); Flagged why a rule
+	// flagged them without dropping; DroppedLabels counts the labels
+	// dropped one by one.
+	Dropped       string `json:"dropped,omitempty"`
+	Flagged       string `json:"flagged,omitempty"`
+	DroppedLabels int    `json:"dropped_labels,omitempty"`
 }
 
 func (sv *Server) getAnnotators(c echo.Context) error {
@@ -295,6 +430,10 @@ func (sv *Server) getAnnotators(c echo.Context) error {
 	if err != nil {
 		return err
 	}
+	ts, err := sv.practiceItems()
+	if err != nil {
+		return err
+	}
 	for _, p := range people {
 		i, ok := ix[p.ID]
 		if !ok {
@@ -302,8 +441,35 @@ func (sv *Server) getAnnotators(c echo.Context) error {
 			i = len(rows)
 			rows = append(rows, AnnotatorRow{Annotator: p.ID})
 		}
-		tr := p.Training
-		rows[i].Quiz = &tr
+		if !p.Admin || p.Practice.Attempts > 0 {
+			cs := sv.checkSummary(ts, p.Practice)
+			rows[i].Check = &cs
+		}
+	}
+	if _, rep, err := round.StoredConsensus(sv.st); err == nil && rep != nil {
+		for _, a := range rep.Annotators {
+			if i, ok := ix[a.ID]; ok && a.Labels > 0 {
+				r := a.Reliability
+				rows[i].Reliability = &r
+			}
+		}
+		for _, d := range rep.Drops {
+			i, ok := ix[d.Annotator]
+			if !ok {
+				continue
+			}
+			why := d.Rule + ": " + d.Reason
+			switch {
+			case d.Flag:
+				if rows[i].Flagged == "" {
+					rows[i].Flagged = why
+				}
+			case d.Item == "" && rows[i].Dropped == "":
+				rows[i].Dropped = why
+			case d.Item != "":
+				rows[i].DroppedLabels += d.Labels
+			}
+		}
 	}
 	if err := sv.st.EachUnsure(func(item, annotator string) error {
 		if i, ok := ix[annotator]; ok {

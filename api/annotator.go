@@ -147,8 +147,11 @@ type MeReply struct {
 	ID       string       `json:"id"`
 	Admin    bool         `json:"admin"`
 	Progress Progress     `json:"progress"`
-	Training TrainingView `json:"training"`
+	Practice PracticeView `json:"practice"`
 	Now      time.Time    `json:"now"`
+	// ChangeSeconds is how long after an answer it may still be changed
+	// (PUT /api/v1/me/labels/last).
+	ChangeSeconds float64 `json:"change_seconds"`
 }
 
 func (sv *Server) getMe(c echo.Context) error {
@@ -158,11 +161,12 @@ func (sv *Server) getMe(c echo.Context) error {
 	if err != nil {
 		return err
 	}
-	tv, err := sv.trainingView(pr.ID)
+	pv, err := sv.practiceView(pr.ID, sv.source(c))
 	if err != nil {
 		return err
 	}
-	return c.JSON(http.StatusOK, MeReply{ID: pr.ID, Admin: pr.Admin, Progress: pg, Training: tv, Now: now.UTC()})
+	return c.JSON(http.StatusOK, MeReply{ID: pr.ID, Admin: pr.Admin, Progress: pg, Practice: pv, Now: now.UTC(),
+		ChangeSeconds: sv.cfg.ChangeWindow.Seconds()})
 }
 
 func (sv *Server) getMyLabels(c echo.Context) error {
@@ -177,6 +181,40 @@ func (sv *Server) getMyLabels(c echo.Context) error {
 	return c.JSON(http.StatusOK, map[string]any{"labels": labels})
 }
 
+// ChangeRequest is the body of PUT /api/v1/me/labels/last: the item of the
+// person's latest answer and the class it should have.
+type ChangeRequest struct {
+	Item  string `json:"item"`
+	Label string `json:"label"`
+}
+
+// putLastLabel changes the class of the person's latest answer (given on
+// the labelling page, within Config.ChangeWindow).
+func (sv *Server) putLastLabel(c echo.Context) error {
+	pr := who(c)
+	var req ChangeRequest
+	if err := decodeJSON(c, &req); err != nil {
+		return err
+	}
+	cb := sv.st.Codebook()
+	if _, ok := cb.Index(req.Label); !ok {
+		return jsonError(http.StatusUnprocessableEntity, "field \"label\": %q is not a class of the codebook (classes: %s)", req.Label, strings.Join(cb.Keys(), ", "))
+	}
+	if req.Item == "" {
+		return jsonError(http.StatusBadRequest, "field \"item\": missing")
+	}
+	l, err := sv.st.ChangeLabel(pr.ID, req.Item, req.Label, sv.cfg.Now().Add(-sv.cfg.ChangeWindow), sv.source(c))
+	switch {
+	case errors.Is(err, store.ErrNotLatest):
+		return codedError(http.StatusConflict, "not_latest", "%v", err)
+	case errors.Is(err, store.ErrTooLate):
+		return codedError(http.StatusConflict, "too_late", "the answer was given more than %s ago: it can no longer be changed", sv.cfg.ChangeWindow)
+	case err != nil:
+		return err
+	}
+	return c.JSON(http.StatusOK, map[string]any{"label": l})
+}
+
 func (sv *Server) getNext(c echo.Context) error {
 	nr, err := sv.nextFor(who(c))
 	if err != nil {
@@ -188,12 +226,12 @@ func (sv *Server) getNext(c echo.Context) error {
 // nextFor hands the next item to a person (or their live lease again).
 func (sv *Server) nextFor(pr *principal) (NextReply, error) {
 	if !pr.Admin {
-		ok, err := sv.trainingDone(pr.ID)
+		ok, err := sv.practiceDone(pr.ID)
 		if err != nil {
 			return NextReply{}, err
 		}
 		if !ok {
-			return NextReply{}, codedError(http.StatusForbidden, "training_required", "finish the training and the quiz first (see /api/v1/training)")
+			return NextReply{}, codedError(http.StatusForbidden, "practice_required", "pass the practice and the check first (see /api/v1/practice)")
 		}
 	}
 	now := sv.cfg.Now()
@@ -380,7 +418,8 @@ func (sv *Server) postSkip(c echo.Context) error {
 
 // getImage serves an image item's file. The client names the item only;
 // the path comes from the store. Annotators may fetch the image of an item
-// they hold, have labelled, or meet in the training; admins any.
+// they hold, have labelled, or meet in the practice or the check; admins
+// any.
 func (sv *Server) getImage(c echo.Context) error {
 	pr := who(c)
 	if len(c.QueryParams()) > 0 {
@@ -441,14 +480,9 @@ func (sv *Server) maySee(person, item string) (bool, error) {
 	if sv.pool.holds(person, item, sv.cfg.Now()) {
 		return true, nil
 	}
-	tr, err := sv.trainingItems()
-	if err != nil {
-		return false, err
-	}
-	for _, g := range tr.all() {
-		if g.Item == item {
-			return true, nil
-		}
+	ok, err := sv.practiceShows(person, item)
+	if err != nil || ok {
+		return ok, err
 	}
 	labels, err := sv.st.LabelsBy(person)
 	if err != nil && !errors.Is(err, store.ErrNotFound) {
@@ -483,30 +517,28 @@ func (sv *Server) postSession(c echo.Context) error {
 			return jsonError(http.StatusForbidden, "sign-in from another site is refused")
 		}
 	}
-	addr := c.RealIP()
-	if sv.auth.blocked(addr) {
-		return jsonError(http.StatusTooManyRequests, "too many failed sign-ins from this address: wait a few seconds")
-	}
 	var req SessionRequest
 	if err := decodeJSON(c, &req); err != nil {
 		return err
 	}
-	id, err := sv.auth.check(strings.TrimSpace(req.Token))
-	if errors.Is(err, errBadToken) {
-		sv.auth.failed(addr)
-		return jsonError(http.StatusUnauthorized, "%v", err)
-	}
+	id, tid, err := sv.auth.verify(strings.TrimSpace(req.Token), c.RealIP())
 	if err != nil {
-		return err
+		return signInError(err)
 	}
 	p, err := sv.auth.person(id)
 	if err != nil {
 		return jsonError(http.StatusUnauthorized, "the token's person is no longer in the project")
 	}
-	s := sv.auth.newSession(p.ID)
+	s := sv.auth.newSession(p.ID, tid)
 	c.SetCookie(&http.Cookie{Name: sessionCookie, Value: s.id, Path: "/", HttpOnly: true,
-		SameSite: http.SameSiteStrictMode, Secure: c.Request().TLS != nil, MaxAge: int(sv.cfg.SessionTime.Seconds())})
+		SameSite: http.SameSiteStrictMode, Secure: sv.secure(c), MaxAge: int(sv.cfg.SessionTime.Seconds())})
 	return c.JSON(http.StatusOK, SessionReply{ID: p.ID, Admin: p.Admin, CSRF: s.csrf})
+}
+
+// secure reports whether cookies get the Secure attribute: the request came
+// over TLS, or Config.SecureCookies says a TLS proxy serves the pages.
+func (sv *Server) secure(c echo.Context) bool {
+	return sv.cfg.SecureCookies || c.Request().TLS != nil
 }
 
 func (sv *Server) getSession(c echo.Context) error {
@@ -524,6 +556,6 @@ func (sv *Server) deleteSession(c echo.Context) error {
 		sv.auth.endSession(pr.Session.id)
 	}
 	c.SetCookie(&http.Cookie{Name: sessionCookie, Value: "", Path: "/", HttpOnly: true,
-		SameSite: http.SameSiteStrictMode, MaxAge: -1})
+		SameSite: http.SameSiteStrictMode, Secure: sv.secure(c), MaxAge: -1})
 	return c.JSON(http.StatusOK, map[string]any{"signed_out": true})
 }

@@ -4,7 +4,8 @@
 //
 // Everything is JSON under /api/v1 (described by the OpenAPI 3 document at
 // /api/v1/openapi.json); the embedded pages of package web are served at /,
-// /signin, /label and /board; Prometheus metrics at /metrics.
+// /signin, /label and /board; Prometheus metrics at /metrics (for admins,
+// by default; Config.Metrics).
 //
 // Rules the service keeps:
 //
@@ -27,8 +28,11 @@
 //     labels or other people's labels. The team's routes need an admin
 //     token.
 //   - Pages use a cookie session with a CSRF token; API clients send the
-//     token as a bearer token. Bodies are size-limited, each person is
-//     rate-limited, and requests time out.
+//     token as a bearer token. JSON bodies must say so (Content-Type), are
+//     size-limited, each person is rate-limited, and requests time out.
+//     Failed sign-ins slow down the token id or the address that sent them,
+//     never a token that verifies (see auth). A revoked token is refused
+//     from the next request on.
 //   - Images are served by item id only; the file path comes from the store.
 package api
 
@@ -54,14 +58,30 @@ type Config struct {
 	LeaseTime time.Duration
 	// Redundancy is the number of labels wanted per item (default 3).
 	Redundancy int
-	// Training and Quiz are the numbers of gold items shown as training
-	// (the answer is shown after each) and then as a quiz (answers never
-	// shown) before an annotator gets real work. Negative means none; 0
-	// means the defaults (3 and 5). Projects without gold skip both.
-	Training, Quiz int
-	// PassMark is the share of quiz answers that must match the gold answer
-	// (default 0.8).
+	// Practice and Check are the numbers of gold items shown as practice
+	// (the expert's answer is shown after each) and then as the check
+	// (answers never shown) before an annotator gets real work. Negative
+	// means none; 0 means the defaults (3 and 5). Projects without gold skip
+	// both. See practice.go for how the check resists guessing.
+	Practice, Check int
+	// PassMark is the share of check answers that must match the gold
+	// answer (default 0.8).
 	PassMark float64
+	// CheckAttempts is how many check attempts a person has before the team
+	// must grant another (default 3; negative: no limit).
+	CheckAttempts int
+	// ChangeWindow is how long after an answer a person may still change it
+	// (their latest answer only; default 10 minutes).
+	ChangeWindow time.Duration
+	// Metrics says who may read the Prometheus metrics at /metrics:
+	// "admin" (the default: an admin's bearer token), "open" (anyone who
+	// can reach the server) or "off" (not served).
+	Metrics string
+	// SecureCookies marks the session cookie Secure even when the request
+	// came over plain HTTP: set it when a TLS proxy in front of the server
+	// serves the pages over HTTPS (requests that come over TLS always get
+	// Secure cookies).
+	SecureCookies bool
 	// Rate and Burst limit each person's requests: Rate per second on
 	// average, Burst at once (defaults 200 and 400).
 	Rate  float64
@@ -115,17 +135,26 @@ func (c *Config) defaults() {
 	if c.Redundancy <= 0 {
 		c.Redundancy = 3
 	}
-	if c.Training == 0 {
-		c.Training = 3
+	if c.Practice == 0 {
+		c.Practice = 3
 	}
-	if c.Quiz == 0 {
-		c.Quiz = 5
+	if c.Check == 0 {
+		c.Check = 5
 	}
-	if c.Training < 0 {
-		c.Training = 0
+	if c.Practice < 0 {
+		c.Practice = 0
 	}
-	if c.Quiz < 0 {
-		c.Quiz = 0
+	if c.Check < 0 {
+		c.Check = 0
+	}
+	if c.CheckAttempts == 0 {
+		c.CheckAttempts = 3
+	}
+	if c.ChangeWindow <= 0 {
+		c.ChangeWindow = 10 * time.Minute
+	}
+	if c.Metrics == "" {
+		c.Metrics = "admin"
 	}
 	if c.PassMark <= 0 || c.PassMark > 1 {
 		c.PassMark = 0.8
@@ -172,7 +201,7 @@ type Server struct {
 	views viewCache // item views handed out
 
 	trMu  sync.Mutex
-	trSet *trainingSet // cached training split (nil: read gold again)
+	trSet *practiceSet // cached practice split (nil: read gold again)
 
 	gcSet    bool // New changed the collector's target; gcBefore is the one before
 	gcBefore int
@@ -200,6 +229,11 @@ func (sv *Server) background(fn func() error) {
 // done; the store stays open and is the caller's to close.
 func New(st *store.Store, cfg Config) (*Server, error) {
 	cfg.defaults()
+	switch cfg.Metrics {
+	case "admin", "open", "off":
+	default:
+		return nil, fmt.Errorf("metrics %q: use admin, open or off", cfg.Metrics)
+	}
 	st.SetGroupSize(cfg.GroupSize)
 	sv := &Server{st: st, cfg: cfg, stop: make(chan struct{})}
 	sv.metrics = newMetrics()
@@ -217,6 +251,16 @@ func New(st *store.Store, cfg Config) (*Server, error) {
 	sv.wg.Add(1)
 	go sv.sweep()
 	return sv, nil
+}
+
+// Refresh reads again what the service keeps in memory from the store —
+// the work pool (items, label counts, the latest next batch), the practice
+// items and the item views — after something wrote to the store behind the
+// service's back (a command run beside it).
+func (sv *Server) Refresh() error {
+	sv.views.clear()
+	sv.forgetPractice()
+	return sv.pool.rebuild()
 }
 
 // Handler returns the service's HTTP handler.

@@ -14,7 +14,7 @@ import (
 )
 
 func TestLabelFlowAndRetry(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1}, 5, nil, 2)
+	f := newFixture(t, Config{Practice: -1, Check: -1}, 5, nil, 2)
 	lease, item := f.next("ann1")
 	if item != "t000" {
 		t.Fatalf("first item %q, want t000 (order of arrival)", item)
@@ -83,7 +83,7 @@ func TestLabelFlowAndRetry(t *testing.T) {
 	r = f.do("GET", "/api/v1/me", "ann1", nil)
 	var me MeReply
 	json.Unmarshal(r.body, &me)
-	if me.Progress.Labelled != 2 || me.Progress.Today != 2 || me.Training.State != "off" {
+	if me.Progress.Labelled != 2 || me.Progress.Today != 2 || me.Practice.State != "off" {
 		t.Errorf("me: %s", r.body)
 	}
 }
@@ -92,7 +92,7 @@ func TestLabelFlowAndRetry(t *testing.T) {
 // counting labels and live leases, that nobody gets an item twice, and that
 // expired leases return to the pool.
 func TestRedundancy(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: 2, LeaseTime: time.Minute}, 3, nil, 6)
+	f := newFixture(t, Config{Practice: -1, Check: -1, Redundancy: 2, LeaseTime: time.Minute}, 3, nil, 6)
 	got := map[string]string{}
 	for _, a := range []string{"ann1", "ann2", "ann3", "ann4", "ann5", "ann6"} {
 		_, item := f.next(a)
@@ -143,7 +143,7 @@ func mustLabels(t *testing.T, f *fixture) []handoff.Label {
 // people, and every acknowledged label is stored once.
 func TestConcurrentAnnotators(t *testing.T) {
 	const items, people, redundancy = 40, 12, 3
-	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: redundancy}, items, nil, people)
+	f := newFixture(t, Config{Practice: -1, Check: -1, Redundancy: redundancy}, items, nil, people)
 	var wg sync.WaitGroup
 	var mu sync.Mutex
 	acked := 0
@@ -193,13 +193,13 @@ func TestConcurrentAnnotators(t *testing.T) {
 }
 
 func TestRestartKeepsLeases(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: 1}, 3, nil, 2)
+	f := newFixture(t, Config{Practice: -1, Check: -1, Redundancy: 1}, 3, nil, 2)
 	lease, item := f.next("ann1")
 	// A second server on the same store (as after a restart) knows the
 	// lease: ann2 does not get the item, and ann1's answer is accepted.
 	f.ts.Close()
 	f.sv.Close()
-	sv, err := New(f.st, Config{Training: -1, Quiz: -1, Redundancy: 1, Now: f.clock.Now})
+	sv, err := New(f.st, Config{Practice: -1, Check: -1, Redundancy: 1, Now: f.clock.Now})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -215,7 +215,7 @@ func TestRestartKeepsLeases(t *testing.T) {
 }
 
 func TestSkipAndUnsure(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1, Redundancy: 1}, 3, nil, 2)
+	f := newFixture(t, Config{Practice: -1, Check: -1, Redundancy: 1}, 3, nil, 2)
 	lease, item := f.next("ann1")
 	r := f.do("POST", "/api/v1/leases/"+lease+"/skip", "ann1", SkipRequest{Reason: "unsure"})
 	if r.status != http.StatusOK {
@@ -239,53 +239,143 @@ func TestSkipAndUnsure(t *testing.T) {
 	}
 }
 
-// TestTraining walks through the training (answers shown) and the quiz
-// (answers never shown): real work opens only after a passed quiz.
-func TestTraining(t *testing.T) {
-	gold := []handoff.Gold{{Item: "t000", Class: "rivers"}, {Item: "t001", Class: "roads"},
-		{Item: "t002", Class: "other"}, {Item: "t003", Class: "rivers"}}
-	f := newFixture(t, Config{Training: 2, Quiz: 2, PassMark: 1}, 8, gold, 1)
-	if r := f.do("GET", "/api/v1/next", "ann1", nil); r.status != http.StatusForbidden || r.json(t)["code"] != "training_required" {
-		t.Fatalf("next before training: %d %s", r.status, r.body)
+// TestPractice walks through the practice (answers shown) and the check
+// (answers never shown): real work opens only after a passed check; the
+// check cannot be passed by trial: each attempt draws other items, a failed
+// attempt's score is not shown, and attempts run out until the team grants
+// another.
+func TestPractice(t *testing.T) {
+	var gold []handoff.Gold
+	answers := map[string]string{}
+	for i := 0; i < 10; i++ {
+		g := handoff.Gold{Item: fmt.Sprintf("t%03d", i), Class: testCodebook.Classes[i%3].Key}
+		gold = append(gold, g)
+		answers[g.Item] = g.Class
 	}
-	answer := func(item, label string) TrainingFeedback {
+	wrong := func(item string) string {
+		for _, c := range testCodebook.Classes {
+			if c.Key != answers[item] {
+				return c.Key
+			}
+		}
+		return ""
+	}
+	f := newFixture(t, Config{Practice: 2, Check: 3, PassMark: 1, CheckAttempts: 2}, 14, gold, 1)
+	if r := f.do("GET", "/api/v1/next", "ann1", nil); r.status != http.StatusForbidden || r.json(t)["code"] != "practice_required" {
+		t.Fatalf("next before the practice: %d %s", r.status, r.body)
+	}
+	view := func() PracticeView {
 		t.Helper()
-		r := f.do("POST", "/api/v1/training/answers", "ann1", TrainingAnswer{Item: item, Label: label})
+		r := f.do("GET", "/api/v1/practice", "ann1", nil)
+		if r.status != http.StatusOK {
+			t.Fatalf("practice: %d %s", r.status, r.body)
+		}
+		var v PracticeView
+		json.Unmarshal(r.body, &v)
+		return v
+	}
+	answer := func(item, label string) (PracticeFeedback, string) {
+		t.Helper()
+		r := f.do("POST", "/api/v1/practice/answers", "ann1", PracticeAnswer{Item: item, Label: label})
 		if r.status != http.StatusOK {
 			t.Fatalf("answer %s: %d %s", item, r.status, r.body)
 		}
-		var fb TrainingFeedback
+		var fb PracticeFeedback
 		json.Unmarshal(r.body, &fb)
-		return fb
+		return fb, string(r.body)
 	}
-	fb := answer("t000", "roads")
-	if fb.Correct == nil || *fb.Correct || fb.Expected == nil || fb.Expected.Key != "rivers" {
-		t.Errorf("training feedback %+v", fb)
+	practise := func() {
+		t.Helper()
+		v := view()
+		if v.State != "practice" || v.Item.ID != "t000" || v.PracticeItems != 2 {
+			t.Fatalf("practice start: %+v", v)
+		}
+		fb, _ := answer("t000", wrong("t000"))
+		if fb.Correct == nil || *fb.Correct || fb.Expected == nil || fb.Expected.Key != answers["t000"] {
+			t.Errorf("practice feedback %+v", fb)
+		}
+		fb, _ = answer("t001", answers["t001"])
+		if fb.Correct == nil || !*fb.Correct || fb.Next.State != "check" || fb.Next.CheckItems != 3 {
+			t.Fatalf("after the practice: %+v", fb.Next)
+		}
 	}
-	fb = answer("t001", "roads")
-	if fb.Next.State != "quiz" || fb.Next.Item.ID != "t002" {
-		t.Errorf("after training: %+v", fb.Next)
+	// attempt answers the check (right or wrong throughout) and returns the
+	// items shown, in order.
+	attempt := func(right bool) ([]string, PracticeView) {
+		t.Helper()
+		var shown []string
+		v := view()
+		for v.State == "check" {
+			item := v.Item.ID
+			if item < "t002" {
+				t.Fatalf("a practice item %s came up in the check", item)
+			}
+			shown = append(shown, item)
+			label := answers[item]
+			if !right {
+				label = wrong(item)
+			}
+			fb, body := answer(item, label)
+			if fb.Correct != nil || fb.Expected != nil {
+				t.Errorf("the check gave feedback: %s", body)
+			}
+			if strings.Contains(body, "right") || strings.Contains(body, "correct") {
+				t.Errorf("the check's reply tells the score: %s", body)
+			}
+			v = fb.Next
+		}
+		return shown, v
 	}
-	// Quiz: no feedback on the answer.
-	fb = answer("t002", "other")
-	if fb.Correct != nil || fb.Expected != nil {
-		t.Errorf("quiz feedback shows the answer: %+v", fb)
+
+	practise()
+	first, v := attempt(false)
+	if len(first) != 3 || v.State != "failed" || v.Attempts != 1 || v.AttemptsLeft != 1 || v.CheckNeeded != 3 {
+		t.Fatalf("after a failed attempt: %v %+v", first, v)
 	}
-	fb = answer("t003", "roads") // wrong: fails at pass mark 1
-	if fb.Next.State != "failed" || fb.Next.QuizCorrect != 1 {
-		t.Errorf("after quiz: %+v", fb.Next)
+	if r := f.do("GET", "/api/v1/practice", "ann1", nil); strings.Contains(string(r.body), "right") {
+		t.Errorf("the failed state shows the score: %s", r.body)
 	}
 	if r := f.do("GET", "/api/v1/next", "ann1", nil); r.status != http.StatusForbidden {
-		t.Errorf("next after a failed quiz: %d", r.status)
+		t.Errorf("next after a failed check: %d", r.status)
 	}
-	if r := f.do("POST", "/api/v1/training/restart", "ann1", nil); r.status != http.StatusOK {
-		t.Fatalf("restart: %d %s", r.status, r.body)
+	if r := f.do("POST", "/api/v1/practice/answers", "ann1", PracticeAnswer{Item: first[0], Label: answers[first[0]]}); r.status != http.StatusConflict {
+		t.Errorf("an answer after the attempt ended: %d %s", r.status, r.body)
 	}
-	answer("t000", "rivers")
-	answer("t001", "roads")
-	answer("t002", "other")
-	if fb := answer("t003", "rivers"); fb.Next.State != "passed" {
-		t.Fatalf("after a perfect quiz: %+v", fb.Next)
+	if r := f.do("POST", "/api/v1/practice/retry", "ann1", nil); r.status != http.StatusOK {
+		t.Fatalf("retry: %d %s", r.status, r.body)
+	}
+	practise()
+	second, v := attempt(false)
+	for _, a := range first {
+		for _, b := range second {
+			if a == b {
+				t.Errorf("the second attempt showed %s again (first %v, second %v) though the pool has 8 items", a, first, second)
+			}
+		}
+	}
+	if v.State != "locked" || v.AttemptsLeft != 0 {
+		t.Fatalf("after the last attempt: %+v", v)
+	}
+	if r := f.do("POST", "/api/v1/practice/retry", "ann1", nil); r.status != http.StatusConflict || !strings.Contains(string(r.body), "team") {
+		t.Errorf("retry with no attempts left: %d %s", r.status, r.body)
+	}
+	// The team sees the score and grants another attempt.
+	r := f.do("GET", "/api/v1/people", "boss", nil)
+	if !strings.Contains(string(r.body), `"state":"locked","attempts":2,"of":3`) {
+		t.Errorf("people list: %s", r.body)
+	}
+	if r := f.do("POST", "/api/v1/people/ann1/check", "ann1", nil); r.status != http.StatusForbidden {
+		t.Errorf("an annotator granted themself an attempt: %d", r.status)
+	}
+	if r := f.do("POST", "/api/v1/people/ann1/check", "boss", nil); r.status != http.StatusOK || !strings.Contains(string(r.body), `"state":"failed"`) {
+		t.Fatalf("grant: %d %s", r.status, r.body)
+	}
+	if r := f.do("POST", "/api/v1/practice/retry", "ann1", nil); r.status != http.StatusOK {
+		t.Fatalf("retry after the grant: %d %s", r.status, r.body)
+	}
+	practise()
+	if _, v := attempt(true); v.State != "passed" {
+		t.Fatalf("after a perfect check: %+v", v)
 	}
 	// Real work now, and never a gold item.
 	for {
@@ -293,7 +383,7 @@ func TestTraining(t *testing.T) {
 		if lease == "" {
 			break
 		}
-		if item <= "t003" {
+		if item <= "t009" {
 			t.Errorf("gold item %s handed out as work", item)
 		}
 		if r := f.label("ann1", lease, item, "other", item); r.status != http.StatusCreated {
@@ -301,12 +391,51 @@ func TestTraining(t *testing.T) {
 		}
 	}
 	if n := len(mustLabels(t, f)); n != 4 {
-		t.Errorf("%d labels, want 4 (items t004–t007; training answers are not labels)", n)
+		t.Errorf("%d labels, want 4 (items t010–t013; practice answers are not labels)", n)
+	}
+}
+
+// TestCheckDraws checks that attempts show their items in different orders
+// when the pool holds just as many items as the check asks for.
+func TestCheckDraws(t *testing.T) {
+	ts := practiceSet{check: 5}
+	for i := 0; i < 5; i++ {
+		ts.pool = append(ts.pool, handoff.Gold{Item: fmt.Sprint(i)})
+	}
+	orders := map[string]bool{}
+	for i := 0; i < 50; i++ {
+		d := ts.draw(nil)
+		if len(d) != 5 {
+			t.Fatalf("draw %v", d)
+		}
+		orders[strings.Join(d, ",")] = true
+	}
+	// 50 draws of 5! = 120 orders: fewer than 10 distinct would happen by
+	// chance with probability far below 1e-9.
+	if len(orders) < 10 {
+		t.Errorf("50 attempts showed only %d orders", len(orders))
+	}
+}
+
+// TestOldPersonRecord reads a person's record written under the old names
+// of the practice gate.
+func TestOldPersonRecord(t *testing.T) {
+	var p Person
+	old := `{"id":"ann","admin":false,"created":"2026-01-02T03:04:05Z","training":{"step":3,"quiz_answered":2,"quiz_correct":2,"passed":true,"attempts":1}}`
+	if err := json.Unmarshal([]byte(old), &p); err != nil {
+		t.Fatal(err)
+	}
+	if p.ID != "ann" || !p.Practice.Passed || p.Practice.Done != 3 || p.Practice.Attempts != 1 {
+		t.Errorf("old record read as %+v", p)
+	}
+	b, _ := json.Marshal(p)
+	if strings.Contains(string(b), "training") || strings.Contains(string(b), "quiz") {
+		t.Errorf("written back with the old names: %s", b)
 	}
 }
 
 func TestSessionAndCSRF(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1}, 3, nil, 1)
+	f := newFixture(t, Config{Practice: -1, Check: -1}, 3, nil, 1)
 	jar, _ := cookiejar.New(nil)
 	cl := &http.Client{Jar: jar}
 	post := func(path, body string, hdr ...string) *http.Response {
@@ -375,7 +504,7 @@ func TestSessionAndCSRF(t *testing.T) {
 }
 
 func TestRateLimit(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1, Rate: 0.001, Burst: 3}, 3, nil, 1)
+	f := newFixture(t, Config{Practice: -1, Check: -1, Rate: 0.001, Burst: 3}, 3, nil, 1)
 	for i := 0; i < 3; i++ {
 		if r := f.do("GET", "/api/v1/me", "ann1", nil); r.status != http.StatusOK {
 			t.Fatalf("request %d: %d", i, r.status)
@@ -392,7 +521,7 @@ func TestRateLimit(t *testing.T) {
 }
 
 func TestAdminRoutes(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1}, 0, nil, 1)
+	f := newFixture(t, Config{Practice: -1, Check: -1}, 0, nil, 1)
 	r := f.do("POST", "/api/v1/items", "boss", "id,text\nd1,The river rose. The road closed.\nd2,A quiet day.\n",
 		"Content-Type", "text/csv")
 	if r.status != http.StatusOK || r.json(t)["added"] != 2.0 {
@@ -454,11 +583,18 @@ func TestAdminRoutes(t *testing.T) {
 }
 
 func TestMetrics(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1}, 3, nil, 1)
+	f := newFixture(t, Config{Practice: -1, Check: -1}, 3, nil, 1)
 	lease, item := f.next("ann1")
 	f.label("ann1", lease, item, "roads", "m1")
 	f.label("ann1", lease, item, "roads", "m1")
-	r := f.do("GET", "/metrics", "", nil)
+	// By default the metrics are for admins only.
+	if r := f.do("GET", "/metrics", "", nil); r.status != http.StatusUnauthorized {
+		t.Errorf("metrics without a token: %d", r.status)
+	}
+	if r := f.do("GET", "/metrics", "ann1", nil); r.status != http.StatusForbidden {
+		t.Errorf("metrics with an annotator's token: %d", r.status)
+	}
+	r := f.do("GET", "/metrics", "boss", nil)
 	for _, want := range []string{
 		`handoff_labels_received_total{outcome="stored"} 1`,
 		`handoff_labels_received_total{outcome="duplicate"} 1`,
@@ -470,5 +606,17 @@ func TestMetrics(t *testing.T) {
 		if !strings.Contains(string(r.body), want) {
 			t.Errorf("metrics lack %q", want)
 		}
+	}
+	for _, c := range []struct {
+		mode   string
+		status int
+	}{{"open", http.StatusOK}, {"off", http.StatusNotFound}} {
+		g := newFixture(t, Config{Practice: -1, Check: -1, Metrics: c.mode}, 1, nil, 0)
+		if r := g.do("GET", "/metrics", "", nil); r.status != c.status {
+			t.Errorf("metrics %s, no token: %d, want %d", c.mode, r.status, c.status)
+		}
+	}
+	if _, err := New(f.st, Config{Metrics: "everyone"}); err == nil {
+		t.Error("Metrics \"everyone\" accepted")
 	}
 }

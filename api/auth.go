@@ -30,29 +30,45 @@ type principal struct {
 
 type cachedToken struct {
 	person  string
+	id      string // the token's id (the part before the dot)
 	expires time.Time
 }
 
 type session struct {
 	id      string
 	person  string
+	token   string // id of the token the session was opened with
 	csrf    string
 	expires time.Time
 }
 
 // auth holds what the service remembers about signed-in people: verified
 // tokens (briefly, so that argon2id runs once per token per TokenCache),
-// page sessions, the people's records, and the rate limiters.
+// page sessions, the people's records, the rate limiters and the failed
+// sign-ins.
+//
+// Failed sign-ins are counted twice: by token id (a wrong secret for a
+// token that exists, which costs an argon2id computation) and by client
+// address (any token that does not verify). After 10 failures at once a
+// token id gets one try a second, whoever sends it; an address gets one
+// try a second for tokens that are malformed or unknown. A token that
+// verifies is never refused because of its address, so a client behind a
+// proxy shared with someone sending bad tokens keeps working; and a token
+// verified in the last TokenCache is accepted whatever its id's failures.
 type auth struct {
 	st  *store.Store
 	cfg Config
 
-	mu       sync.Mutex
-	tokens   map[[32]byte]cachedToken
-	sessions map[string]*session
-	people   map[string]*Person
-	limits   map[string]*bucket
-	failures map[string]*bucket // by client address: failed sign-ins
+	mu         sync.Mutex
+	tokens     map[[32]byte]cachedToken
+	sessions   map[string]*session
+	people     map[string]*Person
+	limits     map[string]*bucket
+	failures   map[string]*bucket // by client address
+	idFailures map[string]*bucket // by token id: wrong secrets
+
+	// upd serialises changes to people's records (read, change, store).
+	upd sync.Mutex
 
 	// hashing bounds the argon2id computations running at once (each
 	// takes 19 MiB and most of a core for ~50 ms).
@@ -70,13 +86,14 @@ type verification struct {
 
 func newAuth(st *store.Store, cfg Config) *auth {
 	return &auth{st: st, cfg: cfg,
-		tokens:   map[[32]byte]cachedToken{},
-		sessions: map[string]*session{},
-		people:   map[string]*Person{},
-		limits:   map[string]*bucket{},
-		failures: map[string]*bucket{},
-		hashing:  make(chan struct{}, max(1, runtime.GOMAXPROCS(0))),
-		inflight: map[[32]byte]*verification{},
+		tokens:     map[[32]byte]cachedToken{},
+		sessions:   map[string]*session{},
+		people:     map[string]*Person{},
+		limits:     map[string]*bucket{},
+		failures:   map[string]*bucket{},
+		idFailures: map[string]*bucket{},
+		hashing:    make(chan struct{}, max(1, runtime.GOMAXPROCS(0))),
+		inflight:   map[[32]byte]*verification{},
 	}
 }
 
@@ -103,14 +120,20 @@ func (a *auth) person(id string) (*Person, error) {
 }
 
 // updatePerson applies fn to a copy of a person's record, stores it, and
-// then replaces the cached one.
-func (a *auth) updatePerson(id, source string, fn func(p *Person)) (Person, error) {
+// then replaces the cached one; changes to one record are serialised. If
+// fn returns an error nothing is stored and the error is returned.
+func (a *auth) updatePerson(id, source string, fn func(p *Person) error) (Person, error) {
+	a.upd.Lock()
+	defer a.upd.Unlock()
 	cur, err := a.person(id)
 	if err != nil {
 		return Person{}, err
 	}
 	p := *cur
-	fn(&p)
+	p.Practice.CheckItems = append([]string(nil), cur.Practice.CheckItems...)
+	if err := fn(&p); err != nil {
+		return Person{}, err
+	}
 	if err := putPerson(a.st, p, source); err != nil {
 		return Person{}, err
 	}
@@ -120,64 +143,131 @@ func (a *auth) updatePerson(id, source string, fn func(p *Person)) (Person, erro
 	return p, nil
 }
 
-// check verifies a token, using the cache when it can.
-func (a *auth) check(token string) (string, error) {
+// Sign-in failures that are not a bad token (429s).
+var (
+	errTokenBlocked = errors.New("too many wrong tokens with this token id: wait a second and try again")
+	errAddrBlocked  = errors.New("too many unknown or malformed tokens from this address: wait a few seconds")
+)
+
+// verify checks a token sent from addr and returns its person and the
+// token's id. A token is accepted if it was verified in the last
+// TokenCache and still exists in the store, or if it verifies now.
+// Errors: errBadToken, errTokenBlocked, errAddrBlocked, or a store error.
+func (a *auth) verify(token, addr string) (person, tokenID string, err error) {
+	id, sec, ok := splitToken(token)
+	if !ok {
+		return "", "", a.refuse(addr, "")
+	}
 	d := tokenDigest(token)
 	now := a.cfg.Now()
 	a.mu.Lock()
-	ct, ok := a.tokens[d]
-	if ok && now.Before(ct.expires) {
-		a.mu.Unlock()
-		return ct.person, nil
+	ct, cached := a.tokens[d]
+	a.mu.Unlock()
+	if cached && now.Before(ct.expires) {
+		if _, err := a.st.Token(id); err == nil {
+			return ct.person, id, nil
+		} else if !errors.Is(err, store.ErrNotFound) {
+			return "", "", err
+		}
+		a.forgetToken(id) // revoked since it was verified
+		return "", "", a.refuse(addr, "")
 	}
+	rec, err := tokenRecordOf(a.st, id)
+	if errors.Is(err, errBadToken) {
+		return "", "", a.refuse(addr, "")
+	}
+	if err != nil {
+		return "", "", err
+	}
+	if a.blockedID(id) {
+		return "", "", errTokenBlocked
+	}
+
+	a.mu.Lock()
 	if v, ok := a.inflight[d]; ok {
 		a.mu.Unlock()
 		<-v.done
-		return v.person, v.err
+		return v.person, id, v.err
 	}
 	v := &verification{done: make(chan struct{})}
 	a.inflight[d] = v
 	a.mu.Unlock()
 
 	a.hashing <- struct{}{}
-	v.person, v.err = verifyToken(a.st, token)
+	good := rec.matches(sec)
 	<-a.hashing
+	if good {
+		v.person = rec.Person
+	} else {
+		v.err = a.refuse(addr, id)
+	}
 
 	a.mu.Lock()
 	delete(a.inflight, d)
-	if v.err == nil {
+	if good {
 		if len(a.tokens) > 100_000 {
 			clear(a.tokens)
 		}
-		a.tokens[d] = cachedToken{person: v.person, expires: now.Add(a.cfg.TokenCache)}
+		a.tokens[d] = cachedToken{person: rec.Person, id: id, expires: now.Add(a.cfg.TokenCache)}
 	}
 	a.mu.Unlock()
 	close(v.done)
-	return v.person, v.err
+	return v.person, id, v.err
 }
 
-// failed counts a failed sign-in from addr: after 10 failures at once, an
-// address gets one try per second (see blocked).
-func (a *auth) failed(addr string) {
+// refuse counts a failed sign-in from addr (and, for a wrong secret, of
+// token id) and returns the error to send: errAddrBlocked once the address
+// has used up its failures on unknown or malformed tokens, errBadToken
+// otherwise.
+func (a *auth) refuse(addr, id string) error {
+	now := a.cfg.Now()
 	a.mu.Lock()
 	defer a.mu.Unlock()
-	b, ok := a.failures[addr]
-	if !ok {
-		if len(a.failures) > 10_000 {
-			clear(a.failures)
+	take := func(m map[string]*bucket, k string) bool {
+		b, ok := m[k]
+		if !ok {
+			if len(m) > 10_000 {
+				clear(m)
+			}
+			b = newBucket(1, 10, now)
+			m[k] = b
 		}
-		b = newBucket(1, 10, a.cfg.Now())
-		a.failures[addr] = b
+		return b.take(now)
 	}
-	b.take(a.cfg.Now())
+	if id != "" {
+		take(a.idFailures, id)
+		take(a.failures, addr)
+		return errBadToken
+	}
+	if !take(a.failures, addr) {
+		return errAddrBlocked
+	}
+	return errBadToken
 }
 
-// blocked reports whether addr has used up its failed sign-ins.
-func (a *auth) blocked(addr string) bool {
+// blockedID reports whether token id has used up its failures.
+func (a *auth) blockedID(id string) bool {
 	a.mu.Lock()
 	defer a.mu.Unlock()
-	b, ok := a.failures[addr]
+	b, ok := a.idFailures[id]
 	return ok && b.empty(a.cfg.Now())
+}
+
+// forgetToken drops a token from the cache of verified tokens and ends the
+// sessions opened with it.
+func (a *auth) forgetToken(id string) {
+	a.mu.Lock()
+	defer a.mu.Unlock()
+	for d, ct := range a.tokens {
+		if ct.id == id {
+			delete(a.tokens, d)
+		}
+	}
+	for k, s := range a.sessions {
+		if s.token == id {
+			delete(a.sessions, k)
+		}
+	}
 }
 
 // allow takes one request from a person's rate limit.
@@ -201,8 +291,8 @@ func randomString(n int) string {
 	return base64.RawURLEncoding.EncodeToString(b)
 }
 
-func (a *auth) newSession(person string) *session {
-	s := &session{id: randomString(32), person: person, csrf: randomString(32),
+func (a *auth) newSession(person, token string) *session {
+	s := &session{id: randomString(32), person: person, token: token, csrf: randomString(32),
 		expires: a.cfg.Now().Add(a.cfg.SessionTime)}
 	a.mu.Lock()
 	defer a.mu.Unlock()
@@ -218,15 +308,25 @@ func (a *auth) newSession(person string) *session {
 	return s
 }
 
-func (a *auth) session(id string) (*session, bool) {
+// session returns a live session whose token has not been revoked.
+func (a *auth) session(id string) (*session, bool, error) {
 	a.mu.Lock()
-	defer a.mu.Unlock()
 	s, ok := a.sessions[id]
-	if !ok || !a.cfg.Now().Before(s.expires) {
+	if ok && !a.cfg.Now().Before(s.expires) {
 		delete(a.sessions, id)
-		return nil, false
+		ok = false
 	}
-	return s, true
+	a.mu.Unlock()
+	if !ok {
+		return nil, false, nil
+	}
+	if _, err := a.st.Token(s.token); errors.Is(err, store.ErrNotFound) {
+		a.forgetToken(s.token)
+		return nil, false, nil
+	} else if err != nil {
+		return nil, false, err
+	}
+	return s, true, nil
 }
 
 func (a *auth) endSession(id string) {
@@ -305,22 +405,14 @@ func (sv *Server) authenticate(need access, changes bool) echo.MiddlewareFunc {
 
 func (sv *Server) principal(c echo.Context, changes bool) (*principal, error) {
 	r := c.Request()
-	addr := c.RealIP()
 	if h := r.Header.Get("Authorization"); h != "" {
 		tok, ok := strings.CutPrefix(h, "Bearer ")
 		if !ok {
 			return nil, jsonError(http.StatusUnauthorized, "the Authorization header must be \"Bearer TOKEN\"")
 		}
-		if sv.auth.blocked(addr) {
-			return nil, jsonError(http.StatusTooManyRequests, "too many failed sign-ins from this address: wait a few seconds")
-		}
-		id, err := sv.auth.check(strings.TrimSpace(tok))
+		id, _, err := sv.auth.verify(strings.TrimSpace(tok), c.RealIP())
 		if err != nil {
-			if errors.Is(err, errBadToken) {
-				sv.auth.failed(addr)
-				return nil, jsonError(http.StatusUnauthorized, "%v", err)
-			}
-			return nil, err
+			return nil, signInError(err)
 		}
 		p, err := sv.auth.person(id)
 		if err != nil {
@@ -332,9 +424,12 @@ func (sv *Server) principal(c echo.Context, changes bool) (*principal, error) {
 	if err != nil || ck.Value == "" {
 		return nil, jsonError(http.StatusUnauthorized, "sign in first: send \"Authorization: Bearer TOKEN\" or sign in on the page")
 	}
-	s, ok := sv.auth.session(ck.Value)
+	s, ok, err := sv.auth.session(ck.Value)
+	if err != nil {
+		return nil, err
+	}
 	if !ok {
-		return nil, jsonError(http.StatusUnauthorized, "the session has ended: sign in again")
+		return nil, jsonError(http.StatusUnauthorized, "the session has ended (or its token was revoked): sign in again")
 	}
 	if changes && subtle.ConstantTimeCompare([]byte(r.Header.Get(csrfHeader)), []byte(s.csrf)) != 1 {
 		return nil, jsonError(http.StatusForbidden, "missing or wrong %s header for this session", csrfHeader)
@@ -344,6 +439,18 @@ func (sv *Server) principal(c echo.Context, changes bool) (*principal, error) {
 		return nil, jsonError(http.StatusUnauthorized, "the session's person is no longer in the project")
 	}
 	return &principal{ID: p.ID, Admin: p.Admin, Session: s}, nil
+}
+
+// signInError turns a failed verification into its reply: 401 for a token
+// that does not verify, 429 (with Retry-After) when failures are blocked.
+func signInError(err error) error {
+	switch {
+	case errors.Is(err, errBadToken):
+		return jsonError(http.StatusUnauthorized, "%v", err)
+	case errors.Is(err, errTokenBlocked), errors.Is(err, errAddrBlocked):
+		return &apiError{status: http.StatusTooManyRequests, msg: err.Error(), retry: "1"}
+	}
+	return err
 }
 
 func who(c echo.Context) *principal {

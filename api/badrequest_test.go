@@ -17,7 +17,7 @@ import (
 // gets the right 4xx with a JSON error body and changes nothing in the
 // store or the pool.
 func TestBadRequests(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1, LeaseTime: time.Minute, MaxBody: 1024}, 4, nil, 2)
+	f := newFixture(t, Config{Practice: -1, Check: -1, LeaseTime: time.Minute, MaxBody: 1024}, 4, nil, 2)
 	// An image item whose file sits next to the project.
 	img := filepath.Join(t.TempDir(), "cell.png")
 	if err := os.WriteFile(img, pngBytes, 0o644); err != nil {
@@ -43,6 +43,11 @@ func TestBadRequests(t *testing.T) {
 		return r
 	}
 	big := `{"lease":"` + strings.Repeat("x", 2000) + `"}`
+	// A token that was revoked.
+	f.addPerson("gone", false)
+	if _, err := RevokeToken(f.st, f.tokens["gone"], "test"); err != nil {
+		t.Fatal(err)
+	}
 	cases := []struct {
 		name     string
 		method   string
@@ -76,6 +81,21 @@ func TestBadRequests(t *testing.T) {
 		{"skip with a bad reason", "POST", "/api/v1/leases/" + lease + "/skip", "ann1", SkipRequest{Reason: "bored"}, nil, 422, "reason"},
 		{"import in an unknown format", "POST", "/api/v1/items", "boss", "<items/>", []string{"Content-Type", "application/xml"}, 415, "CSV"},
 		{"unknown route", "GET", "/api/v1/nothing-here", "boss", nil, nil, 404, "no such route"},
+		// Issue 14.
+		{"label sent as plain text", "POST", "/api/v1/labels", "ann1", good(nil), []string{"Idempotency-Key", "g", "Content-Type", "text/plain"}, 415, "Content-Type: application/json"},
+		{"label sent without a content type", "POST", "/api/v1/labels", "ann1", good(nil), []string{"Idempotency-Key", "g2", "Content-Type", ""}, 415, "as JSON"},
+		{"sign-in sent as a form", "POST", "/api/v1/session", "", "token=abc", []string{"Content-Type", "application/x-www-form-urlencoded"}, 415, "as JSON"},
+		{"revoked token", "GET", "/api/v1/me", "gone", nil, nil, 401, "not valid"},
+		{"change an answer never given", "PUT", "/api/v1/me/labels/last", "ann1", ChangeRequest{Item: item, Label: "roads"}, nil, 409, "latest answer"},
+		{"change to a class not in the codebook", "PUT", "/api/v1/me/labels/last", "ann1", ChangeRequest{Item: item, Label: "lakes"}, nil, 422, "not a class"},
+		{"practice answer with no practice", "POST", "/api/v1/practice/answers", "ann1", PracticeAnswer{Item: item, Label: "roads"}, nil, 409, "practice shows now"},
+		{"retry with no failed check", "POST", "/api/v1/practice/retry", "ann1", nil, nil, 409, "only a failed check"},
+		{"annotator revokes a token", "DELETE", "/api/v1/tokens/0123456789abcdef", "ann1", nil, nil, 403, "admin"},
+		{"annotator issues a token", "POST", "/api/v1/people/ann1/tokens", "ann1", nil, nil, 403, "admin"},
+		{"revoke an unknown token", "DELETE", "/api/v1/tokens/0123456789abcdef", "boss", nil, nil, 404, "no such token"},
+		{"tokens of an unknown person", "DELETE", "/api/v1/people/nobody/tokens", "boss", nil, nil, 404, "no person"},
+		{"annotator reads the metrics", "GET", "/metrics", "ann1", nil, nil, 403, "admin"},
+		{"metrics without a token", "GET", "/metrics", "", nil, nil, 401, "sign in"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

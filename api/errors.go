@@ -6,7 +6,9 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"mime"
 	"net/http"
+	"strings"
 
 	"github.com/labstack/echo/v4"
 
@@ -28,6 +30,7 @@ type apiError struct {
 	status int
 	code   string
 	msg    string
+	retry  string // Retry-After, if any
 }
 
 func (e *apiError) Error() string { return e.msg }
@@ -47,6 +50,10 @@ func (sv *Server) errorHandler(err error, c echo.Context) {
 		return
 	}
 	status, body, internal := classify(err)
+	var ae *apiError
+	if errors.As(err, &ae) && ae.retry != "" {
+		c.Response().Header().Set("Retry-After", ae.retry)
+	}
 	if internal {
 		sv.cfg.Logf("internal error: %s %s: %v", c.Request().Method, c.Request().URL.Path, err)
 	}
@@ -84,12 +91,18 @@ func classify(err error) (status int, body Error, internal bool) {
 	return http.StatusInternalServerError, Error{Error: "internal error: the server's log has the details", Status: http.StatusInternalServerError}, true
 }
 
-// decodeJSON reads one JSON object from the request body into v. Unknown
-// fields, trailing data and bodies over the route's limit are errors.
+// decodeJSON reads one JSON object from the request body into v. A body
+// sent as anything but JSON (Content-Type application/json or
+// application/…+json) is refused with 415; unknown fields, trailing data and
+// bodies over the route's limit are errors.
 func decodeJSON(c echo.Context, v any) error {
 	r := c.Request()
 	if r.Body == nil {
 		return jsonError(http.StatusBadRequest, "empty body: send a JSON object")
+	}
+	if mt, _, err := mime.ParseMediaType(r.Header.Get("Content-Type")); err != nil ||
+		(mt != "application/json" && !(strings.HasPrefix(mt, "application/") && strings.HasSuffix(mt, "+json"))) {
+		return jsonError(http.StatusUnsupportedMediaType, "send the body as JSON, with the header Content-Type: application/json")
 	}
 	b, err := io.ReadAll(r.Body)
 	if err != nil {

@@ -96,6 +96,8 @@ func newFixtureWith(t *testing.T, cb handoff.Codebook, cfg Config, n int, gold [
 	return f
 }
 
+func newTestServer(sv *Server) *httptest.Server { return httptest.NewServer(sv.Handler()) }
+
 func (f *fixture) addPerson(id string, admin bool) {
 	f.t.Helper()
 	tok, err := AddPerson(f.st, id, admin, "test")

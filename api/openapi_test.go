@@ -13,7 +13,7 @@ import (
 // every /api/v1 route is documented, every documented path and method is
 // served, and every schema reference resolves.
 func TestOpenAPI(t *testing.T) {
-	f := newFixture(t, Config{Training: -1, Quiz: -1}, 2, nil, 1)
+	f := newFixture(t, Config{Practice: -1, Check: -1}, 2, nil, 1)
 	r := f.do("GET", "/api/v1/openapi.json", "", nil)
 	if r.status != http.StatusOK {
 		t.Fatalf("openapi.json: %d", r.status)

@@ -2,6 +2,7 @@ package api
 
 import (
 	crand "crypto/rand"
+	"crypto/sha256"
 	"encoding/base64"
 	"encoding/json"
 	"errors"
@@ -19,9 +20,15 @@ import (
 // the leases themselves, so a restarted server rebuilds the same pool.
 //
 // Hand-out order: the items of the latest next batch first (in the batch's
-// order; each wants at least one label more than it had when the batch was
-// picked), then every other item in the order it was added. Gold items are
-// kept for the training and the quiz and are not handed out as work.
+// order), then every other item in the order it was added. Gold items are
+// kept for the practice and the check and are not handed out as work.
+//
+// Targets: every item wants Config.Redundancy labels; an item of the latest
+// next batch wants one label more than it had when the service first saw
+// that batch (at least Config.Redundancy). That target is stored with the
+// batch (store.PutServiceTargets), so restarts, imports and rebuilds after
+// a round never raise it again; only a new next batch does, once. No item
+// is handed out when its labels and live leases reach its target.
 type pool struct {
 	st  *store.Store
 	cfg Config
@@ -121,14 +128,47 @@ func newPool(st *store.Store, cfg Config, m *metrics) (*pool, error) {
 }
 
 // selectionItems reads the item ids of the latest stored next batch, in
-// order. It understands a JSON list of objects with an "item" (or "id")
+// order, and a key naming that batch (its round and a digest of its
+// record). It understands a JSON list of objects with an "item" (or "id")
 // field, or an object holding such a list under "items" or "batch".
-func selectionItems(st *store.Store) ([]string, error) {
+func selectionItems(st *store.Store) (key string, ids []string, err error) {
 	sels, err := st.Selections()
 	if err != nil || len(sels) == 0 {
+		return "", nil, err
+	}
+	last := sels[len(sels)-1]
+	sum := sha256.Sum256(last.Data)
+	ids, err = parseSelection(last.Data)
+	return fmt.Sprintf("round %d %x", last.N, sum[:12]), ids, err
+}
+
+// batchTargets returns the label targets of the latest next batch's items:
+// stored ones if the service has seen this batch before, otherwise one more
+// than each item's labels now (at least Config.Redundancy), which it stores.
+func (p *pool) batchTargets(key string, sel []string, num map[string]uint32, isGold map[uint32]bool, count []int32) (map[string]int32, error) {
+	if b, err := p.st.ServiceTargets(key); err == nil {
+		var t map[string]int32
+		if err := json.Unmarshal(b, &t); err == nil {
+			return t, nil
+		}
+		p.cfg.Logf("the stored targets of the next batch (%s) are damaged: setting them again", key)
+	} else if !errors.Is(err, store.ErrNotFound) {
 		return nil, err
 	}
-	return parseSelection(sels[len(sels)-1].Data)
+	t := make(map[string]int32, len(sel))
+	for _, id := range sel {
+		if n, ok := num[id]; ok && !isGold[n] {
+			t[id] = max(int32(p.cfg.Redundancy), count[n]+1)
+		}
+	}
+	b, err := json.Marshal(t)
+	if err != nil {
+		return nil, err
+	}
+	if err := p.st.PutServiceTargets(key, b); err != nil {
+		return nil, err
+	}
+	return t, nil
 }
 
 func parseSelection(b []byte) ([]string, error) {
@@ -187,7 +227,7 @@ func (p *pool) rebuild() error {
 	if err != nil {
 		return err
 	}
-	sel, err := selectionItems(p.st)
+	selKey, sel, err := selectionItems(p.st)
 	if err != nil {
 		p.cfg.Logf("ignoring the latest next batch: %v", err)
 		sel = nil
@@ -206,6 +246,12 @@ func (p *pool) rebuild() error {
 	for i := range target {
 		target[i] = int32(p.cfg.Redundancy)
 	}
+	var batch map[string]int32
+	if len(sel) > 0 {
+		if batch, err = p.batchTargets(selKey, sel, num, isGold, count); err != nil {
+			return err
+		}
+	}
 	order := make([]uint32, 0, len(ids))
 	inOrder := make(map[uint32]bool, len(sel))
 	for _, id := range sel {
@@ -215,7 +261,7 @@ func (p *pool) rebuild() error {
 		}
 		inOrder[n] = true
 		order = append(order, n)
-		target[n] = max(target[n], count[n]+1)
+		target[n] = max(target[n], batch[id])
 	}
 	for i := range ids {
 		n := uint32(i)

@@ -19,7 +19,7 @@ func TestRoundFromTheService(t *testing.T) {
 	if testing.Short() {
 		t.Skip("trains a model")
 	}
-	f := newFixtureWith(t, sim.TopicCodebook(), Config{Training: -1, Quiz: -1}, 0, nil, 1)
+	f := newFixtureWith(t, sim.TopicCodebook(), Config{Practice: -1, Check: -1}, 0, nil, 1)
 	d, err := sim.NewDemo(sim.DemoConfig{Dir: filepath.Join(t.TempDir(), "images"), Text: sim.TextConfig{Reports: 120},
 		Images: sim.ImageConfig{PerMagnification: 5}, Labelled: 0.5}, 3)
 	if err != nil {
@@ -67,7 +67,7 @@ func TestRoundFromTheService(t *testing.T) {
 	if !inBatch[item] {
 		t.Errorf("first item after the round %q is not from the next batch", item)
 	}
-	if r := f.do("GET", "/metrics", "", nil); !strings.Contains(string(r.body), `handoff_round_duration_seconds_count{result="ok"} 1`) {
+	if r := f.do("GET", "/metrics", "boss", nil); !strings.Contains(string(r.body), `handoff_round_duration_seconds_count{result="ok"} 1`) {
 		t.Error("round duration not in the metrics")
 	}
 }

@@ -35,18 +35,23 @@ func (sv *Server) table() []route {
 		{method: "GET", path: "/api/v1/codebook", need: signedIn, handler: sv.getCodebook},
 		{method: "GET", path: "/api/v1/me", need: signedIn, handler: sv.getMe},
 		{method: "GET", path: "/api/v1/me/labels", need: signedIn, handler: sv.getMyLabels},
+		{method: "PUT", path: "/api/v1/me/labels/last", need: signedIn, changes: true, handler: sv.putLastLabel},
 		{method: "GET", path: "/api/v1/next", need: signedIn, changes: true, handler: sv.getNext},
 		{method: "POST", path: "/api/v1/labels", need: signedIn, changes: true, handler: sv.postLabel},
 		{method: "POST", path: "/api/v1/leases/:id/skip", need: signedIn, changes: true, handler: sv.postSkip},
 		{method: "GET", path: "/api/v1/items/:id/image", need: signedIn, handler: sv.getImage},
-		{method: "GET", path: "/api/v1/training", need: signedIn, handler: sv.getTraining},
-		{method: "POST", path: "/api/v1/training/answers", need: signedIn, changes: true, handler: sv.postTrainingAnswer},
-		{method: "POST", path: "/api/v1/training/restart", need: signedIn, changes: true, handler: sv.postTrainingRestart},
+		{method: "GET", path: "/api/v1/practice", need: signedIn, changes: true, handler: sv.getPractice},
+		{method: "POST", path: "/api/v1/practice/answers", need: signedIn, changes: true, handler: sv.postPracticeAnswer},
+		{method: "POST", path: "/api/v1/practice/retry", need: signedIn, changes: true, handler: sv.postPracticeRetry},
 		// The team.
 		{method: "GET", path: "/api/v1/status", need: adminOnly, handler: sv.getStatus},
 		{method: "GET", path: "/api/v1/labels-per-day", need: adminOnly, handler: sv.getLabelsPerDay},
 		{method: "GET", path: "/api/v1/people", need: adminOnly, handler: sv.getPeople},
 		{method: "POST", path: "/api/v1/people", need: adminOnly, changes: true, handler: sv.postPeople},
+		{method: "POST", path: "/api/v1/people/:id/tokens", need: adminOnly, changes: true, handler: sv.postPersonToken},
+		{method: "DELETE", path: "/api/v1/people/:id/tokens", need: adminOnly, changes: true, handler: sv.deletePersonTokens},
+		{method: "POST", path: "/api/v1/people/:id/check", need: adminOnly, changes: true, handler: sv.postPersonCheck},
+		{method: "DELETE", path: "/api/v1/tokens/:id", need: adminOnly, changes: true, handler: sv.deleteToken},
 		{method: "POST", path: "/api/v1/items", need: adminOnly, changes: true, limit: -1, long: true, handler: sv.postItems},
 		{method: "POST", path: "/api/v1/labels/import", need: adminOnly, changes: true, limit: -1, long: true, handler: sv.postLabelsImport},
 		{method: "POST", path: "/api/v1/gold", need: adminOnly, changes: true, limit: -1, long: true, handler: sv.postGold},
@@ -130,7 +135,12 @@ func (sv *Server) routes() *echo.Echo {
 		mw = append(mw, sv.authenticate(r.need, r.changes))
 		e.Add(r.method, r.path, r.handler, mw...)
 	}
-	e.GET("/metrics", echo.WrapHandler(sv.metrics.handler()))
+	switch sv.cfg.Metrics {
+	case "open":
+		e.GET("/metrics", echo.WrapHandler(sv.metrics.handler()))
+	case "admin":
+		e.GET("/metrics", echo.WrapHandler(sv.metrics.handler()), sv.authenticate(adminOnly, false))
+	}
 	sv.pages(e)
 	return e
 }

@@ -758,3 +758,24 @@ func (s *Store) ServiceTargets(key string) ([]byte, error) {
 	})
 	return out, err
 }
+
+// AnnotatorsWithLabels returns the number of annotators with at least one
+// label (Stats.Annotators counts every annotator the project knows, people
+// added for the service who have not labelled yet among them). It jumps
+// from annotator to annotator in the by-annotator index.
+func (s *Store) AnnotatorsWithLabels() (int, error) {
+	n := 0
+	err := s.db.View(func(tx *bolt.Tx) error {
+		c := tx.Bucket(bLabelAnn).Cursor()
+		for k, _ := c.First(); k != nil; {
+			n++
+			next := binary.BigEndian.Uint64(k[:8]) + 1
+			if next == 0 {
+				break
+			}
+			k, _ = c.Seek(u64(next))
+		}
+		return nil
+	})
+	return n, err
+}

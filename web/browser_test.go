@@ -254,7 +254,7 @@ func until(t *testing.T, ctx context.Context, expr string) {
 // hostile items show as text and run nothing.
 func TestLabellingByKeyboard(t *testing.T) {
 	st := labelProject(t)
-	p := serve(t, st, api.Config{Training: 2, Quiz: 2, PassMark: 1}, map[string]bool{"kim": false})
+	p := serve(t, st, api.Config{Practice: 2, Check: 2, PassMark: 1}, map[string]bool{"kim": false})
 	ctx := browser(t, 1200, 900)
 	signIn(t, ctx, p.ts.URL, p.tokens["kim"], "/label")
 
@@ -349,7 +349,7 @@ func TestLabellingByKeyboard(t *testing.T) {
 // sideways scrolling, every answer button visible.
 func TestPhoneWidth(t *testing.T) {
 	st := labelProject(t)
-	p := serve(t, st, api.Config{Training: -1, Quiz: -1}, map[string]bool{"ali": false})
+	p := serve(t, st, api.Config{Practice: -1, Check: -1}, map[string]bool{"ali": false})
 	ctx := browser(t, 1000, 900)
 	if err := chromedp.Do(ctx, chromedp.EmulateViewport(390, 844, chromedp.EmulateMobile)); err != nil {
 		t.Fatal(err)
@@ -386,7 +386,7 @@ func TestBoard(t *testing.T) {
 	if _, err := round.Run(st, round.DefaultConfig(), "test"); err != nil {
 		t.Fatal(err)
 	}
-	p := serve(t, st, api.Config{Training: -1, Quiz: -1}, map[string]bool{"lead": true})
+	p := serve(t, st, api.Config{Practice: -1, Check: -1}, map[string]bool{"lead": true})
 	ctx := browser(t, 1280, 1000)
 	signIn(t, ctx, p.ts.URL, p.tokens["lead"], "/board")
 	if err := chromedp.Do(ctx, chromedp.WaitVisible(chromedp.CSS("#decision")), chromedp.WaitVisible(chromedp.CSS("#report"))); err != nil {
@@ -450,7 +450,7 @@ func TestImageItem(t *testing.T) {
 	if _, err := st.PutItems([]handoff.Item{{ID: "cells", Kind: handoff.KindImage, Path: path}}, false, "test"); err != nil {
 		t.Fatal(err)
 	}
-	p := serve(t, st, api.Config{Training: -1, Quiz: -1}, map[string]bool{"sam": false})
+	p := serve(t, st, api.Config{Practice: -1, Check: -1}, map[string]bool{"sam": false})
 	ctx := browser(t, 1000, 800)
 	signIn(t, ctx, p.ts.URL, p.tokens["sam"], "/label")
 	until(t, ctx, `document.getElementById("img").complete && document.getElementById("img").naturalWidth === 120`)

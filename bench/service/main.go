@@ -385,7 +385,7 @@ func (k *conn) do(method, path, tok string, body []byte, key string) (int, []byt
 
 // startLoop runs `loop serve` on a free loopback port.
 func startLoop(bin, dir string) (string, func()) {
-	cmd := exec.Command(bin, "serve", dir, "--addr", "127.0.0.1:0", "--training", "0", "--quiz", "0",
+	cmd := exec.Command(bin, "serve", dir, "--addr", "127.0.0.1:0", "--practice", "0", "--check", "0",
 		"--rate", "100000", "--burst", "100000")
 	out, err := cmd.StdoutPipe()
 	if err != nil {
