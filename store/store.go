@@ -89,6 +89,10 @@ var ErrNewerSchema = errors.New("project file has a newer schema")
 // ErrExists is returned by Create when DIR already holds a project.
 var ErrExists = errors.New("a project already exists here")
 
+// ErrInUse is returned (wrapped) by Open when another process holds the
+// project file open (bbolt's file lock) for longer than Open waits.
+var ErrInUse = errors.New("the project is in use by another loop process")
+
 // ErrNotFound is returned by getters when the key is absent.
 var ErrNotFound = errors.New("not found")
 
@@ -212,7 +216,7 @@ func Open(dir string) (*Store, error) {
 	db, err := bolt.Open(p, 0o644, options())
 	if err != nil {
 		if errors.Is(err, bolt.ErrTimeout) {
-			return nil, fmt.Errorf("open %s: the project is in use by another loop process; wait for it to finish", p)
+			return nil, fmt.Errorf("open %s: %w; wait for it to finish", p, ErrInUse)
 		}
 		return nil, fmt.Errorf("open %s: %w", p, err)
 	}

@@ -115,7 +115,7 @@ func runDemo(cmd *cobra.Command, dir string, seed uint64, maxRounds int, only st
 		summary = append(summary, line)
 	}
 	outf(cmd, "\n%s\n", strings.Join(summary, "\n"))
-	outf(cmd, "\nnext: loop status %s; loop verdict %s --html report.html\n", dir, filepath.Join(dir, "reports"))
+	hintf(cmd, "\nnext: loop status %s; loop verdict %s --html report.html\n", dir, filepath.Join(dir, "reports"))
 	return nil
 }
 

@@ -14,14 +14,15 @@ func newInitCmd() *cobra.Command {
 		Use:   "init DIR --codebook FILE",
 		Short: "Make a new project in DIR with a codebook",
 		Long: `init creates DIR (if needed) and the project file DIR/handoff.db, with the
-codebook read from FILE (YAML or JSON). The codebook needs a question and at
-least two classes with unique keys; "scale: ordinal" means the classes are
-listed lowest first.`,
+codebook read from FILE (YAML or JSON). The codebook needs a question and
+2 to 255 classes with unique keys; "scale: ordinal" means the classes are
+listed lowest first. In YAML, put a value that holds commas or a colon in
+quotes when it sits inside {…}.`,
 		Example: `  cat > codebook.yaml <<'END'
   name: topic
   question: What is this report mainly about?
   classes:
-    - {key: pollution, name: Pollution, description: oil, foam, discoloured water}
+    - {key: pollution, name: Pollution, description: "oil, foam, discoloured water"}
     - {key: wildlife, name: Wildlife}
     - {key: other, name: Other}
   END
@@ -40,7 +41,7 @@ listed lowest first.`,
 				return err
 			}
 			defer s.Close()
-			infof(cmd, "created project %s with codebook %q (%d classes)\n", args[0], cb.Name, len(cb.Classes))
+			outf(cmd, "created project %s with codebook %q (%d classes)\n", args[0], cb.Name, len(cb.Classes))
 			return nil
 		},
 	}

@@ -1,6 +1,9 @@
 package main
 
 import (
+	"fmt"
+	"strings"
+
 	"github.com/spf13/cobra"
 
 	"handoff/api"
@@ -23,7 +26,8 @@ func newPeopleAddCmd() *cobra.Command {
 The token is shown only now: the project keeps an argon2id hash of it, never
 the token. NAME is also the annotator id their labels carry (letters, digits,
 '.', '_', '@', '-'). With --admin the person may also use the board and the
-team's API routes (add items, import labels, run rounds, export).`,
+team's API routes (add items, import labels, run rounds, export, manage
+people). It works while ` + "`loop serve`" + ` runs.`,
 		Example: `  loop people add proj alice --admin
   loop people add proj coder07`,
 		Args: cobra.ExactArgs(2),
@@ -69,31 +73,64 @@ func newPeopleTokenCmd() *cobra.Command {
 }
 
 func newPeopleRevokeCmd() *cobra.Command {
-	return &cobra.Command{
-		Use:   "revoke DIR TOKEN",
-		Short: "Revoke a token (give it whole or just the part before the dot)",
-		Long: `revoke deletes a token. A server that is running keeps accepting a
-token it verified in the last few minutes until its memory of it expires
-(5 minutes); restart it to end that at once.`,
-		Example: "  loop people revoke proj 3f2a9c0d1e4b5a67",
-		Args:    cobra.ExactArgs(2),
+	var person string
+	c := &cobra.Command{
+		Use:   "revoke DIR TOKEN | revoke DIR --person NAME",
+		Short: "Revoke a token (whole or the part before the dot), or every token of a person",
+		Long: `revoke deletes a token: give it whole or just its id, the part before the dot
+(` + "`loop people list`" + ` shows each person's token ids). With --person it deletes every
+token of that person; they stay in the project, with their labels, and can
+sign in again only with a new token (` + "`loop people token`" + `).
+
+It works while ` + "`loop serve`" + ` runs: the server refuses the token from the next
+request on and ends the page sessions opened with it.`,
+		Example: `  loop people revoke proj 3f2a9c0d1e4b5a67
+  loop people revoke proj --person coder07`,
+		Args: func(cmd *cobra.Command, args []string) error {
+			if person != "" {
+				return cobra.ExactArgs(1)(cmd, args)
+			}
+			if len(args) != 2 {
+				return usageErrorf("revoke needs DIR and a TOKEN (or DIR --person NAME)")
+			}
+			return nil
+		},
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])
 			if err != nil {
 				return err
 			}
 			defer s.Close()
-			return api.RevokeToken(s, args[1], source(cmd))
+			if person != "" {
+				n, err := api.RevokePerson(s, person, source(cmd))
+				if err != nil {
+					return err
+				}
+				outf(cmd, "revoked %d token(s) of %s\n", n, person)
+				return nil
+			}
+			who, err := api.RevokeToken(s, args[1], source(cmd))
+			if err != nil {
+				return err
+			}
+			outf(cmd, "revoked a token of %s\n", who)
+			return nil
 		},
 	}
+	c.Flags().StringVar(&person, "person", "", "revoke every token of this person")
+	return c
 }
 
 func newPeopleListCmd() *cobra.Command {
 	var asJSON bool
 	c := &cobra.Command{
-		Use:     "list DIR",
-		Short:   "List the people of a project",
-		Example: "  loop people list proj --json",
+		Use:   "list DIR",
+		Short: "List the people of a project with their role, check and token ids",
+		Long: `list prints one line per person: id, role (admin or annotator), where they stand
+in the practice and the check that come before real work, the ids of their
+tokens (never the tokens: only their hashes are kept), and when they were
+added. --json prints the same as JSON.`,
+		Example: "  loop people list proj\n  loop people list proj --json",
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])
@@ -105,26 +142,64 @@ func newPeopleListCmd() *cobra.Command {
 			if err != nil {
 				return err
 			}
-			if asJSON {
-				if people == nil {
-					people = []api.Person{}
-				}
-				return printJSON(cmd, people)
+			toks, err := api.Tokens(s)
+			if err != nil {
+				return err
 			}
+			type row struct {
+				api.Person
+				Tokens []api.TokenInfo `json:"tokens"`
+			}
+			rows := make([]row, 0, len(people))
 			for _, p := range people {
+				t := toks[p.ID]
+				if t == nil {
+					t = []api.TokenInfo{}
+				}
+				p.Practice.CheckItems = nil
+				rows = append(rows, row{p, t})
+			}
+			if asJSON {
+				return printJSON(cmd, rows)
+			}
+			w := 0
+			for _, r := range rows {
+				w = max(w, len(r.ID))
+			}
+			for _, r := range rows {
 				role := "annotator"
-				if p.Admin {
+				if r.Admin {
 					role = "admin"
 				}
-				quiz := "quiz not passed"
-				if p.Training.Passed {
-					quiz = "quiz passed"
+				ids := make([]string, len(r.Tokens))
+				for i, t := range r.Tokens {
+					ids[i] = t.ID
 				}
-				outf(cmd, "%s\t%s\t%s\tsince %s\n", p.ID, role, quiz, p.Created.Format("2006-01-02"))
+				tokens := "no tokens (revoked)"
+				if len(ids) > 0 {
+					tokens = "tokens " + strings.Join(ids, ", ")
+				}
+				outf(cmd, "%-*s  %-9s  %-30s  %s  since %s\n", w, r.ID, role, checkWords(r.Practice), tokens, r.Created.Format("2006-01-02"))
 			}
 			return nil
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c
+}
+
+// checkWords says in words where a person stands in the practice gate, from
+// their record alone (the server's settings decide the rest).
+func checkWords(p api.PracticeState) string {
+	switch {
+	case p.Passed:
+		return "check passed"
+	case p.Attempts == 1:
+		return "check not passed (1 attempt)"
+	case p.Attempts > 1:
+		return fmt.Sprintf("check not passed (%d attempts)", p.Attempts)
+	case p.Done > 0 || p.CheckDone > 0:
+		return "practising"
+	}
+	return "not started"
 }

@@ -461,7 +461,7 @@ Machine labels are evidence, not truth: audit a random sample afterwards with
 			} else if r.Bound > 0 {
 				outf(cmd, "  upper bound on disagreement with the crowd at this threshold: %.3f\n", r.Bound)
 			}
-			outf(cmd, "  next: `loop next %s --audit 100` to measure the real error\n", args[0])
+			hintf(cmd, "  next: `loop next %s --audit 100` to measure the real error\n", args[0])
 			return nil
 		},
 	}

@@ -1,8 +1,11 @@
 package main
 
 import (
+	"context"
+	"errors"
 	"fmt"
 	"net"
+	"net/http"
 	"os"
 	"os/signal"
 	"syscall"
@@ -24,22 +27,36 @@ func newServeCmd() *cobra.Command {
 		Use:   "serve DIR",
 		Short: "Serve the labelling page, the project board and the HTTP API",
 		Long: `serve answers HTTP on --addr: people label items one at a time on the
-labelling page (/label), the team follows the project on the board (/board),
-and programs use the JSON API under /api/v1 (described at
-/api/v1/openapi.json). Prometheus metrics are at /metrics.
+labelling page (/label), the team follows the project and manages people on
+the board (/board), and programs use the JSON API under /api/v1 (described
+at /api/v1/openapi.json). Prometheus metrics are at /metrics, for admin
+tokens (--metrics).
 
 People sign in with a token from ` + "`loop people add`" + `. Each item is handed
 out as a lease that expires after --lease; no item is handed out beyond
---redundancy labels counting live leases. A label is acknowledged only once
-it is written to disk. Before real work, annotators answer --training gold
-items (with the answer shown) and a quiz of --quiz gold items that must reach
---pass-mark; a project without gold skips both.
+--redundancy labels counting live leases (an item of the latest next batch
+wants one label more than it had when the server first saw the batch). A
+label is acknowledged only once it is written to disk. Before real work,
+annotators answer --practice gold items (with the expert's answer shown) and
+a check of --check gold items that must reach --pass-mark; each attempt
+draws its check items afresh, a failed attempt's score is not shown, and
+after --check-attempts failed attempts the team grants another on the
+board. A project without gold skips both.
+
+While it serves, these commands work beside it (the server runs them and
+their output is the same): status, consensus, agreement, verdict, export,
+rollup, next and people (add, list, token, revoke). Others say so and stop.
+serve records where it listens in DIR/serve.json (readable by you only) and
+removes that file when it stops.
+
+Behind a proxy that serves the pages over HTTPS, give --secure-cookies.
 
 serve runs until interrupted (Ctrl-C or SIGTERM), then finishes the requests
 in flight and stops. It prints the address it listens on (useful with port 0).`,
 		Example: `  loop people add proj alice --admin
   loop serve proj --addr 127.0.0.1:8080
-  loop serve proj --addr 127.0.0.1:0 --lease 5m --redundancy 5 --training 0 --quiz 0`,
+  loop serve proj --addr 127.0.0.1:0 --lease 5m --redundancy 5 --practice 0 --check 0
+  loop serve proj --addr 0.0.0.0:8080 --secure-cookies --metrics admin   # behind an HTTPS proxy`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cfg.Redundancy < 1 {
@@ -54,14 +71,33 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 			if cfg.Rate <= 0 || cfg.Burst < 1 {
 				return usageErrorf("--rate must be > 0 and --burst ≥ 1")
 			}
-			// 0 in the flags means none; the API's zero means its default.
-			if cfg.Training == 0 {
-				cfg.Training = -1
+			if cfg.Practice < 0 || cfg.Check < 0 || cfg.CheckAttempts < 0 {
+				return usageErrorf("--practice, --check and --check-attempts must be ≥ 0")
 			}
-			if cfg.Quiz == 0 {
-				cfg.Quiz = -1
+			if cfg.ChangeWindow < 0 {
+				return usageErrorf("--change-window must be ≥ 0")
 			}
-			s, err := openStore(args[0])
+			switch cfg.Metrics {
+			case "admin", "open", "off":
+			default:
+				return usageErrorf("--metrics %q: use admin, open or off", cfg.Metrics)
+			}
+			// 0 in the flags means none (or no limit); the API's zero means
+			// its default.
+			if cfg.Practice == 0 {
+				cfg.Practice = -1
+			}
+			if cfg.Check == 0 {
+				cfg.Check = -1
+			}
+			if cfg.CheckAttempts == 0 {
+				cfg.CheckAttempts = -1
+			}
+			if cfg.ChangeWindow == 0 {
+				cfg.ChangeWindow = time.Nanosecond // no changes after the answer
+			}
+			dir := args[0]
+			s, err := openStore(dir)
 			if err != nil {
 				return err
 			}
@@ -78,10 +114,40 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 			if err != nil {
 				return err
 			}
+			// The command channel for commands run beside the server:
+			// loopback only, with a secret in DIR/serve.json.
+			cln, err := net.Listen("tcp", "127.0.0.1:0")
+			if err != nil {
+				ln.Close()
+				return err
+			}
+			secret := newSecret()
+			registerServed(dir, s)
+			defer unregisterServed(dir)
+			chs := &http.Server{Handler: commandHandler(secret, func() {
+				if err := sv.Refresh(); err != nil {
+					cfg.Logf("reading the project again after a command: %v", err)
+				}
+			}), ReadHeaderTimeout: 10 * time.Second}
+			go chs.Serve(cln)
+			defer chs.Close()
+			rec := serveRecord{PID: os.Getpid(), Serves: "http://" + ln.Addr().String(), Command: "http://" + cln.Addr().String(),
+				Secret: secret, Started: time.Now().UTC()}
+			if err := writeServeRecord(dir, rec); err != nil {
+				ln.Close()
+				return fmt.Errorf("recording the server in %s: %w", dir, err)
+			}
+			defer removeServeRecord(dir, secret)
+
 			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			outf(cmd, "serving %s at http://%s (labelling page /label, board /board, API /api/v1)\n", args[0], ln.Addr())
+			outf(cmd, "serving %s at http://%s (labelling page /label, board /board, API /api/v1)\n", dir, ln.Addr())
 			err = sv.Serve(ctx, ln)
+			sctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
+			defer cancel()
+			if serr := chs.Shutdown(sctx); serr != nil && !errors.Is(serr, http.ErrServerClosed) && err == nil {
+				err = serr
+			}
 			infof(cmd, "stopped\n")
 			return err
 		},
@@ -90,11 +156,15 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 	f.StringVar(&addr, "addr", "127.0.0.1:8080", "address to listen on (host:port; port 0 picks a free one)")
 	f.DurationVar(&cfg.LeaseTime, "lease", 10*time.Minute, "how long a person holds an item before it returns to the pool")
 	f.IntVar(&cfg.Redundancy, "redundancy", 3, "labels wanted per item")
-	f.IntVar(&cfg.Training, "training", 3, "gold items shown as training, with the answer, before the quiz (0: none)")
-	f.IntVar(&cfg.Quiz, "quiz", 5, "gold items in the quiz before real work (0: none)")
-	f.Float64Var(&cfg.PassMark, "pass-mark", 0.8, "share of quiz answers that must match the gold answer")
+	f.IntVar(&cfg.Practice, "practice", 3, "gold items shown as practice, with the expert's answer, before the check (0: none)")
+	f.IntVar(&cfg.Check, "check", 5, "gold items in the check before real work; answers are not shown (0: none)")
+	f.Float64Var(&cfg.PassMark, "pass-mark", 0.8, "share of check answers that must match the expert's answer")
+	f.IntVar(&cfg.CheckAttempts, "check-attempts", 3, "check attempts a person has before the team must grant another (0: no limit)")
+	f.DurationVar(&cfg.ChangeWindow, "change-window", 10*time.Minute, "how long after answering a person may change their latest answer (0: never)")
 	f.Float64Var(&cfg.Rate, "rate", 200, "requests per second allowed per person, on average")
 	f.IntVar(&cfg.Burst, "burst", 400, "requests allowed per person at once")
+	f.StringVar(&cfg.Metrics, "metrics", "admin", "who may read /metrics: admin (an admin token), open (anyone) or off")
+	f.BoolVar(&cfg.SecureCookies, "secure-cookies", false, "mark session cookies Secure: give it when an HTTPS proxy serves the pages")
 	f.Uint64Var(&cfg.Seed, "seed", 1, "seed for rounds run from the board and for bootstrap intervals")
 	return c
 }

@@ -21,11 +21,21 @@ import (
 // imports).
 var importChunk int
 
-// openStore opens the project in dir.
+// openStore opens the project in dir. In a process that serves dir
+// (`loop serve`, running a command sent to it) it returns a borrowed handle
+// on the open store, whose Close leaves it open; where another process
+// holds the project, the error says which server and what to do.
 func openStore(dir string) (*store.Store, error) {
+	if s, ok := servedStore(dir); ok {
+		s.ImportChunk = importChunk
+		return s, nil
+	}
+	if err := besideError(dir); err != nil {
+		return nil, err
+	}
 	s, err := store.Open(dir)
 	if err != nil {
-		return nil, err
+		return nil, inUse(dir, err)
 	}
 	s.ImportChunk = importChunk
 	return s, nil
@@ -59,7 +69,7 @@ func interactive(cmd *cobra.Command) bool {
 	if quiet(cmd) {
 		return false
 	}
-	f, ok := cmd.OutOrStdout().(*os.File)
+	f, ok := cmd.OutOrStdout().(interface{ Fd() uintptr })
 	return ok && term.IsTerminal(int(f.Fd()))
 }
 
@@ -116,6 +126,14 @@ func printJSON(cmd *cobra.Command, v any) error {
 // outf writes a result line to stdout (always printed).
 func outf(cmd *cobra.Command, format string, a ...any) {
 	fmt.Fprintf(cmd.OutOrStdout(), format, a...)
+}
+
+// hintf writes a hint about what to do next to stdout unless --quiet (it
+// is not a result).
+func hintf(cmd *cobra.Command, format string, a ...any) {
+	if !quiet(cmd) {
+		fmt.Fprintf(cmd.OutOrStdout(), format, a...)
+	}
 }
 
 // infof writes a note to stderr unless --quiet.

@@ -61,7 +61,7 @@ import (
 	"github.com/spf13/cobra"
 )
 
-func main() { os.Exit(run(os.Args[1:], os.Stdout, os.Stderr)) }
+func main() { os.Exit(run(os.Args[1:], terminalOut(os.Stdout), os.Stderr)) }
 
 // commands holds the constructors of the top-level commands, in registration
 // order; subcommands maps a group name ("items", "labels") to its children.
@@ -184,13 +184,22 @@ func markRuntimeErrors(c *cobra.Command) {
 }
 
 // run executes loop with args, writing to stdout and stderr, and returns the
-// exit code.
+// exit code. A command that runs beside a server is sent to the server of
+// its project if one runs (forward, in beside.go).
 func run(args []string, stdout, stderr io.Writer) int {
+	if code, ok := forward(args, stdout, stderr); ok {
+		return code
+	}
+	return runIn(context.Background(), args, stdout, stderr)
+}
+
+// runIn executes loop with args in this process.
+func runIn(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	root := newRoot()
 	root.SetArgs(args)
 	root.SetOut(stdout)
 	root.SetErr(stderr)
-	ctx := context.WithValue(context.Background(), invocationKey, "loop "+strings.Join(args, " "))
+	ctx = context.WithValue(ctx, invocationKey, "loop "+strings.Join(args, " "))
 	err := root.ExecuteContext(ctx)
 	if err == nil {
 		return 0
