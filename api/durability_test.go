@@ -251,8 +251,21 @@ func TestKillDuringLabelling(t *testing.T) {
 			t.Fatal(err)
 		}
 		srv.cmd.Wait()
+		// The killed server left its serve.json behind: a command run now
+		// sees it is stale and runs as usual; once the next server runs,
+		// the same command runs beside it.
+		if k%5 == 0 {
+			if out, err := exec.Command(bin, "status", dir, "--json").CombinedOutput(); err != nil {
+				t.Errorf("loop status after kill %d: %v %s", k, err, out)
+			}
+		}
 		srv = startServer(t, bin, dir)
 		base.Store(srv.base)
+		if k%5 == 1 {
+			if out, err := exec.Command(bin, "people", "list", dir).CombinedOutput(); err != nil || !strings.Contains(string(out), "lead") {
+				t.Errorf("loop people list beside the server after kill %d: %v %s", k, err, out)
+			}
+		}
 	}
 	time.Sleep(300 * time.Millisecond)
 	stop.Store(true)
