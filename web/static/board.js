@@ -1,19 +1,25 @@
 // The project board: counts, labels per day, agreement, the reliability
-// table, the latest verdict with its report, the next batch, and the
-// actions (run a round, export). All text from the server goes in with
-// textContent.
+// table, who may sign in (add, new token, revoke, grant a check attempt),
+// the latest verdict with its report, the next batch, and the actions (run
+// a round, export). All text from the server goes in with textContent.
 "use strict";
 
 (() => {
-  const { el, clear, api, session, signOut, fmt } = loop;
+  const { el, clear, api, session, signOut, fmt, int, stat, pct } = loop;
   const $ = (id) => document.getElementById(id);
   const SVG = "http://www.w3.org/2000/svg";
+  const board = { scale: "nominal", rows: 25 };
 
   function svg(tag, attrs, text) {
     const e = document.createElementNS(SVG, tag);
     for (const [k, v] of Object.entries(attrs || {})) e.setAttribute(k, String(v));
     if (text !== undefined) e.textContent = text;
     return e;
+  }
+
+  function cell(c) {
+    if (c === undefined || c === null) return "–";
+    return c instanceof Node ? c : String(c);
   }
 
   function table(headers, rows, numeric) {
@@ -24,35 +30,85 @@
     const body = el("tbody");
     for (const r of rows) {
       const row = el("tr");
-      r.forEach((c, i) => row.append(el("td", { class: numeric && numeric[i] ? "num" : null }, c === undefined || c === null ? "–" : String(c))));
+      r.forEach((c, i) => row.append(el("td", { class: numeric && numeric[i] ? "num" : null }, cell(c))));
       body.append(row);
     }
     t.append(body);
     return t;
   }
 
+  // sortable builds a table whose column headers sort it (click or Enter on
+  // a header's button; again reverses). cols: {title, num, key(row) → sort
+  // value, show(row) → text or node, cls}. Missing values sort last.
+  function sortable(id, cols, rows, first) {
+    const st = { col: first.col, dir: first.dir };
+    const box = clear($(id));
+    const t = el("table", { id: id + "-table" });
+    const head = el("tr");
+    const body = el("tbody");
+    const ths = cols.map((c, i) => {
+      const b = el("button", { type: "button", class: "sort" }, c.title);
+      const th = el("th", { scope: "col", class: c.num ? "num" : null }, b);
+      b.addEventListener("click", () => {
+        st.dir = st.col === i ? -st.dir : (c.num ? -1 : 1);
+        st.col = i;
+        draw();
+      });
+      head.append(th);
+      return th;
+    });
+    t.append(el("thead", {}, head), body);
+    box.append(t);
+    function draw() {
+      const c = cols[st.col];
+      const sorted = rows.slice().sort((a, b) => {
+        const x = c.key(a), y = c.key(b);
+        const mx = x === null || x === undefined, my = y === null || y === undefined;
+        if (mx || my) return mx === my ? 0 : (mx ? 1 : -1);
+        return (x < y ? -1 : x > y ? 1 : 0) * st.dir;
+      });
+      ths.forEach((th, i) => {
+        if (i === st.col) th.setAttribute("aria-sort", st.dir > 0 ? "ascending" : "descending");
+        else th.removeAttribute("aria-sort");
+      });
+      clear(body);
+      for (const r of sorted) {
+        const tr = el("tr");
+        cols.forEach((cc) => tr.append(el("td", { class: [cc.num ? "num" : "", cc.cls || ""].join(" ").trim() || null }, cell(cc.show(r)))));
+        body.append(tr);
+      }
+    }
+    draw();
+  }
+
   function note(node, text) {
     clear(node).append(el("p", { class: "muted" }, text));
   }
 
+  // iv shows an estimate with its interval; an interval of no width (every
+  // bootstrap replicate gave the same value: too few items) is not shown
+  // as one.
   function iv(e) {
     if (!e || !e.defined) return "–";
-    return fmt(e.value) + " [" + fmt(e.lo) + ", " + fmt(e.hi) + "]";
+    if (!(e.hi - e.lo > 1e-9)) return stat(e.value) + " (no interval: every resample gave this)";
+    return stat(e.value) + " [" + stat(e.lo) + ", " + stat(e.hi) + "]";
   }
 
   async function loadStatus() {
     const s = await api("GET", "/api/v1/status");
+    board.scale = s.scale || "nominal";
     $("title").textContent = "Project " + (s.codebook || "");
     const tiles = clear($("tiles"));
-    const t = (n, label) => tiles.append(el("div", { class: "tile" }, el("div", { class: "n" }, String(n)), el("div", { class: "t" }, label)));
-    t(s.items, "items");
-    t(s.labels, "labels");
-    t(s.labelled_items, "items with labels");
-    t(s.annotators, "annotators");
-    t(s.gold, "gold answers");
-    t(s.pool.open_items, "items still wanting labels");
-    t(s.pool.live_leases, "items in someone's hands");
-    t(s.rounds, "rounds");
+    const t = (n, label, id) => tiles.append(el("div", { class: "tile", id: id },
+      el("div", { class: "n" }, int(n)), el("div", { class: "t" }, label)));
+    t(s.items, "items", "tile-items");
+    t(s.labels, "labels", "tile-labels");
+    t(s.labelled_items, "items with labels", "tile-labelled");
+    t(s.labellers, "annotators with labels", "tile-annotators");
+    t(s.gold, "gold answers", "tile-gold");
+    t(s.pool.open_items, "items still wanting labels", "tile-open");
+    t(s.pool.live_leases, "items in someone's hands", "tile-leases");
+    t(s.rounds, "rounds", "tile-rounds");
     showJob(s.round_job);
   }
 
@@ -66,28 +122,64 @@
     else st.textContent = "";
   }
 
+  // ---- labels per day: a time axis with every day, ticks and a y axis ----
+
+  const DAY = 86400000;
+  const MONTHS = ["Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec"];
+  const dayName = (t) => { const d = new Date(t); return d.getUTCDate() + " " + MONTHS[d.getUTCMonth()]; };
+
+  // niceStep returns a round step (1, 2 or 5 × 10^k) giving at most n
+  // intervals up to max.
+  function niceStep(max, n) {
+    const raw = Math.max(1, max / n);
+    const p = Math.pow(10, Math.floor(Math.log10(raw)));
+    for (const m of [1, 2, 5, 10]) if (m * p >= raw) return m * p;
+    return 10 * p;
+  }
+
   async function loadDays() {
     const d = await api("GET", "/api/v1/labels-per-day");
     const box = clear($("days"));
-    const days = d.days.slice(-30);
-    if (days.length === 0) { note(box, "No labels with a time yet."); return; }
-    const W = 600, H = 200, pad = 28, bw = Math.min(48, (W - pad * 2) / days.length);
-    const maxN = Math.max(...days.map((x) => x.labels));
+    if (d.days.length === 0) { note(box, "No labels with a time yet."); return; }
+    const byDay = new Map(d.days.map((x) => [Date.parse(x.day + "T00:00:00Z"), x.labels]));
+    const last = Date.parse(d.days[d.days.length - 1].day + "T00:00:00Z");
+    const first = Math.max(Date.parse(d.days[0].day + "T00:00:00Z"), last - 119 * DAY);
+    const n = Math.round((last - first) / DAY) + 1;
+    const series = [];
+    for (let i = 0; i < n; i++) series.push({ t: first + i * DAY, labels: byDay.get(first + i * DAY) || 0 });
+    const maxN = Math.max(...series.map((x) => x.labels));
+    // Drawn at the box's own width, so that its text is at its real size.
+    const W = Math.max(300, Math.round(box.clientWidth || 600)), H = 230, L = 48, R = 14, T = 26, B = 30;
+    const pw = W - L - R, ph = H - T - B, slot = pw / n;
+    const yStep = niceStep(maxN, 4), yMax = Math.max(yStep, Math.ceil(maxN / yStep) * yStep);
+    const y = (v) => T + ph - ph * v / yMax;
     const g = svg("svg", { viewBox: "0 0 " + W + " " + H, role: "img", "aria-labelledby": "days-title days-desc" });
-    g.append(svg("desc", { id: "days-desc" }, "Bar chart of labels per day over the last " + days.length + " days with labels; the table below has the numbers."));
-    g.append(svg("line", { class: "axis", x1: pad, y1: H - pad, x2: W - pad, y2: H - pad }));
-    days.forEach((x, i) => {
-      const h = maxN ? (H - pad * 2) * x.labels / maxN : 0;
-      const r = svg("rect", { class: "bar", x: pad + i * bw + 1, y: H - pad - h, width: Math.max(1, bw - 2), height: h });
-      r.append(svg("title", {}, x.day + ": " + x.labels + " labels"));
+    g.append(svg("desc", { id: "days-desc" }, "Bar chart of labels per day from " + dayName(first) + " to " + dayName(last) +
+      " (days without labels at zero); the table below has the numbers."));
+    for (let v = 0; v <= yMax + 1e-9; v += yStep) {
+      g.append(svg("line", { class: v === 0 ? "axis" : "grid", x1: L, y1: y(v), x2: W - R, y2: y(v) }));
+      g.append(svg("text", { x: L - 6, y: y(v) + 4, "text-anchor": "end" }, int(v)));
+    }
+    g.append(svg("line", { class: "axis", x1: L, y1: T, x2: L, y2: T + ph }));
+    series.forEach((x, i) => {
+      if (!x.labels) return;
+      const h = ph * x.labels / yMax;
+      const r = svg("rect", { class: "bar", x: L + i * slot + Math.min(1, slot * 0.1), y: T + ph - h, width: Math.max(1, slot - Math.min(2, slot * 0.2)), height: h });
+      r.append(svg("title", {}, dayName(x.t) + ": " + int(x.labels) + " labels"));
       g.append(r);
     });
-    g.append(svg("text", { x: pad, y: H - 8 }, days[0].day));
-    g.append(svg("text", { x: W - pad, y: H - 8, "text-anchor": "end" }, days[days.length - 1].day));
-    g.append(svg("text", { x: pad, y: pad - 8 }, "max " + maxN));
+    const maxTicks = Math.max(2, Math.floor(pw / 70));
+    const xStep = [1, 2, 7, 14, 28, 56, 112].find((s) => n / s <= maxTicks) || 112;
+    for (let i = 0; i < n; i += xStep) {
+      const cx = L + (i + 0.5) * slot;
+      g.append(svg("line", { class: "tick", x1: cx, y1: T + ph, x2: cx, y2: T + ph + 5 }));
+      g.append(svg("text", { x: cx, y: H - 10, "text-anchor": "middle" }, dayName(series[i].t)));
+    }
+    g.append(svg("text", { x: 4, y: 11 }, "labels per day"));
     box.append(g);
     const det = el("details", {}, el("summary", {}, "Numbers"));
-    det.append(table(["day", "labels"], days.map((x) => [x.day, x.labels]), [false, true]));
+    det.append(table(["day", "labels"], d.days.slice(-60).map((x) => [x.day, int(x.labels)]), [false, true]));
+    if (d.without_time) det.append(el("p", { class: "muted" }, int(d.without_time) + " labels have no time and are not in the chart."));
     box.append(det);
   }
 
@@ -96,27 +188,151 @@
     try {
       const a = await api("GET", "/api/v1/agreement");
       const rows = [["Fleiss' kappa", iv(a.fleiss_kappa)]];
-      for (const m of ["nominal", "ordinal", "interval"]) {
+      // Alpha with an ordered metric only where the classes have an order.
+      const metrics = board.scale === "ordinal" ? ["nominal", "ordinal", "interval"] : ["nominal"];
+      for (const m of metrics) {
         if (a.krippendorff_alpha && a.krippendorff_alpha[m]) rows.push(["Krippendorff's alpha (" + m + ")", iv(a.krippendorff_alpha[m])]);
       }
-      clear(box).append(table(["statistic", "value [95% interval]"], rows),
-        el("p", { class: "muted" }, a.items + " items, " + a.labels + " labels after cleaning."));
+      clear(box).append(table(["statistic", "value [95% interval]"], rows, [false, true]),
+        el("p", { class: "muted" }, int(a.items) + " items, " + int(a.labels) + " labels by " + int(a.annotators) + " people after cleaning."));
     } catch (e) {
       note(box, e.message);
     }
   }
 
+  // checkWords says where a person stands in the practice gate; admins
+  // need not take it.
+  function checkWords(c, admin) {
+    if (!c) return "–";
+    if (admin && c.attempts === 0 && c.state !== "passed") return "not needed (admin)";
+    switch (c.state) {
+      case "off": return "no check";
+      case "passed": return "passed" + (c.attempts > 1 ? " (attempt " + c.attempts + ")" : "");
+      case "practice": return "practising";
+      case "check": return "taking the check";
+      case "failed": return "not passed (" + c.attempts + (c.attempts === 1 ? " attempt" : " attempts") + (c.of ? "; last " + c.right + " of " + c.of : "") + ")";
+      case "locked": return "no attempts left (" + (c.of ? "last " + c.right + " of " + c.of : c.attempts + " attempts") + ")";
+    }
+    return c.state;
+  }
+
   async function loadPeople() {
     const r = await api("GET", "/api/v1/annotators");
-    const rows = r.annotators.map((p) => [
-      p.annotator, p.labels, p.kappa ? iv(p.kappa) : "–",
-      p.mean_seconds ? fmt(p.mean_seconds, 1) : "–", p.unsure,
-      p.quiz ? (p.quiz.passed ? "passed" : (p.quiz.attempts ? "not passed" : "not taken")) : "–",
-    ]);
-    const box = clear($("people"));
-    if (rows.length === 0) { note(box, "Nobody yet."); return; }
-    box.append(table(["person", "labels", "kappa vs others", "seconds per label", "unsure", "quiz"], rows,
-      [false, true, false, true, true, false]));
+    if (r.annotators.length === 0) { note(clear($("people")), "Nobody yet."); return; }
+    sortable("people", [
+      { title: "person", key: (p) => p.annotator, show: (p) => p.annotator },
+      { title: "labels", num: true, key: (p) => p.labels, show: (p) => int(p.labels) },
+      { title: "kappa vs others", num: true, key: (p) => p.kappa ? p.kappa.value : null, show: (p) => iv(p.kappa) },
+      { title: "reliability", num: true, key: (p) => p.reliability, show: (p) => p.reliability === undefined ? "–" : stat(p.reliability) },
+      { title: "seconds per label", num: true, key: (p) => p.mean_seconds || null, show: (p) => p.mean_seconds ? fmt(p.mean_seconds, 1) : "–" },
+      { title: "unsure", num: true, key: (p) => p.unsure, show: (p) => int(p.unsure) },
+      { title: "check", key: (p) => p.check ? p.check.state : null, show: (p) => checkWords(p.check, false) },
+      { title: "cleaning", cls: "why", key: (p) => p.dropped || p.flagged || (p.dropped_labels ? "labels" : null), show: (p) =>
+        p.dropped ? "dropped — " + p.dropped :
+          p.flagged ? "flagged — " + p.flagged :
+            p.dropped_labels ? int(p.dropped_labels) + " labels dropped" : (p.labels ? "kept" : "–") },
+    ], r.annotators, { col: 2, dir: 1 });
+  }
+
+  // ---- who may sign in ----
+
+  // confirmInline replaces a button by "Really …? Yes / No" in place.
+  function confirmInline(btn, question, action) {
+    const td = btn.parentNode;
+    const keep = Array.from(td.childNodes);
+    const yes = el("button", { type: "button", class: "danger" }, "Yes, " + btn.textContent.toLowerCase());
+    const no = el("button", { type: "button" }, "No");
+    const back = () => { clear(td); keep.forEach((n) => td.append(n)); btn.focus(); };
+    yes.addEventListener("click", async () => { yes.disabled = no.disabled = true; await action(); });
+    no.addEventListener("click", back);
+    clear(td).append(el("span", { class: "small" }, question + " "), yes, " ", no);
+    no.focus();
+  }
+
+  function showToken(id, token, what) {
+    const box = clear($("new-token"));
+    const input = el("input", { type: "text", class: "token", id: "token-shown", readonly: true, value: token, "aria-label": "Token of " + id });
+    box.append(el("div", { class: "notice good" },
+      el("p", {}, what + " Give " + id + " this token; it is shown only now (the project keeps its hash, not the token):"),
+      input,
+      el("p", { class: "muted small" }, "They sign in at " + location.origin + "/signin.")));
+    input.focus();
+    input.select();
+  }
+
+  async function loadManage() {
+    const r = await api("GET", "/api/v1/people");
+    const box = clear($("manage"));
+    if (r.people.length === 0) { note(box, "Nobody yet."); return; }
+    const rows = r.people.map((p) => {
+      const acts = el("td", { class: "acts" });
+      const newTok = el("button", { type: "button" }, "New token");
+      newTok.addEventListener("click", async () => {
+        try {
+          const t = await api("POST", "/api/v1/people/" + encodeURIComponent(p.id) + "/tokens");
+          showToken(p.id, t.token, "New token for " + p.id + ".");
+          await loadManage();
+        } catch (e) { $("manage-status").textContent = "No new token: " + e.message; }
+      });
+      acts.append(newTok, " ");
+      if (p.tokens.length > 0) {
+        const rev = el("button", { type: "button", class: "danger", "data-revoke": p.id }, "Revoke");
+        rev.addEventListener("click", () => confirmInline(rev, "Revoke every token of " + p.id + "? They are signed out at once.", async () => {
+          try {
+            const res = await api("DELETE", "/api/v1/people/" + encodeURIComponent(p.id) + "/tokens");
+            $("manage-status").textContent = "Revoked " + res.revoked + (res.revoked === 1 ? " token" : " tokens") + " of " + p.id + ".";
+          } catch (e) { $("manage-status").textContent = "Not revoked: " + e.message; }
+          await loadManage();
+        }));
+        acts.append(rev, " ");
+      }
+      if (p.check && p.check.state === "locked") {
+        const grant = el("button", { type: "button" }, "Allow another check");
+        grant.addEventListener("click", async () => {
+          try {
+            await api("POST", "/api/v1/people/" + encodeURIComponent(p.id) + "/check");
+            $("manage-status").textContent = p.id + " may take the check once more.";
+          } catch (e) { $("manage-status").textContent = "Not allowed: " + e.message; }
+          await loadManage();
+        });
+        acts.append(grant);
+      }
+      const tokens = p.tokens.length === 0 ? "none (revoked)" : p.tokens.map((t) => t.id).join(", ");
+      return { p, acts, tokens };
+    });
+    const t = el("table", { id: "manage-table" });
+    const head = el("tr");
+    ["person", "role", "check", "token ids", "added", ""].forEach((h) => head.append(el("th", { scope: "col" }, h)));
+    const body = el("tbody");
+    for (const x of rows) {
+      const tr = el("tr", { "data-person": x.p.id });
+      tr.append(el("td", {}, x.p.id), el("td", {}, x.p.admin ? "admin" : "annotator"), el("td", {}, checkWords(x.p.check, x.p.admin)),
+        el("td", { class: "small" }, x.tokens), el("td", {}, (x.p.created || "").slice(0, 10)), x.acts);
+      body.append(tr);
+    }
+    t.append(el("thead", {}, head), body);
+    box.append(t);
+  }
+
+  async function addPerson(ev) {
+    ev.preventDefault();
+    const id = $("new-id").value.trim();
+    const status = $("manage-status");
+    if (!$("new-id").checkValidity() || id === "") {
+      status.textContent = "An id is 1 to 64 letters, digits, '.', '_', '@' or '-', starting with a letter or digit.";
+      $("new-id").focus();
+      return;
+    }
+    try {
+      const r = await api("POST", "/api/v1/people", { id, admin: $("new-admin").checked });
+      status.textContent = "Added " + r.id + (r.admin ? " (admin)." : ".");
+      $("new-id").value = "";
+      $("new-admin").checked = false;
+      await loadManage();
+      showToken(r.id, r.token, "Added " + r.id + ".");
+    } catch (e) {
+      status.textContent = "Not added: " + e.message;
+    }
   }
 
   async function loadVerdict() {
@@ -134,13 +350,13 @@
       d.go ? "GO: the machine may label items above the threshold" : "NOT YET: people should keep labelling"));
     const facts = [];
     if (d.go) {
-      facts.push(["threshold", fmt(d.threshold, 3)]);
-      facts.push(["share of the archive covered", fmt(100 * d.archive_coverage, 1) + " %"]);
-      facts.push(["upper bound on disagreement", fmt(100 * d.bound, 2) + " %"]);
+      facts.push(["threshold", stat(d.threshold)]);
+      facts.push(["share of the archive covered", pct(d.archive_coverage)]);
+      facts.push(["upper bound on disagreement", pct(d.bound)]);
     } else if (d.labels_needed > 0) {
-      facts.push(["labels still needed (estimate)", String(d.labels_needed)]);
+      facts.push(["labels still needed (estimate)", int(d.labels_needed)]);
     }
-    if (facts.length) box.append(table(["figure", "value"], facts));
+    if (facts.length) box.append(table(["figure", "value"], facts, [false, true]));
     box.append(el("p", { class: "muted" }, "The full report follows: agreement with intervals, confusion matrix, crowd ceiling, coverage and risk, calibration, stop rule and learning curve."));
     // The report has no scripts; the frame may not run any either.
     box.append(el("iframe", {
@@ -157,20 +373,26 @@
     if (b.length === 0) { note(box, "No next batch yet: a round picks it."); return; }
     const counts = {};
     b.forEach((x) => { counts[x.reason] = (counts[x.reason] || 0) + 1; });
-    box.append(el("p", { class: "muted" }, "Round " + r.round + ": " + b.length + " items — " +
-      Object.entries(counts).map(([k, n]) => n + " " + k).join(", ") + "."));
-    box.append(table(["item", "reason", "score"], b.slice(0, 25).map((x) => [x.item, x.reason, fmt(x.score, 3)]), [false, false, true]));
+    const shown = Math.min(board.rows, b.length);
+    box.append(el("p", { class: "muted", id: "batch-summary" }, "Round " + int(r.round) + ": showing " + int(shown) + " of " + int(b.length) + " items (" +
+      Object.entries(counts).map(([k, n]) => int(n) + " " + k).join(", ") + ")."));
+    // Random picks (held-out top-up, audit) have no score.
+    const score = (x) => (x.reason === "held-out" || x.reason === "audit") && !x.score ? "–" : stat(x.score);
+    box.append(table(["item", "reason", "score"], b.slice(0, shown).map((x) => [x.item, x.reason, score(x)]), [false, false, true]));
   }
 
   async function loadUnsure() {
     const r = await api("GET", "/api/v1/unsure");
     const box = clear($("unsure"));
     if (r.items.length === 0) { note(box, "Nobody has marked an item as hard to tell."); return; }
-    box.append(table(["item", "people unsure"], r.items.slice(0, 25).map((x) => [x.item, x.people]), [false, true]));
+    const shown = Math.min(board.rows, r.items.length);
+    box.append(el("p", { class: "muted" }, "Showing " + int(shown) + " of " + int(r.items.length) + " items, most marked first."));
+    box.append(table(["item", "people unsure"], r.items.slice(0, shown).map((x) => [x.item, int(x.people)]), [false, true]));
   }
 
   async function loadAll() {
-    const parts = [loadStatus, loadDays, loadAgreement, loadPeople, loadVerdict, loadBatch, loadUnsure];
+    await loadStatus().catch((e) => console.error(e));
+    const parts = [loadDays, loadAgreement, loadPeople, loadManage, loadVerdict, loadBatch, loadUnsure];
     await Promise.all(parts.map((f) => f().catch((e) => console.error(e))));
   }
 
@@ -198,6 +420,7 @@
   document.addEventListener("DOMContentLoaded", async () => {
     $("signout").addEventListener("click", signOut);
     $("run-round").addEventListener("click", runRound);
+    $("add-person").addEventListener("submit", addPerson);
     try {
       const s = await session();
       $("who").textContent = s.id;

@@ -67,10 +67,24 @@ const loop = (() => {
     location.assign("/signin");
   }
 
+  // Numbers, the same way on every page: counts with thousands separators
+  // (int), statistics — kappa, alpha, probabilities, thresholds — with three
+  // decimals (stat), percentages with one (pct), seconds with one (fmt(x, 1)).
+  const intFmt = new Intl.NumberFormat("en", { maximumFractionDigits: 0 });
+  const fixed = (d) => new Intl.NumberFormat("en", { minimumFractionDigits: d, maximumFractionDigits: d });
+  const fixedFmt = [0, 1, 2, 3, 4].map(fixed);
+
+  function missing(x) { return x === null || x === undefined || Number.isNaN(Number(x)); }
+
   function fmt(x, digits) {
-    if (x === null || x === undefined || Number.isNaN(x)) return "–";
-    return Number(x).toFixed(digits === undefined ? 2 : digits);
+    if (missing(x)) return "–";
+    const d = digits === undefined ? 3 : digits;
+    return (fixedFmt[d] || fixed(d)).format(Number(x));
   }
+
+  function int(x) { return missing(x) ? "–" : intFmt.format(Math.round(Number(x))); }
+  function stat(x) { return fmt(x, 3); }
+  function pct(share) { return missing(share) ? "–" : fmt(100 * share, 1) + "%"; }
 
   // newKey returns a fresh idempotency key.
   function newKey() {
@@ -80,5 +94,5 @@ const loop = (() => {
     return Array.from(b, (x) => x.toString(16).padStart(2, "0")).join("");
   }
 
-  return { el, clear, api, session, signOut, fmt, newKey, HTTPError };
+  return { el, clear, api, session, signOut, fmt, int, stat, pct, newKey, HTTPError };
 })();
