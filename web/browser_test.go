@@ -3,10 +3,10 @@ package web_test
 import (
 	"context"
 	"fmt"
-	"net/http"
 	"image"
 	"image/color"
 	"image/png"
+	"net/http"
 	"net/http/httptest"
 	"os"
 	"os/exec"
