@@ -162,9 +162,10 @@ added. --json prints the same as JSON.`,
 			if asJSON {
 				return printJSON(cmd, rows)
 			}
-			w := 0
+			w, cw := 0, 0
 			for _, r := range rows {
 				w = max(w, len(r.ID))
+				cw = max(cw, len(checkWords(r.Practice)))
 			}
 			for _, r := range rows {
 				role := "annotator"
@@ -179,7 +180,7 @@ added. --json prints the same as JSON.`,
 				if len(ids) > 0 {
 					tokens = "tokens " + strings.Join(ids, ", ")
 				}
-				outf(cmd, "%-*s  %-9s  %-30s  %s  since %s\n", w, r.ID, role, checkWords(r.Practice), tokens, r.Created.Format("2006-01-02"))
+				outf(cmd, "%-*s  %-9s  %-*s  %s  since %s\n", w, r.ID, role, cw, checkWords(r.Practice), tokens, r.Created.Format("2006-01-02"))
 			}
 			return nil
 		},
