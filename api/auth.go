@@ -32,6 +32,7 @@ type cachedToken struct {
 	person  string
 	id      string // the token's id (the part before the dot)
 	expires time.Time
+	gen     uint64 // store.TokenGeneration when last seen in the store
 }
 
 type session struct {
@@ -40,6 +41,7 @@ type session struct {
 	token   string // id of the token the session was opened with
 	csrf    string
 	expires time.Time
+	gen     uint64 // store.TokenGeneration when its token was last seen
 }
 
 // auth holds what the service remembers about signed-in people: verified
@@ -164,7 +166,18 @@ func (a *auth) verify(token, addr string) (person, tokenID string, err error) {
 	ct, cached := a.tokens[d]
 	a.mu.Unlock()
 	if cached && now.Before(ct.expires) {
+		gen := a.st.TokenGeneration()
+		if gen == ct.gen {
+			return ct.person, id, nil
+		}
+		// Some token was revoked since: is this one still there?
 		if _, err := a.st.Token(id); err == nil {
+			a.mu.Lock()
+			if c, ok := a.tokens[d]; ok {
+				c.gen = gen
+				a.tokens[d] = c
+			}
+			a.mu.Unlock()
 			return ct.person, id, nil
 		} else if !errors.Is(err, store.ErrNotFound) {
 			return "", "", err
@@ -172,6 +185,7 @@ func (a *auth) verify(token, addr string) (person, tokenID string, err error) {
 		a.forgetToken(id) // revoked since it was verified
 		return "", "", a.refuse(addr, "")
 	}
+	gen := a.st.TokenGeneration()
 	rec, err := tokenRecordOf(a.st, id)
 	if errors.Is(err, errBadToken) {
 		return "", "", a.refuse(addr, "")
@@ -208,7 +222,7 @@ func (a *auth) verify(token, addr string) (person, tokenID string, err error) {
 		if len(a.tokens) > 100_000 {
 			clear(a.tokens)
 		}
-		a.tokens[d] = cachedToken{person: rec.Person, id: id, expires: now.Add(a.cfg.TokenCache)}
+		a.tokens[d] = cachedToken{person: rec.Person, id: id, expires: now.Add(a.cfg.TokenCache), gen: gen}
 	}
 	a.mu.Unlock()
 	close(v.done)
@@ -293,7 +307,7 @@ func randomString(n int) string {
 
 func (a *auth) newSession(person, token string) *session {
 	s := &session{id: randomString(32), person: person, token: token, csrf: randomString(32),
-		expires: a.cfg.Now().Add(a.cfg.SessionTime)}
+		expires: a.cfg.Now().Add(a.cfg.SessionTime), gen: a.st.TokenGeneration()}
 	a.mu.Lock()
 	defer a.mu.Unlock()
 	now := a.cfg.Now()
@@ -310,15 +324,20 @@ func (a *auth) newSession(person, token string) *session {
 
 // session returns a live session whose token has not been revoked.
 func (a *auth) session(id string) (*session, bool, error) {
+	gen := a.st.TokenGeneration()
 	a.mu.Lock()
 	s, ok := a.sessions[id]
 	if ok && !a.cfg.Now().Before(s.expires) {
 		delete(a.sessions, id)
 		ok = false
 	}
+	same := ok && s.gen == gen
 	a.mu.Unlock()
 	if !ok {
 		return nil, false, nil
+	}
+	if same {
+		return s, true, nil
 	}
 	if _, err := a.st.Token(s.token); errors.Is(err, store.ErrNotFound) {
 		a.forgetToken(s.token)
@@ -326,6 +345,9 @@ func (a *auth) session(id string) (*session, bool, error) {
 	} else if err != nil {
 		return nil, false, err
 	}
+	a.mu.Lock()
+	s.gen = gen
+	a.mu.Unlock()
 	return s, true, nil
 }
 

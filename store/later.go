@@ -4,6 +4,8 @@ import (
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
+	"sync"
+	"sync/atomic"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -322,6 +324,7 @@ func (s *Store) Tokens(fn func(key string, data []byte) error) error {
 // DeleteTokens removes tokens (absent ones are ignored) in one transaction,
 // with one audit entry that does not show the keys.
 func (s *Store) DeleteTokens(keys []string, source string) error {
+	defer s.tokensChanged()
 	return s.update(source, "token.delete", fmt.Sprintf("%d token(s) revoked", len(keys)), func(tx *bolt.Tx) error {
 		b := tx.Bucket(bTokens)
 		for _, k := range keys {
@@ -335,10 +338,31 @@ func (s *Store) DeleteTokens(keys []string, source string) error {
 
 // DeleteToken removes a token (no error if absent).
 func (s *Store) DeleteToken(key string, source string) error {
+	defer s.tokensChanged()
 	return s.update(source, "token.delete", "token revoked", func(tx *bolt.Tx) error {
 		return tx.Bucket(bTokens).Delete([]byte(key))
 	})
 }
+
+// tokenGens holds each open file's count of token deletions (shared by
+// borrowed handles, like the group commit).
+var tokenGens sync.Map // *bolt.DB → *atomic.Uint64
+
+func (s *Store) tokenGen() *atomic.Uint64 {
+	if g, ok := tokenGens.Load(s.db); ok {
+		return g.(*atomic.Uint64)
+	}
+	g, _ := tokenGens.LoadOrStore(s.db, new(atomic.Uint64))
+	return g.(*atomic.Uint64)
+}
+
+func (s *Store) tokensChanged() { s.tokenGen().Add(1) }
+
+// TokenGeneration counts the token deletions made in this process through
+// any handle on the file, so far. A caller that remembers tokens it has
+// verified need only look in the store again when it has changed: this
+// process holds the file, so nobody else can delete one.
+func (s *Store) TokenGeneration() uint64 { return s.tokenGen().Load() }
 
 // PutLease records that an item is handed out (free-form bytes, e.g. JSON
 // with the annotator and expiry), replacing any earlier lease on it.

@@ -269,6 +269,7 @@ func (s *Store) Close() error {
 	}
 	err := s.db.Close()
 	groups.Delete(s.db)
+	tokenGens.Delete(s.db)
 	return err
 }
 
