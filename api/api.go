@@ -24,7 +24,7 @@
 //     half-stored, and the person gets another item).
 //   - People sign in with a token (`loop people add`), kept only as an
 //     argon2id hash. Annotators see items, the codebook and their own labels,
-//     never gold answers (outside the training), the consensus, machine
+//     never gold answers (outside the practice), the consensus, machine
 //     labels or other people's labels. The team's routes need an admin
 //     token.
 //   - Pages use a cookie session with a CSRF token; API clients send the

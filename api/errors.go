@@ -22,7 +22,7 @@ type Error struct {
 	Error  string `json:"error"`
 	Status int    `json:"status"`
 	// Code is a stable word for errors a client may act on
-	// ("training_required", "lease_expired", …); empty otherwise.
+	// ("practice_required", "lease_expired", …); empty otherwise.
 	Code string `json:"code,omitempty"`
 }
 

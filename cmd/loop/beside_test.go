@@ -348,3 +348,35 @@ func TestEscapeControls(t *testing.T) {
 		}
 	}
 }
+
+// TestTrainSaysParents: the cross-validation line says "parents kept
+// together" only when items have parents.
+func TestTrainSaysParents(t *testing.T) {
+	words := [][]string{{"oil", "slick", "foam", "sheen"}, {"heron", "otter", "duck", "kingfisher"}, {"meeting", "bins", "signs", "parking"}}
+	for _, withParents := range []bool{false, true} {
+		dir := t.TempDir()
+		proj := filepath.Join(dir, "proj")
+		mustLoop(t, "init", proj, "--codebook", write(t, dir, "cb.yaml", codebookYAML))
+		var items, labels strings.Builder
+		items.WriteString("id,text,parent\n")
+		labels.WriteString("item,annotator,label\n")
+		for i := 0; i < 60; i++ {
+			c := i % 3
+			parent := ""
+			if withParents {
+				parent = fmt.Sprintf("doc%d", i/4)
+			}
+			fmt.Fprintf(&items, "i%02d,%s %s near %d,%s\n", i, words[c][i%4], words[c][(i+1)%4], i, parent)
+			for _, a := range []string{"ann", "bob"} {
+				fmt.Fprintf(&labels, "i%02d,%s,%s\n", i, a, []string{"pollution", "wildlife", "other"}[c])
+			}
+		}
+		mustLoop(t, "items", "add", proj, write(t, dir, "items.csv", items.String()))
+		mustLoop(t, "labels", "add", proj, write(t, dir, "labels.csv", labels.String()))
+		mustLoop(t, "consensus", proj)
+		out := mustLoop(t, "train", proj)
+		if got := strings.Contains(out, "parents kept together"); got != withParents {
+			t.Errorf("items with parents %v: %q", withParents, out)
+		}
+	}
+}
