@@ -29,24 +29,27 @@ func TestReadmeWalkthrough(t *testing.T) {
 	type step struct {
 		line    string
 		wantErr bool
+		block   int
 	}
 	var steps []step
 	sc := bufio.NewScanner(f)
-	inBlock := false
+	inBlock, block := false, 0
 	for sc.Scan() {
 		l := sc.Text()
 		if strings.HasPrefix(l, "```") {
 			inBlock = !inBlock
+			block++
 			continue
 		}
 		if !inBlock {
 			continue
 		}
 		if strings.HasPrefix(l, "$ loop ") {
-			steps = append(steps, step{line: strings.TrimPrefix(l, "$ ")})
+			steps = append(steps, step{line: strings.TrimPrefix(l, "$ "), block: block})
 			continue
 		}
-		if len(steps) > 0 && strings.HasPrefix(l, "loop: ") {
+		// An error line belongs to the command above it in the same block.
+		if len(steps) > 0 && steps[len(steps)-1].block == block && strings.HasPrefix(l, "loop: ") {
 			steps[len(steps)-1].wantErr = true
 		}
 	}
