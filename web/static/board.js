@@ -306,8 +306,10 @@
     const body = el("tbody");
     for (const x of rows) {
       const tr = el("tr", { "data-person": x.p.id });
-      tr.append(el("td", {}, x.p.id), el("td", {}, x.p.admin ? "admin" : "annotator"), el("td", {}, checkWords(x.p.check, x.p.admin)),
-        el("td", { class: "small" }, x.tokens), el("td", {}, (x.p.created || "").slice(0, 10)), x.acts);
+      x.acts.setAttribute("data-label", "");
+      tr.append(el("td", { "data-label": "person" }, x.p.id), el("td", { "data-label": "role" }, x.p.admin ? "admin" : "annotator"),
+        el("td", { "data-label": "check" }, checkWords(x.p.check, x.p.admin)),
+        el("td", { class: "small", "data-label": "token ids" }, x.tokens), el("td", { "data-label": "added" }, (x.p.created || "").slice(0, 10)), x.acts);
       body.append(tr);
     }
     t.append(el("thead", {}, head), body);
