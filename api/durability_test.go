@@ -234,13 +234,14 @@ func TestKillDuringLabelling(t *testing.T) {
 		return len(acked)
 	}
 	// Each kill comes a random 0–500 ms after the restarted server has
-	// acknowledged its first label (before that it is busy verifying
-	// tokens, which are hashed with argon2id).
+	// acknowledged 15 labels (before its first it is busy verifying tokens,
+	// which are hashed with argon2id; waiting for 15 keeps the test
+	// exercising the server when the machine is busy and labels come slowly).
 	rng := rand.New(rand.NewPCG(20260301, 6))
 	for k := 0; k < kills; k++ {
 		n0 := nAcked()
 		deadline := time.Now().Add(20 * time.Second)
-		for nAcked() == n0 && time.Now().Before(deadline) {
+		for nAcked() < n0+15 && time.Now().Before(deadline) {
 			time.Sleep(2 * time.Millisecond)
 		}
 		if nAcked() == n0 {
