@@ -96,6 +96,9 @@ func TestBadRequests(t *testing.T) {
 		{"tokens of an unknown person", "DELETE", "/api/v1/people/nobody/tokens", "boss", nil, nil, 404, "no person"},
 		{"annotator reads the metrics", "GET", "/metrics", "ann1", nil, nil, 403, "admin"},
 		{"metrics without a token", "GET", "/metrics", "", nil, nil, 401, "sign in"},
+		{"item text with a NUL byte", "POST", "/api/v1/items", "boss", "id,text\nz1,a\x00b\n", []string{"Content-Type", "text/csv"}, 422, "NUL byte"},
+		{"annotator id with an escape sequence", "POST", "/api/v1/labels/import", "boss", "item,annotator,label\nt000,\"x\x1b[2J\",roads\n", []string{"Content-Type", "text/csv"}, 422, "control character"},
+		{"an empty label import", "POST", "/api/v1/labels/import", "boss", "item,annotator,label\n", []string{"Content-Type", "text/csv"}, 422, "no labels"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
