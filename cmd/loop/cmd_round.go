@@ -148,7 +148,10 @@ without adding a look).`,
   loop round proj --force --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over := overrides(cmd)
+			over, err := checkedOverrides(cmd)
+			if err != nil {
+				return err
+			}
 			s, err := openStore(args[0])
 			if err != nil {
 				return err
@@ -246,7 +249,10 @@ round.`,
 			if cmd.Flags().Changed("audit") && cfg.Audit < 1 {
 				return usageErrorf("--audit %d: want a number of items ≥ 1", cfg.Audit)
 			}
-			cfg.Overrides = overrides(cmd)
+			var err error
+			if cfg.Overrides, err = checkedOverrides(cmd); err != nil {
+				return err
+			}
 			if cfg.BelowThreshold || cfg.Audit > 0 {
 				if len(cfg.Overrides) > 1 || len(cfg.Overrides) == 1 && cfg.Overrides[0].Key != "batch" {
 					return usageErrorf("--audit and --below-threshold take no batch settings but -n")
@@ -351,7 +357,10 @@ only.`,
   loop verdict proj --json | jq .decision`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over := overrides(cmd)
+			over, err := checkedOverrides(cmd)
+			if err != nil {
+				return err
+			}
 			s, err := openStore(args[0])
 			if err != nil {
 				return err

@@ -103,6 +103,34 @@ func overrides(cmd *cobra.Command) []round.Override {
 	return out
 }
 
+// checkedOverrides returns the command line's settings after checking each
+// value against its range (a usage error, exit 2, names the first bad one),
+// before anything is opened.
+func checkedOverrides(cmd *cobra.Command) ([]round.Override, error) {
+	over := overrides(cmd)
+	probe := round.DefaultConfig()
+	for _, o := range over {
+		if err := probe.Set(o.Key, o.Value); err != nil {
+			return nil, settingUsage(fmt.Errorf("--%s: %w", flagOf(o.Key), err))
+		}
+	}
+	return over, nil
+}
+
+func flagOf(key string) string {
+	for _, f := range valueFlags {
+		if f.key == key {
+			return f.flag
+		}
+	}
+	for _, f := range offFlags {
+		if f.key == key {
+			return f.flag
+		}
+	}
+	return key
+}
+
 // settingUsage turns a setting out of range into a usage error (exit 2).
 func settingUsage(err error) error {
 	var se *round.SettingError
