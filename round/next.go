@@ -375,3 +375,41 @@ func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelR
 	}
 	return rep, nil
 }
+
+// Stranded lists the items of the latest round's kind without crowd labels
+// or gold that neither are in the latest round's batch nor could be picked
+// by the next round (as a model-unsure pick, a held-out top-up or an
+// audit). Items added since the round count as pickable: the next round
+// scores them. It should always be empty; it exists so that tests and
+// `loop status` can say so.
+func Stranded(st *store.Store) ([]string, error) {
+	c, err := loadCurrent(st, false)
+	if err != nil {
+		return nil, err
+	}
+	cr, err := c.storedConsensus(c.r.Config)
+	if err != nil {
+		return nil, err
+	}
+	held := c.s.HeldOut
+	if held == nil {
+		return nil, fmt.Errorf("the rounds' state has no held-out set; run `loop round DIR --force`")
+	}
+	pool := buildPool(c.p, cr, c.sc, held.Kind, held, c.machine, func(int) bool { return true })
+	inBatch := setOf(nil)
+	for _, b := range c.batch {
+		inBatch[b.Item] = true
+	}
+	var out []string
+	for i, it := range c.p.items {
+		if it.Kind != held.Kind || cr.nlabels[i] > 0 || c.p.gold[i] >= 0 || inBatch[it.ID] || c.sc.row(i) == nil {
+			continue
+		}
+		switch pool.State[i] {
+		case selector.Unlabelled, selector.HeldOutWaiting, selector.Machine:
+		default:
+			out = append(out, it.ID)
+		}
+	}
+	return out, nil
+}
