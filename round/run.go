@@ -300,6 +300,13 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 		s.Curve = append(s.Curve, cp)
 	}
 	s.LabelSeq, s.Gold = in.labelSeq, goldN
+	for i, it := range p.items {
+		if held.member(it) && labelled(i) {
+			if _, ok := s.Cohort[it.ID]; !ok {
+				s.Cohort[it.ID] = s.Round
+			}
+		}
+	}
 	machine := machineMap(in.machine)
 	vin, err := verdictInput(p, cr, s, cfg, func(i int) []float64 { return proba[i*K : (i+1)*K] }, machine, look, t.m.Name, settings)
 	if err != nil {
@@ -395,7 +402,7 @@ func verdictInput(p *project, cr *consensusResult, s *state, cfg Config, proba f
 	std := cfg.Standard
 	kind := held.Kind
 	in := verdict.Input{Classes: p.cb.Keys(), StopSet: s.StopPreds, Look: look, Run: settings}
-	st := &verdict.Standard{Level: std.Level, Cap: std.Cap, Share: held.Share}
+	st := &verdict.Standard{Level: std.Level, Cap: std.Cap, Lag: std.Lag, Share: held.Share}
 	ref := map[string]int{} // settled members → reference class
 	archive := 0
 	labelsOn := 0
@@ -423,14 +430,20 @@ func verdictInput(p *project, cr *consensusResult, s *state, cfg Config, proba f
 			st.Waiting++ // added since the round scored the archive
 			continue
 		}
+		if cr.nlabels[i] == 0 && p.gold[i] < 0 {
+			st.Waiting++
+			continue
+		}
+		if c, ok := s.Cohort[it.ID]; !ok || c > s.Round-std.Lag {
+			st.Pending++ // labelled too recently to count yet
+			continue
+		}
 		switch {
 		case p.gold[i] >= 0:
 			st.Met++
 			ref[it.ID] = p.gold[i]
 			in.Truth = append(in.Truth, p.gold[i])
 			in.Proba = append(in.Proba, slices.Clone(pr))
-		case cr.nlabels[i] == 0:
-			st.Waiting++
 		default:
 			row := cr.posterior[i*K : (i+1)*K]
 			c := argmax(row)
@@ -737,6 +750,18 @@ func pickBatch(p *project, pool selector.Pool, cfg Config, salt int, machine map
 	plan, err := selector.PlanShares(cfg.Batch, cfg.Shares)
 	if err != nil {
 		return nil, err
+	}
+	// Held-out work: reference requests first, then new held-out items,
+	// within the slots of both.
+	below := 0
+	for _, st := range pool.State {
+		if st == selector.HeldOutBelow {
+			below++
+		}
+	}
+	if room := plan.Standard + plan.HeldOut; below > plan.Standard {
+		plan.Standard = min(below, room)
+		plan.HeldOut = room - plan.Standard
 	}
 	plan.Strategy, plan.Beta, plan.Diversity, plan.Balanced = cfg.Strategy, cfg.Beta, cfg.Diversity, cfg.Balanced
 	plan.SplitBelow = cfg.Consensus.Uncertain

@@ -58,10 +58,19 @@ type Config struct {
 // item meets it when it is gold, when its consensus posterior reaches Level
 // (0 means 0.99), or once Cap crowd labels are kept on it after cleaning (0
 // means 9). Until then the next batch asks for more labels on it (reason
-// "reference").
+// "reference"), before any new held-out item.
+//
+// Lag says when a held-out item starts to count: from the Lag-th round
+// after the round that first saw it labelled, whether it meets the
+// standard by then or not (then as a disagreement). Which items count is
+// then a matter of time alone, not of how hard the crowd found them, so
+// the counted items stay a random sample of the held-out set; set Lag to
+// ⌈Cap / labels per request⌉ − 1 so that items can meet the standard in
+// time (2 for 3 labels per request and a cap of 9). DefaultConfig has 2.
 type StandardConfig struct {
 	Level float64 `json:"level"`
 	Cap   int     `json:"cap"`
+	Lag   int     `json:"lag"`
 }
 
 // MaxHeldOutShare is the largest share of the archive the held-out set may
@@ -88,7 +97,7 @@ func HeldOutMinFor(maxErr, confidence float64) int {
 
 // DefaultConfig returns the defaults, every field filled.
 func DefaultConfig() Config {
-	c := Config{Consensus: DefaultConsensus(), Seed: 1}
+	c := Config{Consensus: DefaultConsensus(), Seed: 1, Standard: StandardConfig{Lag: 2}}
 	c.defaults()
 	return c
 }
@@ -296,6 +305,8 @@ func init() {
 			func(c *Config) *float64 { return &c.Standard.Level }, func(x float64) bool { return x >= 0.5 && x < 1 }),
 		integer("reference-cap", "…or once it has this many labels (kept after cleaning)", "an integer ≥ 1",
 			func(c *Config) *int { return &c.Standard.Cap }, func(x int) bool { return x >= 1 }),
+		integer("reference-lag", "a held-out item counts from this many rounds after the round that first saw it labelled (met or not: ⌈reference-cap / labels per request⌉ − 1)", "an integer from 0 to 20",
+			func(c *Config) *int { return &c.Standard.Lag }, func(x int) bool { return x >= 0 && x <= 20 }),
 		integer("batch", "size of the next batch", "an integer ≥ 1",
 			func(c *Config) *int { return &c.Batch }, func(x int) bool { return x >= 1 }),
 		sharesKey(),

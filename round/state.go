@@ -23,6 +23,8 @@ const stateName = "rounds"
 // the last round saw, so that a round with nothing new can be told apart.
 // HeldOut fixes the held-out set at the first round: an item of that kind
 // is a member when its hash is below the share, whatever is labelled later.
+// Cohort[id] is the round that first saw held-out member id labelled (see
+// StandardConfig.Lag).
 // StopSet is a fixed random sample of the items unlabelled at the first
 // round; StopPreds[r] are the predicted classes on it after the r-th round
 // with new labels. Curve holds, per round with new labels, the labels spent
@@ -32,16 +34,17 @@ const stateName = "rounds"
 // machine labels; Queue are the items autolabel left below the threshold,
 // for people.
 type state struct {
-	Round     int          `json:"round"`
-	Look      int          `json:"look"`
-	LabelSeq  uint64       `json:"label_seq"`
-	Gold      int          `json:"gold"`
-	HeldOut   *heldOutSet  `json:"held_out_set,omitempty"`
-	StopSet   []string     `json:"stop_set"`
-	StopPreds [][]int      `json:"stop_preds"`
-	Curve     []curveRound `json:"curve_rounds"`
-	Audit     []string     `json:"audit,omitempty"`
-	Queue     []string     `json:"queue,omitempty"`
+	Round     int            `json:"round"`
+	Look      int            `json:"look"`
+	LabelSeq  uint64         `json:"label_seq"`
+	Gold      int            `json:"gold"`
+	HeldOut   *heldOutSet    `json:"held_out_set,omitempty"`
+	Cohort    map[string]int `json:"cohort,omitempty"`
+	StopSet   []string       `json:"stop_set"`
+	StopPreds [][]int        `json:"stop_preds"`
+	Curve     []curveRound   `json:"curve_rounds"`
+	Audit     []string       `json:"audit,omitempty"`
+	Queue     []string       `json:"queue,omitempty"`
 }
 
 // heldOutSet is the held-out set's definition: items of Kind whose
@@ -114,6 +117,10 @@ func (s *state) clone() *state {
 	c.Curve = slices.Clone(s.Curve)
 	c.Audit = slices.Clone(s.Audit)
 	c.Queue = slices.Clone(s.Queue)
+	c.Cohort = make(map[string]int, len(s.Cohort))
+	for k, v := range s.Cohort {
+		c.Cohort[k] = v
+	}
 	if s.HeldOut != nil {
 		h := *s.HeldOut
 		c.HeldOut = &h

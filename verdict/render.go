@@ -66,9 +66,9 @@ func (r *Report) WriteText(w io.Writer) error {
 	p("\nLook %d: α = %.3g spent across looks by %s; this look tests at α_%d = %.3g (level %.6g)\n",
 		s.Look, s.Alpha, s.Spending, s.Look, s.LookAlpha, 1-s.LookAlpha)
 	if st := r.Standard; st != nil {
-		p("\nReference standard (held-out set: %d items, a random %s of the archive; an item meets the standard when gold, at consensus posterior ≥ %.3g, or with %d labels)\n",
-			st.Members, pct(st.Share), st.Level, st.Cap)
-		p("  %d meet it, %d labelled ones do not yet, %d have no labels yet\n", st.Met, st.Below, st.Waiting)
+		p("\nReference standard (held-out set: %d items, a random %s of the archive; an item meets the standard when gold, at consensus posterior ≥ %.3g, or with %d labels; it counts from the %s round after the one that first saw it labelled)\n",
+			st.Members, pct(st.Share), st.Level, st.Cap, ordinal(st.Lag))
+		p("  %d count and meet it, %d count but do not yet (as disagreements where covered), %d labelled too recently to count, %d have no labels yet\n", st.Met, st.Below, st.Pending, st.Waiting)
 	}
 	a := r.Agreement
 	if a.N > 0 {
@@ -190,4 +190,18 @@ func moreRange(f *PowerLaw) string {
 		return fmt.Sprintf("[%d, beyond 3× the labels spent]", f.MoreLo)
 	}
 	return fmt.Sprintf("[%d, %d]", f.MoreLo, f.MoreHi)
+}
+
+func ordinal(n int) string {
+	switch n {
+	case 0:
+		return "same"
+	case 1:
+		return "next"
+	case 2:
+		return "second"
+	case 3:
+		return "third"
+	}
+	return fmt.Sprintf("%dth", n)
 }

@@ -66,11 +66,11 @@ type Input struct {
 	// (len(Classes) entries each). The machine's class is its argmax
 	// (first on ties) and its confidence the largest entry.
 	Proba [][]float64
-	// Unsettled holds the machine's probability vectors for the labelled
-	// held-out items whose consensus does not yet meet the reference
-	// standard. They count as disagreements in the error bound wherever a
-	// threshold covers them (so that hard items cannot drop out of the
-	// count while they wait for labels) and nowhere else.
+	// Unsettled holds the machine's probability vectors for the held-out
+	// items that count (see Standard) but whose consensus does not meet the
+	// reference standard. They count as disagreements in the error bound
+	// wherever a threshold covers them (so that hard items cannot drop out
+	// of the count while they wait for labels) and nowhere else.
 	Unsettled [][]float64
 	// Standard describes the reference standard and the held-out set
 	// (nil: not stated).
@@ -113,17 +113,22 @@ type Input struct {
 
 // Standard describes the reference standard of the held-out set: an item
 // meets it when it is gold, or when its consensus posterior reaches Level,
-// or once it has Cap labels.
+// or once it has Cap labels. A labelled item counts from the Lag-th round
+// after the one that first saw it labelled, met or not.
 type Standard struct {
 	Level float64 `json:"level"`
 	Cap   int     `json:"cap"`
+	Lag   int     `json:"lag"`
 	// Members is the size of the held-out set (a random sample of Share
-	// of the archive); Met of them meet the standard, Below are labelled
-	// but do not yet, Waiting have no labels yet.
+	// of the archive). Of them, Met count and meet the standard, Below
+	// count but do not meet it (they count as disagreements wherever
+	// covered), Pending are labelled too recently to count, Waiting have
+	// no labels yet.
 	Members int     `json:"members"`
 	Share   float64 `json:"share"`
 	Met     int     `json:"met"`
 	Below   int     `json:"below"`
+	Pending int     `json:"pending"`
 	Waiting int     `json:"waiting"`
 }
 
@@ -548,9 +553,9 @@ func decide(r *Report, archive int) Decision {
 		gate(GateAudit, ok, true, fmt.Sprintf("the audit found %d errors in %d machine labels: error %.3f, interval [%.3f, %.3f] against max-error %.3g",
 			r.Audit.Errors, r.Audit.N, r.Audit.Rate, r.Audit.Lo, r.Audit.Hi, s.MaxError))
 	}
-	if st := r.Standard; st != nil && (st.Below > 0 || st.Waiting > 0) {
-		d.Notes = append(d.Notes, fmt.Sprintf("reference standard: %d held-out items meet it, %d labelled ones do not yet (counted as disagreements where covered), %d have no labels yet",
-			st.Met, st.Below, st.Waiting))
+	if st := r.Standard; st != nil && (st.Below > 0 || st.Pending > 0 || st.Waiting > 0) {
+		d.Notes = append(d.Notes, fmt.Sprintf("reference standard: %d held-out items count and meet it, %d count but do not yet (as disagreements where covered), %d were labelled too recently to count, %d have no labels yet",
+			st.Met, st.Below, st.Pending, st.Waiting))
 	}
 	if th.Found && th.Archive == 0 && archive > 0 {
 		d.Notes = append(d.Notes, "no archive item reaches the threshold: the expected archive coverage is 0")

@@ -178,8 +178,8 @@ without adding a look).`,
 			outf(cmd, "%s", indent(consensusText(r.Consensus, false)))
 			outf(cmd, "%s", indent(trainText(r.Train)))
 			if st := r.Verdict.Standard; st != nil {
-				outf(cmd, "  held-out set: %d items (a random %.3g of the archive); %d meet the reference standard, %d labelled ones do not yet, %d have no labels yet\n",
-					st.Members, r.HeldOutShare, st.Met, st.Below, st.Waiting)
+				outf(cmd, "  held-out set: %d items (a random %.3g of the archive): %d count and meet the reference standard, %d count but do not yet, %d labelled too recently to count, %d without labels\n",
+					st.Members, r.HeldOutShare, st.Met, st.Below, st.Pending, st.Waiting)
 			}
 			outf(cmd, "  next batch: %d items (%s); write it with `loop next %s`\n", len(r.Batch), reasonCounts(r.Batch), args[0])
 			outf(cmd, "verdict: %s\n", r.Verdict.Headline())
