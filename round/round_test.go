@@ -432,7 +432,9 @@ func TestNothingToDo(t *testing.T) {
 
 func TestRollupIntervals(t *testing.T) {
 	// Parent a: 3 of 4 items class x; parent b: all y. Shares are exact,
-	// intervals contain them, a constant parent has a zero-width interval.
+	// intervals are exact binomial ones (scipy 1.10 beta.ppf, two-sided
+	// 95%: 3 of 4 → [0.19412, 0.99369]; 2 of 2 → [0.15811, 1]) and never
+	// collapse to a point.
 	rows := []Row{
 		{Item: "1", Parent: "a", Class: "x"}, {Item: "2", Parent: "a", Class: "x"},
 		{Item: "3", Parent: "a", Class: "x"}, {Item: "4", Parent: "a", Class: "y"},
@@ -447,11 +449,14 @@ func TestRollupIntervals(t *testing.T) {
 		t.Fatalf("rollup %+v", ps)
 	}
 	a := ps[0].Shares[0]
-	if math.Abs(a.Value-0.75) > 1e-12 || a.Lo > 0.75 || a.Hi < 0.75 || a.Lo >= a.Hi {
+	if math.Abs(a.Value-0.75) > 1e-12 || math.Abs(a.Lo-0.19412) > 1e-4 || math.Abs(a.Hi-0.99369) > 1e-4 {
 		t.Errorf("share of x in a: %+v", a)
 	}
-	if b := ps[1].Shares[1]; b.Value != 1 || b.Lo != 1 || b.Hi != 1 {
+	if b := ps[1].Shares[1]; b.Value != 1 || math.Abs(b.Lo-0.15811) > 1e-4 || b.Hi != 1 {
 		t.Errorf("share of y in b: %+v", b)
+	}
+	if b := ps[1].Shares[0]; b.Value != 0 || b.Lo != 0 || !(b.Hi > 0.8) {
+		t.Errorf("share of x in b (0 of 2): %+v", b)
 	}
 	if p := ps[0].Position; p == nil || math.Abs(p.Value-1.25) > 1e-12 {
 		t.Errorf("mean position in a: %+v", p)
