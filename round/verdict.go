@@ -16,11 +16,12 @@ type VerdictConfig struct {
 // verdictKeys are the settings Verdict may override.
 var verdictKeys = []string{"max-error", "confidence", "median-gate", "require-stable"}
 
-// Verdict returns the verdict of the latest round. When cfg changes a
-// setting, or when audited machine labels exist, it is computed again from
-// the latest round's stored scores (no featurising) and the labels as they
-// are now: the consensus is recomputed in memory with the round's settings,
-// so audit labels added since count; the look stays the round's.
+// Verdict returns the verdict of the latest round, with the audit of
+// machine labels as it stands now (the consensus recomputed in memory with
+// the round's settings, so audit labels added since count). When cfg
+// changes a setting, the whole verdict is computed again from the latest
+// round's stored scores (no featurising) and the labels as they are now;
+// the look stays the round's.
 func Verdict(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
 	for _, o := range cfg.Overrides {
 		if !slices.Contains(verdictKeys, o.Key) {
@@ -63,6 +64,9 @@ func Verdict(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
 	cr, err := consensus(c.p, rc.Consensus)
 	if err != nil {
 		return nil, err
+	}
+	if !changed {
+		return r.Verdict.WithAudit(auditCounts(c.p, cr, c.s, c.machine))
 	}
 	vin, err := verdictInput(c.p, cr, c.s, rc, c.sc.row, c.machine, max(r.Look, 1), r.Model, settings)
 	if err != nil {

@@ -295,6 +295,25 @@ type Report struct {
 	Stored       *StoredLabels `json:"stored"`
 	Run          []Setting     `json:"run"`
 	Settings     Settings      `json:"settings"`
+	// ArchiveItems is the number of archive confidences given.
+	ArchiveItems int `json:"archive_items"`
+}
+
+// WithAudit returns a copy of the report with the audit replaced by a (nil
+// for none) and the decision taken again: the audit gate is the only one
+// it can change.
+func (r *Report) WithAudit(a *AuditCounts) (*Report, error) {
+	c := *r
+	c.Audit = nil
+	if a != nil {
+		au, err := AuditError(a.Errors, a.Items, r.Settings.Confidence)
+		if err != nil {
+			return nil, err
+		}
+		c.Audit = &au
+	}
+	c.Decision = decide(&c, c.ArchiveItems)
+	return &c, nil
 }
 
 func (o Options) settings(look int) (Settings, error) {
@@ -502,6 +521,7 @@ func Compute(in Input, opt Options) (*Report, error) {
 		}
 		r.Audit = &a
 	}
+	r.ArchiveItems = len(in.Archive)
 	r.Decision = decide(r, len(in.Archive))
 	return r, nil
 }
@@ -520,21 +540,22 @@ func decide(r *Report, archive int) Decision {
 		}
 	}
 	th := r.Threshold
-	if r.Agreement.N == 0 {
-		gate(GateStandard, false, true, "no held-out item meets the reference standard yet: label the held-out items (`loop next` asks for them)")
-	}
-	if th.Found {
+	switch {
+	case r.Agreement.N == 0:
+		// Nothing to test yet: the other gates would only repeat it.
+		gate(GateStandard, false, true, "no held-out item counts yet: label the held-out items (`loop next` asks for them) and run more rounds")
+	case th.Found:
 		d.Threshold, d.HeldOutCoverage, d.ArchiveCoverage, d.Bound = th.Threshold, th.Coverage, th.Archive, th.Upper
 		gate(GateBound, true, true, fmt.Sprintf("threshold %.4g covers %d held-out items with %d disagreements; upper bound %s ≤ max-error %s at look %d (α_%d = %.3g)",
 			th.Threshold, th.N, th.Errors, pct(th.Upper), pct(s.MaxError), s.Look, s.Look, s.LookAlpha))
-	} else {
+	default:
 		gate(GateBound, false, true, fmt.Sprintf("no confidence threshold keeps the bound within max-error %s at look %d (α_%d = %.3g): %s",
 			pct(s.MaxError), s.Look, s.Look, s.LookAlpha, th.Stop))
 	}
 	if c := r.Ceiling; c != nil {
 		gate(GateMedian, c.AtLeastMedian, s.MedianGate, fmt.Sprintf("the machine agrees with the reference on %s of the %d held-out items it would autolabel; the median annotator agrees with the others on %s of their items",
 			pct(c.MachineAgreement), c.MachineItems, pct(c.MedianAgreement)))
-	} else if s.MedianGate {
+	} else if s.MedianGate && r.Agreement.N > 0 {
 		gate(GateMedian, false, true, "no annotator figures were given, so the machine cannot be compared with the median annotator")
 	}
 	stable := r.Stop != nil && r.Stop.Stable
