@@ -58,8 +58,13 @@ type Result struct {
 
 // ErrNoNewLabels is returned (wrapped) by a round when no label or gold
 // answer is new since the last round: the round would change nothing, so it
-// is not run (RunOptions.Force runs it anyway).
-var ErrNoNewLabels = fmt.Errorf("%w: no labels new since the last round", ErrNothing)
+// is not run (RunOptions.Force runs it anyway). It also matches ErrNothing.
+var ErrNoNewLabels error = nothingNew{}
+
+type nothingNew struct{}
+
+func (nothingNew) Error() string        { return "no labels new since the last round" }
+func (nothingNew) Is(target error) bool { return target == ErrNothing }
 
 // RunOptions say how a round is run.
 type RunOptions struct {
@@ -176,7 +181,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 	}
 	fresh := s.Round == 0 || in.labelSeq != s.LabelSeq || goldN != s.Gold
 	if !fresh && !force {
-		return nil, fmt.Errorf("%w (round %d used all %d labels and %d gold answers): nothing changed; add labels or pass --force to run the round anyway",
+		return nil, fmt.Errorf("%w (round %d used all %d labels and %d gold answers): nothing changed; add labels, or pass --force to run the round anyway",
 			ErrNoNewLabels, s.Round, p.labels.Len(), goldN)
 	}
 	cr, err := consensus(p, cfg.Consensus)
@@ -434,7 +439,7 @@ func verdictInput(p *project, cr *consensusResult, s *state, cfg Config, proba f
 			st.Waiting++
 			continue
 		}
-		if c, ok := s.Cohort[it.ID]; !ok || c > s.Round-std.Lag {
+		if c, ok := s.Cohort[it.ID]; !ok || c > max(1, s.Round-std.Lag) {
 			st.Pending++ // labelled too recently to count yet
 			continue
 		}

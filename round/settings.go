@@ -61,8 +61,9 @@ type Config struct {
 // "reference"), before any new held-out item.
 //
 // Lag says when a held-out item starts to count: from the Lag-th round
-// after the round that first saw it labelled, whether it meets the
-// standard by then or not (then as a disagreement). Which items count is
+// after the round that first saw it labelled (items labelled before the
+// first round count from the first), whether it meets the standard by then
+// or not (then as a disagreement). Which items count is
 // then a matter of time alone, not of how hard the crowd found them, so
 // the counted items stay a random sample of the held-out set; set Lag to
 // ⌈Cap / labels per request⌉ − 1 so that items can meet the standard in

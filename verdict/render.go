@@ -166,17 +166,22 @@ func (r *Report) WriteText(w io.Writer) error {
 			au.Errors, au.N, pct(au.Rate), pct(au.Lo), pct(au.Hi), 100*au.Level)
 	}
 	if len(r.Run) > 0 {
-		p("\nSettings of the round:")
+		p("\nSettings of the round (stored unless marked):\n ")
+		col := 1
 		for i, x := range r.Run {
-			sep := ","
-			if i == 0 {
-				sep = ""
-			}
-			src := ""
+			item := x.Key + " " + x.Value
 			if x.Source != "" && x.Source != "stored" {
-				src = " (" + x.Source + ")"
+				item += " (" + x.Source + ")"
 			}
-			p("%s %s %s%s", sep, x.Key, x.Value, src)
+			if i < len(r.Run)-1 {
+				item += ","
+			}
+			if col+1+len([]rune(item)) > 100 {
+				p("\n ")
+				col = 1
+			}
+			p(" %s", item)
+			col += 1 + len([]rune(item))
 		}
 		p("\n")
 	}

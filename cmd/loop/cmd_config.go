@@ -82,14 +82,10 @@ than half the archive. It stays fixed after that.`,
 				return printJSON(cmd, out)
 			}
 			keys := round.Keys()
-			wk, wv := 0, 0
-			for _, x := range list {
-				wk, wv = max(wk, len(x.Key)), max(wv, len(x.Value))
-			}
 			var b strings.Builder
 			fmt.Fprintf(&b, "settings of %s (change one with `loop config %s set KEY VALUE`)\n", args[0], args[0])
 			for i, x := range list {
-				fmt.Fprintf(&b, "  %-*s  %-*s  %-7s  %s; %s\n", wk, x.Key, wv, x.Value, x.Source, keys[i].Doc, keys[i].Want)
+				fmt.Fprintf(&b, "  %s %s (%s)\n      %s; %s\n", x.Key, x.Value, x.Source, keys[i].Doc, keys[i].Want)
 			}
 			outf(cmd, "%s", b.String())
 			return nil

@@ -61,7 +61,7 @@ func TestSettingsOutOfRangeAreUsageErrors(t *testing.T) {
 func TestConfigStoresSettingsWithAnAuditTrail(t *testing.T) {
 	proj, _ := newProject(t)
 	out := mustLoop(t, "config", proj)
-	if !regexp.MustCompile(`(?m)^  max-error\s+0\.05\s+default`).MatchString(out) || !strings.Contains(out, "held-out-min") {
+	if !regexp.MustCompile(`(?m)^  max-error 0\.05 \(default\)`).MatchString(out) || !strings.Contains(out, "held-out-min") {
 		t.Errorf("config before any change:\n%s", out)
 	}
 	if got := mustLoop(t, "config", proj, "set", "max-error", "0.03"); !strings.Contains(got, "max-error 0.05 → 0.03") {
@@ -69,7 +69,7 @@ func TestConfigStoresSettingsWithAnAuditTrail(t *testing.T) {
 	}
 	mustLoop(t, "config", proj, "set", "shares", "model-unsure=0.5,held-out=0.3,reference=0.2")
 	out = mustLoop(t, "config", proj)
-	if !regexp.MustCompile(`(?m)^  max-error\s+0\.03\s+stored`).MatchString(out) || !strings.Contains(out, "held-out=0.3,reference=0.2,model-unsure=0.5") {
+	if !regexp.MustCompile(`(?m)^  max-error 0\.03 \(stored\)`).MatchString(out) || !strings.Contains(out, "held-out=0.3,reference=0.2,model-unsure=0.5") {
 		t.Errorf("config after set:\n%s", out)
 	}
 	var rows []struct{ Key, Value, Source, Range, Doc string }
