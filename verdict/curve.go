@@ -39,6 +39,10 @@ type PowerLaw struct {
 	C   float64 `json:"c"` // the error floor as n → ∞
 	SSE float64 `json:"sse"`
 	R2  float64 `json:"r2"` // 1 − SSE / Σ(e − ē)²
+	// Fitted says the fit is good enough to show (R² ≥ the minimum); an
+	// estimate of 0 more labels (the target already reached) may come
+	// without one.
+	Fitted bool `json:"fitted"`
 	// Points is the number of points fitted, Spent the labels of the last.
 	Points int `json:"points"`
 	Spent  int `json:"spent"`
@@ -91,12 +95,13 @@ var ErrNoEstimate = errors.New("no estimate yet")
 // three are refined by Nelder–Mead (gonum optimize) over a bounded
 // reparametrisation, and the least sum of squares wins.
 //
-// It returns an error wrapping ErrNoEstimate, saying why, when: fewer than
-// MinPoints points with distinct label counts; the errors do not vary; the
-// fit explains less than MinR2 of their variance; the floor c is at or
-// above the target; n* lies beyond 3× the labels spent (no extrapolation
-// further than that); or n* exceeds Cap. When the last point already meets
-// the target, the estimate is 0 more labels. The interval of More is the
+// When the last point (the most labels) already meets the target, the
+// estimate is 0 more labels. Otherwise it returns an error wrapping
+// ErrNoEstimate, saying why, when: fewer than MinPoints points with
+// distinct label counts; the errors do not vary; the fit explains less than
+// MinR2 of their variance; the floor c is at or above the target; n* lies
+// beyond 3× the labels spent (no extrapolation further than that); or n*
+// exceeds Cap. The interval of More is the
 // percentile bootstrap over the points (resampled with replacement, refitted,
 // n* taken as +∞ when a resample's floor is at or above the target).
 // Points with labels ≤ 0 or errors outside [0, 1] are an error.
@@ -137,15 +142,17 @@ func FitCurve(pts []CurvePoint, o CurveOptions) (PowerLaw, error) {
 	}
 	f := fitPower(pts, last.Error)
 	f.Points, f.Spent, f.Target, f.Level = len(pts), last.Labels, o.Target, o.Level
-	if f.sst == 0 {
+	f.Fitted = f.sst > 0 && f.R2 >= o.MinR2
+	if f.sst == 0 && last.Error > o.Target {
 		return PowerLaw{}, fmt.Errorf("%w: the error has not changed between rounds (%.3f throughout)", ErrNoEstimate, last.Error)
+	}
+	if last.Error <= o.Target {
+		// Reached: no extrapolation needed, whatever the fit.
+		f.Reachable, f.LabelsAt, f.More, f.MoreLo, f.MoreHi = true, last.Labels, 0, 0, 0
+		return f.PowerLaw, nil
 	}
 	if f.R2 < o.MinR2 {
 		return PowerLaw{}, fmt.Errorf("%w: the power law fits the %d points poorly (R² %.2f < %.2f)", ErrNoEstimate, len(pts), f.R2, o.MinR2)
-	}
-	if last.Error <= o.Target {
-		f.Reachable, f.LabelsAt, f.More, f.MoreLo, f.MoreHi = true, last.Labels, 0, 0, 0
-		return f.PowerLaw, nil
 	}
 	nstar := f.at(o.Target)
 	limit := 3 * float64(last.Labels)

@@ -140,7 +140,7 @@ func (r *Report) plotCurve() (template.HTML, error) {
 			lo, hi = math.Min(lo, float64(q.Labels)), math.Max(hi, float64(q.Labels))
 		}
 	}
-	if f := r.Fit; f != nil {
+	if f := r.Fit; f != nil && f.Fitted {
 		xmax := math.Max(hi, float64(f.LabelsAt))
 		var fx plotter.XYs
 		for i := 0; i <= 100; i++ {
@@ -421,7 +421,7 @@ The median annotator agrees with the others on {{pct .MedianAgreement}} of their
 {{if .R.Curve}}
 <h2>Learning curve</h2>
 <p class="muted">Each round's model scored on one fixed evaluation set (the held-out items that meet the reference standard now and that every round's model scored), against the labels spent by that round.</p>
-{{if .R.Fit}}{{with .R.Fit}}<p>Inverse power law err(n) = {{g4 .A}}·n<sup>−{{g4 .B}}</sup> + {{g4 .C}} (R² {{f3 .R2}}; exponent constrained to [0.05, 2], floor to [0, the error reached]).
+{{if .R.Fit}}{{with .R.Fit}}<p>{{if .Fitted}}Inverse power law err(n) = {{g4 .A}}·n<sup>−{{g4 .B}}</sup> + {{g4 .C}} (R² {{f3 .R2}}; exponent constrained to [0.05, 2], floor to [0, the error reached]).{{end}}
 {{if eq .More 0}}The target error {{pct .Target}} is reached with the {{.Spent}} labels spent.{{else}}The target error {{pct .Target}} is reached at about {{.LabelsAt}} labels: {{.More}} more, {{pct .Level}} bootstrap interval {{more .}}.{{end}}</p>{{end}}
 {{else}}<p>{{.R.FitError}}</p>{{end}}
 <figure>{{.CurvePlot}}</figure>

@@ -112,7 +112,7 @@ func (r *Report) WriteText(w io.Writer) error {
 		p("  threshold %.4g: %d held-out items (%s), %d disagreements (%s), upper bound %s; archive coverage %s\n",
 			th.Threshold, th.N, pct(th.Coverage), th.Errors, pct(th.Risk), pct(th.Upper), pct(th.Archive))
 		if th.Unsettled > 0 {
-			p("  of those, %d items below the reference standard count as disagreements until they meet it\n", th.Unsettled)
+			p("  of those, %d below the reference standard count as disagreements until they meet it\n", th.Unsettled)
 		}
 	} else {
 		p("  no threshold passed\n")
@@ -151,7 +151,9 @@ func (r *Report) WriteText(w io.Writer) error {
 		}
 		p("\n")
 		if f := r.Fit; f != nil {
-			p("  err(n) = %.4g·n^−%.4g + %.4g (R² %.2f)\n", f.A, f.B, f.C, f.R2)
+			if f.Fitted {
+				p("  err(n) = %.4g·n^−%.4g + %.4g (R² %.2f)\n", f.A, f.B, f.C, f.R2)
+			}
 			if f.More == 0 {
 				p("  target error %.3g reached with the %d labels spent\n", f.Target, f.Spent)
 			} else {
