@@ -204,7 +204,7 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 		}
 		pool.Features = spread(x, idx, len(c.p.items))
 	}
-	batch, err := pickBatch(c.p, pool, rc, len(c.sn.Consensus), c.machine)
+	batch, err := pickBatch(c.p, pool, rc, c.r.Round, c.machine)
 	if err != nil {
 		return nil, err
 	}

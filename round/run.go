@@ -337,7 +337,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 		}
 		pool.Committee = c
 	}
-	batch, err := pickBatch(p, pool, cfg, len(cr.cs), machine)
+	batch, err := pickBatch(p, pool, cfg, s.Round, machine)
 	if err != nil {
 		return nil, err
 	}
@@ -750,8 +750,9 @@ func buildPool(p *project, cr *consensusResult, sc *scores, kind handoff.Kind, h
 	return pool
 }
 
-// pickBatch plans the batch from the settings and picks it.
-func pickBatch(p *project, pool selector.Pool, cfg Config, salt int, machine map[string]handoff.MachineLabel) ([]BatchItem, error) {
+// pickBatch plans the batch from the settings and picks it, seeded by the
+// settings' seed and the round's number.
+func pickBatch(p *project, pool selector.Pool, cfg Config, roundN int, machine map[string]handoff.MachineLabel) ([]BatchItem, error) {
 	plan, err := selector.PlanShares(cfg.Batch, cfg.Shares)
 	if err != nil {
 		return nil, err
@@ -771,7 +772,7 @@ func pickBatch(p *project, pool selector.Pool, cfg Config, salt int, machine map
 	plan.Strategy, plan.Beta, plan.Diversity, plan.Balanced = cfg.Strategy, cfg.Beta, cfg.Diversity, cfg.Balanced
 	plan.SplitBelow = cfg.Consensus.Uncertain
 	plan.MaxLabels = cfg.Standard.Cap
-	plan.Seed = cfg.Seed + 1000003*uint64(salt)
+	plan.Seed = cfg.Seed + 1000003*uint64(roundN)
 	return picksToBatch(p, pool, plan, machine)
 }
 

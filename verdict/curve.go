@@ -90,7 +90,8 @@ var ErrNoEstimate = errors.New("no estimate yet")
 //
 //	n* = (a / (target − c))^(1/b).
 //
-// Fitting: for each b on a log-spaced grid of 200 values the model is linear
+// Fitting: for each b on a log-spaced grid of 200 values (60 for the
+// bootstrap's refits) the model is linear
 // in (a, c), solved in closed form and clamped to the constraints; the best
 // three are refined by Nelder–Mead (gonum optimize) over a bounded
 // reparametrisation, and the least sum of squares wins.
@@ -102,8 +103,9 @@ var ErrNoEstimate = errors.New("no estimate yet")
 // MinR2 of their variance; the floor c is at or above the target; n* lies
 // beyond 3× the labels spent (no extrapolation further than that); or n*
 // exceeds Cap. The interval of More is the
-// percentile bootstrap over the points (resampled with replacement, refitted,
-// n* taken as +∞ when a resample's floor is at or above the target).
+// percentile bootstrap over the points (resampled with replacement, refitted
+// on the grid alone, n* taken as +∞ when a resample's floor is at or above
+// the target).
 // Points with labels ≤ 0 or errors outside [0, 1] are an error.
 func FitCurve(pts []CurvePoint, o CurveOptions) (PowerLaw, error) {
 	if !(o.Target > 0 && o.Target < 1) {
@@ -140,7 +142,7 @@ func FitCurve(pts []CurvePoint, o CurveOptions) (PowerLaw, error) {
 			last = p
 		}
 	}
-	f := fitPower(pts, last.Error)
+	f := fitPower(pts, last.Error, true)
 	f.Points, f.Spent, f.Target, f.Level = len(pts), last.Labels, o.Target, o.Level
 	f.Fitted = f.sst > 0 && f.R2 >= o.MinR2
 	if f.sst == 0 && last.Error > o.Target {
@@ -167,7 +169,7 @@ func FitCurve(pts []CurvePoint, o CurveOptions) (PowerLaw, error) {
 	f.Reachable = true
 	f.LabelsAt = int(math.Ceil(nstar))
 	f.More = max(0, f.LabelsAt-last.Labels)
-	// Bootstrap over the points.
+	// Bootstrap over the points (refits on the grid of b only).
 	rng := rand.New(rand.NewPCG(o.Seed, 0xc0de))
 	var more []float64
 	res := make([]CurvePoint, len(pts))
@@ -180,7 +182,7 @@ func FitCurve(pts []CurvePoint, o CurveOptions) (PowerLaw, error) {
 		if len(seen) < 3 {
 			continue
 		}
-		g := fitPower(res, last.Error)
+		g := fitPower(res, last.Error, false)
 		m := g.at(o.Target) - float64(last.Labels)
 		more = append(more, math.Max(0, m))
 	}
@@ -218,8 +220,9 @@ func (f fitted) at(target float64) float64 {
 }
 
 // fitPower fits a·n^(−b) + c with a ≥ 0, b in [MinExponent, MaxExponent],
-// 0 ≤ c ≤ cmax.
-func fitPower(pts []CurvePoint, cmax float64) fitted {
+// 0 ≤ c ≤ cmax: on the grid of b alone (the bootstrap's refits), or refined
+// by Nelder–Mead.
+func fitPower(pts []CurvePoint, cmax float64, refine bool) fitted {
 	ns := make([]float64, len(pts))
 	es := make([]float64, len(pts))
 	mean := 0.0
@@ -284,9 +287,12 @@ func fitPower(pts []CurvePoint, cmax float64) fitted {
 	}
 	type start struct{ a, b, c, sse float64 }
 	var starts []start
-	const grid = 200
+	grid := 200
+	if !refine {
+		grid = 60
+	}
 	for i := 0; i < grid; i++ {
-		b := MinExponent * math.Pow(MaxExponent/MinExponent, float64(i)/(grid-1))
+		b := MinExponent * math.Pow(MaxExponent/MinExponent, float64(i)/float64(grid-1))
 		a, c := solve(b)
 		starts = append(starts, start{a, b, c, sse(a, b, c)})
 	}
@@ -314,7 +320,11 @@ func fitPower(pts []CurvePoint, cmax float64) fitted {
 		a, b, c := unpack(x)
 		return sse(a, b, c)
 	}}
-	for _, s := range starts[:3] {
+	nstarts := 3
+	if !refine {
+		nstarts = 0
+	}
+	for _, s := range starts[:nstarts] {
 		x0 := []float64{math.Log(math.Max(s.a, 1e-12)), logit((s.b - MinExponent) / (MaxExponent - MinExponent)), 0}
 		if cmax > 0 {
 			x0[2] = logit(s.c / cmax)

@@ -439,7 +439,7 @@ func TestFitCurve(t *testing.T) {
 	if _, err := FitCurve(pts, CurveOptions{Target: 0.05}); !errors.Is(err, ErrNoEstimate) || !strings.Contains(err.Error(), "levels off") {
 		t.Errorf("floor above the target: %v", err)
 	}
-	g := fitPower(pts, pts[len(pts)-1].Error)
+	g := fitPower(pts, pts[len(pts)-1].Error, true)
 	if g.C < 0 || g.C > pts[len(pts)-1].Error || g.B < MinExponent || g.B > MaxExponent || !near(g.C, 0.08, 0.015) {
 		t.Errorf("constrained fit %+v: floor near 0.08 within [0, last error], exponent in range", g.PowerLaw)
 	}
