@@ -354,7 +354,7 @@ figure{margin:1rem 0}
 </head>
 <body>
 <h1>{{.Title}}</h1>
-<p class="muted">{{.R.Agreement.N}} held-out items meet the reference standard; {{len .R.Classes}} classes. Look {{.R.Settings.Look}}: α = {{.R.Settings.Alpha}} spent across looks by {{.R.Settings.Spending}}; this look tests at α<sub>{{.R.Settings.Look}}</sub> = {{g4 .R.Settings.LookAlpha}}.</p>
+<p class="muted">{{.R.Agreement.N}} held-out items meet the reference standard; {{len .R.Classes}} classes. Look {{.R.Settings.Look}}: α = {{g4 .R.Settings.Alpha}} spent across looks by {{.R.Settings.Spending}}; this look tests at α<sub>{{.R.Settings.Look}}</sub> = {{g4 .R.Settings.LookAlpha}}.</p>
 {{with .R.Decision}}
 <div class="{{if .Go}}go{{else}}notyet{{end}}">
 <strong>{{$.Headline}}</strong>
@@ -365,7 +365,7 @@ figure{margin:1rem 0}
 
 {{with .R.Standard}}
 <h2>Reference standard</h2>
-<p>The held-out set is a random {{pct .Share}} of the archive ({{.Members}} items). An item meets the reference standard when it is gold, when its consensus posterior reaches {{.Level}}, or once it has {{.Cap}} labels; a labelled item counts from round {{.Lag}} after the one that first saw it labelled, met or not, so that which items count depends on time alone. {{.Met}} count and meet it, {{.Below}} count but do not yet (as disagreements wherever a threshold covers them), {{.Pending}} were labelled too recently to count, {{.Waiting}} have no labels yet.</p>
+<p>The held-out set is a random {{pct .Share}} of the archive ({{.Members}} items). An item meets the reference standard when it is gold, when its consensus posterior reaches {{.Level}}, or once it has {{.Cap}} labels; a labelled item counts from {{.Lag}} round(s) after the round that first saw it labelled (from the first round for items labelled before it), met or not, so that which items count depends on time alone. {{.Met}} count and meet it, {{.Below}} count but do not yet (as disagreements wherever a threshold covers them), {{.Pending}} were labelled too recently to count, {{.Waiting}} have no labels yet.</p>
 {{end}}
 <h2>Agreement of machine and reference</h2>
 {{with .R.Agreement}}

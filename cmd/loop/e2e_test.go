@@ -213,6 +213,24 @@ func TestRealTextsWithARealisticCrowd(t *testing.T) {
 		tm.ask(ids)
 	}
 	v := res.Verdict
+	{
+		s := tm.store()
+		cs, _, err := s.Consensus()
+		s.Close()
+		if err != nil {
+			t.Fatal(err)
+		}
+		wrong, n := 0, 0
+		for _, c := range cs {
+			if c.Labels > 0 && c.Method != "gold" {
+				n++
+				if c.Class != tm.truth[c.Item] {
+					wrong++
+				}
+			}
+		}
+		t.Logf("the consensus errs against the truth on %d of %d crowd-labelled items (%.1f%%)", wrong, n, 100*float64(wrong)/float64(max(n, 1)))
+	}
 	if goAt == 0 {
 		th := v.Threshold
 		t.Logf("TARGET MISSED: NOT YET after 15 rounds at max-error %.2f (held back by %v); the last look (%d, α_r %.2g) stopped at %s",
