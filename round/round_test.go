@@ -481,3 +481,42 @@ func TestPlanRedundancyHelps(t *testing.T) {
 		t.Errorf("plan accuracies %v: more labels and Dawid–Skene should help", acc)
 	}
 }
+
+func TestFoldThatCannotFitIsAnError(t *testing.T) {
+	// Every item of class "wildlife" shares one parent, so the grouped
+	// fold that holds that parent out trains on one class only: that is an
+	// error that says so, not uniform probabilities counted as predictions.
+	st, err := store.Create(t.TempDir(), sim.TopicCodebook(), "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	var items []handoff.Item
+	var labels []handoff.Label
+	for i := range 60 {
+		it := handoff.Item{ID: fmt.Sprintf("i%02d", i), Kind: handoff.KindText, Parent: fmt.Sprintf("p%02d", i/3), Text: fmt.Sprintf("a report about oil on the river number %d", i)}
+		class := "pollution"
+		if i < 6 {
+			it.Parent, it.Text, class = "birds", fmt.Sprintf("a heron and a kingfisher seen at site %d", i), "wildlife"
+		}
+		items = append(items, it)
+		for a := range 3 {
+			labels = append(labels, handoff.Label{Item: it.ID, Annotator: fmt.Sprintf("a%d", a), Class: class})
+		}
+	}
+	if _, err := st.PutItems(items, false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := st.PutLabels(labels, "test"); err != nil {
+		t.Fatal(err)
+	}
+	cc := DefaultConsensus()
+	cc.Method = "majority"
+	if _, err := Consensus(st, cc, "test"); err != nil {
+		t.Fatal(err)
+	}
+	_, err = Train(st, TrainConfig{Folds: 5}, "test")
+	if err == nil || !strings.Contains(err.Error(), "cross-validation fold") || !strings.Contains(err.Error(), "one class") {
+		t.Fatalf("train with a fold of one class: %v, want an error naming the fold", err)
+	}
+}
