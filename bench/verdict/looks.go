@@ -121,12 +121,12 @@ func RunLooks(cfg LooksConfig) (LooksResult, error) {
 	if cfg.Level == 0 {
 		cfg.Level = 0.95
 	}
+	if cfg.Method == "" {
+		cfg.Method = round.DefaultConsensus().Method
+	}
 	out := LooksResult{Config: cfg, Rules: make([]RuleResult, len(Rules))}
 	for k, r := range Rules {
 		out.Rules[k].Rule = r.Name
-	}
-	if cfg.Method == "" {
-		cfg.Method = round.DefaultConsensus().Method
 	}
 	cb := handoff.Codebook{Name: "sim", Question: "Which class?"}
 	for c := range cfg.Classes {
