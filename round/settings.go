@@ -202,7 +202,8 @@ func onOff(b bool) string {
 
 func fmtFloat(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 
-// Methods are the consensus methods a setting may name.
+// Methods are the consensus methods a setting may name, besides the
+// default consensus's own (DefaultConsensus).
 var Methods = []string{crowd.MethodDawidSkene, crowd.MethodMajority, crowd.MethodOneCoin}
 
 // keys lists every setting, in the order `loop config` shows them.
@@ -326,7 +327,7 @@ func init() {
 			func(c *Config) *float64 { return &c.Train.Lambda }, func(x float64) bool { return x > 0 }),
 		integer("folds", "cross-validation folds (items of one parent stay together)", "an integer from 2 to 20",
 			func(c *Config) *int { return &c.Train.Folds }, func(x int) bool { return x >= 2 && x <= 20 }),
-		choice("method", "consensus method", Methods, func(c *Config) *string { return &c.Consensus.Method }),
+		methodKey(),
 		text("debias", "correct a bias shared by everyone that depends on this covariate", func(c *Config) *string { return &c.Consensus.Debias }),
 		text("reference-stratum", "the covariate value taken as unbiased when there is no gold", func(c *Config) *string { return &c.Consensus.Reference }),
 		flag("cleaning", "apply the cleaning rules at all", func(c *Config) *bool { return &c.Consensus.NoCleaning }, true),
@@ -415,6 +416,34 @@ func ParseShares(v string) (map[selector.Reason]float64, error) {
 		return nil, errors.New("all shares are 0")
 	}
 	return m, nil
+}
+
+// methodKey is the consensus method: one of Methods or the default
+// consensus's method, whichever that is.
+func methodKey() *Key {
+	allowed := func() []string {
+		m := slices.Clone(Methods)
+		if d := DefaultConsensus().Method; d != "" && !slices.Contains(m, d) {
+			m = append([]string{d}, m...)
+		}
+		return m
+	}
+	k := &Key{Name: "method", Doc: "consensus method (default: " + DefaultConsensus().Method + ")", Want: "one of " + strings.Join(allowed(), ", ")}
+	k.get = func(c *Config) string {
+		if c.Consensus.Method == "" {
+			return DefaultConsensus().Method
+		}
+		return c.Consensus.Method
+	}
+	k.set = func(c *Config, v string) error {
+		v = strings.TrimSpace(v)
+		if !slices.Contains(allowed(), v) {
+			return bad(k, v)
+		}
+		c.Consensus.Method = v
+		return nil
+	}
+	return k
 }
 
 func seedKey() *Key {
