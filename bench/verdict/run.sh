@@ -69,6 +69,16 @@ GO within 15 rounds; a GO "exceeds" when the realised error of the autolabelled 
 machines; "one look" tests every round at the full α, "plug-in" uses no bound at all.
 $(cat "$tmp/looks.md")
 
+How to read these tables: the three rules that spend α across looks keep the guarantee whatever
+the dependence between looks; the one with the most GO verdicts at the looks where a GO is
+plausible is the one to use, and α/(r(r+1)) (ours) beats α·2^−r, which spends most of α on the
+first looks, and α·6/(π²r²), which spends more on look 1. "One look" shows what testing every
+round at the full α buys and costs; "plug-in" shows why a bound is needed at all. With the
+Dawid–Skene default on crowds this sparse the reference itself errs on about 6% of items, so a
+GO at max-error 0.05 is out of reach for every rule with a bound — the reference, not the
+machine, is then what limits the handoff (see the consensus issue); with a cleaner reference
+(one-coin, about 1%) GO verdicts come and stay honest.
+
 ## Clopper–Pearson bounds against scipy (peer)
 
 $cpn (k, n) pairs, n from 1 to 10,000; two-sided 95% interval and one-sided 95% upper bound.
