@@ -233,7 +233,7 @@ func TestRealTextsWithARealisticCrowd(t *testing.T) {
 	}
 	if goAt == 0 {
 		th := v.Threshold
-		t.Logf("TARGET MISSED: NOT YET after 15 rounds at max-error %.2f (held back by %v); the last look (%d, α_r %.2g) stopped at %s",
+		t.Logf("TARGET MISSED: NOT YET after 15 rounds at max-error %.2f (held back by %v); the last look (%d, α_r %.2g): %s",
 			v.Settings.MaxError, v.Decision.HeldBy, v.Settings.Look, v.Settings.LookAlpha, th.Stop)
 	} else {
 		t.Logf("GO at round %d: %s", goAt, v.Headline())
