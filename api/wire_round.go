@@ -15,26 +15,32 @@ import (
 // roundsAvailable says whether this build can run rounds.
 const roundsAvailable = true
 
-// RoundSummary is what a finished round reports to the board.
+// RoundSummary is what a finished round reports to the board. Unchanged
+// is set (and nothing else) when no label was new since the last round, so
+// the round changed nothing.
 type RoundSummary struct {
-	Round    int    `json:"round"`
-	Model    string `json:"model"`
-	HeldOut  int    `json:"held_out"`
-	Pool     int    `json:"pool"`
-	Batch    int    `json:"batch"`
-	Go       bool   `json:"go"`
-	Headline string `json:"headline"`
+	Round     int    `json:"round"`
+	Look      int    `json:"look"`
+	Model     string `json:"model"`
+	HeldOut   int    `json:"held_out"`
+	Pool      int    `json:"pool"`
+	Batch     int    `json:"batch"`
+	Go        bool   `json:"go"`
+	Headline  string `json:"headline"`
+	Unchanged bool   `json:"unchanged,omitempty"`
 }
 
-// runRound runs one round (round.Run with its defaults and Config.Seed).
+// runRound runs one round with the project's stored settings (the same
+// ones `loop round` uses; `loop config DIR` shows them).
 func runRound(ctx context.Context, sv *Server, source string) (json.RawMessage, error) {
-	cfg := round.DefaultConfig()
-	cfg.Seed = sv.cfg.Seed
-	r, err := round.Run(sv.st, cfg, source)
+	r, err := round.RunWith(sv.st, round.RunOptions{}, source)
+	if errors.Is(err, round.ErrNoNewLabels) {
+		return json.Marshal(RoundSummary{Unchanged: true, Headline: err.Error()})
+	}
 	if err != nil {
 		return nil, err
 	}
-	s := RoundSummary{Round: r.Round, Model: r.Model, HeldOut: r.HeldOut, Pool: r.Pool, Batch: len(r.Batch)}
+	s := RoundSummary{Round: r.Round, Look: r.Look, Model: r.Model, HeldOut: r.HeldOut, Pool: r.Pool, Batch: len(r.Batch)}
 	if r.Verdict != nil {
 		s.Go = r.Verdict.Decision.Go
 		s.Headline = r.Verdict.Headline()

@@ -1,112 +1,146 @@
 package round
 
 import (
+	"encoding/json"
+	"errors"
 	"fmt"
+	"slices"
+	"strings"
 
 	"handoff"
-	"handoff/features"
+	"handoff/learner"
 	"handoff/selector"
 	"handoff/store"
 )
 
 // NextConfig says which items to send to people next.
 type NextConfig struct {
-	// N is the batch size (0 means 200); Shares, Strategy, Beta,
-	// Diversity and Balanced are as in Config.
-	N         int                         `json:"n"`
-	Shares    map[selector.Reason]float64 `json:"shares,omitempty"`
-	Strategy  selector.Strategy           `json:"strategy"`
-	Beta      float64                     `json:"beta,omitempty"`
-	Diversity selector.Metric             `json:"diversity,omitempty"`
-	Balanced  bool                        `json:"balanced,omitempty"`
-	// Audit > 0 asks instead for that many random machine-labelled items,
-	// to measure the real error after handoff.
-	Audit int `json:"audit,omitempty"`
+	// Overrides change batch settings for this batch only (batch, shares,
+	// strategy, diversity, density, balanced, seed). Without them Next
+	// returns exactly the batch the latest round chose; with them it picks
+	// the batch again from the latest round's scores and stores it as that
+	// round's batch (so the board and the file agree).
+	Overrides []Override
+	// Audit > 0 asks instead for that many random machine-labelled items
+	// not audited before, to measure the real error after handoff.
+	Audit int
 	// BelowThreshold asks instead for the items autolabel left below the
-	// threshold.
-	BelowThreshold bool   `json:"below_threshold,omitempty"`
-	Seed           uint64 `json:"seed"`
+	// threshold; N > 0 caps how many.
+	BelowThreshold bool
+	N              int
 }
 
-// current is the latest model applied to the stored consensus.
+// batchKeys are the settings Next may override.
+var batchKeys = []string{"batch", "shares", "strategy", "diversity", "density", "balanced", "seed"}
+
+// current is the latest round as later commands see it: the snapshot, the
+// round record, its scores and its batch.
 type current struct {
+	sn      *store.Snapshot
 	p       *project
-	cr      *consensusResult
-	t       *trained
-	proba   []float64
 	s       *state
 	r       *Result
+	sc      *scores
+	batch   []BatchItem
 	machine map[string]handoff.MachineLabel
-	x       features.Matrix // feature rows of the items of the model's kind…
-	idx     []int           // …at these item positions
 }
 
-func loadCurrent(st *store.Store) (*current, error) {
-	m, r, err := LatestMachine(st)
-	if err != nil {
-		return nil, err
-	}
-	p, err := load(st)
-	if err != nil {
-		return nil, err
-	}
-	cs, _, err := StoredConsensus(st)
-	if err != nil {
-		return nil, err
-	}
-	s, err := loadState(st)
-	if err != nil {
-		return nil, err
-	}
-	post, nl := posteriorsOf(p, cs)
-	cr := &consensusResult{posterior: post, nlabels: make([]int32, len(nl))}
-	for i, n := range nl {
-		cr.nlabels[i] = int32(n)
-	}
-	cr.cs = cs
-	K := len(p.cb.Classes)
-	// Feature rows of every item of the model's kind, in item order.
-	var idx []int
-	var items []handoff.Item
-	for i, it := range p.items {
-		if it.Kind == m.Kind {
-			idx = append(idx, i)
-			items = append(items, it)
+func loadCurrent(st *store.Store, withModel bool) (*current, error) {
+	opt := store.SnapshotOptions{Times: true}
+	if withModel {
+		opt.ModelOf = func(rec []byte) (string, error) {
+			if rec == nil {
+				return "", nil
+			}
+			var r struct {
+				Model string `json:"model"`
+			}
+			if err := json.Unmarshal(rec, &r); err != nil {
+				return "", err
+			}
+			return r.Model, nil
 		}
 	}
-	x, err := m.Featurise(items)
+	sn, err := st.Snapshot(opt)
 	if err != nil {
 		return nil, err
 	}
-	pr := make([]float64, len(items)*K)
-	m.ProbaInto(pr, x)
-	proba := make([]float64, len(p.items)*K)
-	for j, i := range idx {
-		copy(proba[i*K:(i+1)*K], pr[j*K:(j+1)*K])
+	if sn.Round == nil {
+		return nil, fmt.Errorf("%w: no round yet; run `loop round DIR` first", ErrNothing)
 	}
-	machine := map[string]handoff.MachineLabel{}
-	if err := st.MachineLabels(func(ml handoff.MachineLabel) error { machine[ml.Item] = ml; return nil }); err != nil {
+	c := &current{sn: sn, machine: machineMap(sn.Machine)}
+	if c.r, err = decodeResult(*sn.Round); err != nil {
 		return nil, err
 	}
-	return &current{p: p, cr: cr, t: &trained{m: m}, proba: proba, s: s, r: r, machine: machine, x: x, idx: idx}, nil
+	if c.p, err = projectOf(sn); err != nil {
+		return nil, err
+	}
+	if c.s, err = decodeState(sn.State[stateName]); err != nil {
+		return nil, err
+	}
+	if c.sc, err = decodeScores(sn.State[scoresState]); err != nil {
+		return nil, err
+	}
+	if c.sc == nil || c.sc.Round != c.r.Round {
+		return nil, fmt.Errorf("%w: round %d has no stored scores (it was run by an older loop); run `loop round DIR --force`", ErrNothing, c.r.Round)
+	}
+	if sn.Selection != nil && sn.Selection.N == c.r.Round {
+		if err := json.Unmarshal(sn.Selection.Data, &c.batch); err != nil {
+			return nil, fmt.Errorf("reading round %d's batch: %w", c.r.Round, err)
+		}
+	}
+	return c, nil
 }
 
-// Next picks the next batch with the latest round's model and returns it.
-// An audit batch is remembered, so that the verdict can report the error of
-// machine labels once people have labelled the audited items.
+// labelCounts returns the crowd labels per item position as stored now.
+func (c *current) labelCounts() []int {
+	n := make([]int, len(c.p.items))
+	for _, i := range c.p.labels.Item {
+		n[i]++
+	}
+	return n
+}
+
+// Next returns the next batch: the latest round's batch as it chose it (the
+// same items with the same reasons), or with NextConfig.Overrides a batch
+// picked again from the latest round's scores, or an audit, or the items
+// below the threshold. An audit batch is remembered, so that the verdict can
+// report the error of machine labels once people have labelled them.
 func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
-	c, err := loadCurrent(st)
+	for _, o := range cfg.Overrides {
+		if !slices.Contains(batchKeys, o.Key) {
+			return nil, &SettingError{Key: o.Key, Value: o.Value, Want: "one of the batch settings " + strings.Join(batchKeys, ", ")}
+		}
+	}
+	if cfg.Audit < 0 || cfg.N < 0 {
+		return nil, &SettingError{Key: "audit", Value: fmt.Sprint(cfg.Audit), Want: "an integer ≥ 1"}
+	}
+	rc := DefaultConfig()
+	for _, o := range cfg.Overrides { // check the values before touching the store
+		if err := rc.Set(o.Key, o.Value); err != nil {
+			return nil, err
+		}
+	}
+	needModel := false
+	for _, o := range cfg.Overrides {
+		needModel = needModel || o.Key == "diversity" && o.Value != "off" || o.Key == "density" && o.Value != "0"
+	}
+	c, err := loadCurrent(st, needModel)
 	if err != nil {
 		return nil, err
 	}
-	if cfg.BelowThreshold {
+	switch {
+	case cfg.Audit > 0:
+		return c.audit(st, cfg.Audit, source)
+	case cfg.BelowThreshold:
 		if len(c.s.Queue) == 0 {
 			return nil, fmt.Errorf("%w: no items wait below the threshold; run `loop autolabel DIR` first", ErrNothing)
 		}
+		n := c.labelCounts()
 		var out []BatchItem
 		for _, id := range c.s.Queue {
 			i, ok := c.p.index[id]
-			if !ok || c.cr.nlabels[i] > 0 {
+			if !ok || n[i] > 0 {
 				continue
 			}
 			it := c.p.items[i]
@@ -116,50 +150,138 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 			}
 		}
 		return out, nil
+	case len(cfg.Overrides) == 0:
+		return c.batch, nil
 	}
-	rc := c.r.Config
-	if cfg.N > 0 {
-		rc.Batch = cfg.N
+	// Pick again with the changed batch settings.
+	rc = c.r.Config
+	for _, o := range cfg.Overrides {
+		if err := rc.Set(o.Key, o.Value); err != nil {
+			return nil, err
+		}
 	}
-	if cfg.Shares != nil {
-		rc.Shares = cfg.Shares
+	if err := rc.Validate(); err != nil {
+		return nil, err
 	}
-	if cfg.Strategy != "" {
-		rc.Strategy = cfg.Strategy
+	if rc.Strategy == selector.Committee {
+		return nil, fmt.Errorf("the committee strategy refits the model: run `loop round DIR --strategy committee --force` instead")
 	}
-	rc.Beta, rc.Diversity, rc.Balanced = cfg.Beta, cfg.Diversity, cfg.Balanced
-	if cfg.Seed != 0 {
-		rc.Seed = cfg.Seed
-	}
-	if cfg.Audit > 0 && len(c.machine) == 0 {
-		return nil, fmt.Errorf("%w: no machine labels to audit; run `loop autolabel DIR` first", ErrNothing)
-	}
-	if rc.Diversity != "" || rc.Beta != 0 {
-		c.t.all = spread(c.x, c.idx, len(c.p.items)) // rows by item, for density and diversity
-	}
-	held := setOf(c.s.HeldOut)
-	pending := setOf(c.s.PendingHeldOut)
-	batch, err := pick(c.p, c.cr, c.t, c.proba, c.t.m.Kind, held, pending, c.machine, rc, cfg.Audit)
+	cr, err := c.storedConsensus(rc)
 	if err != nil {
 		return nil, err
 	}
-	changed := false
-	for _, b := range batch {
-		switch b.Reason {
-		case string(selector.ReasonAudit):
-			c.s.Audit = append(c.s.Audit, b.Item)
-			changed = true
-		case string(selector.ReasonHeldOut):
-			if !pending[b.Item] {
-				c.s.PendingHeldOut = append(c.s.PendingHeldOut, b.Item)
-				changed = true
+	K := len(c.p.cb.Classes)
+	meets := func(i int) bool {
+		if c.p.gold[i] >= 0 {
+			return true
+		}
+		if cr.nlabels[i] == 0 {
+			return false
+		}
+		row := cr.posterior[i*K : (i+1)*K]
+		return row[argmax(row)] >= rc.Standard.Level || int(cr.nlabels[i]) >= rc.Standard.Cap
+	}
+	if c.s.HeldOut == nil {
+		return nil, fmt.Errorf("the rounds' state has no held-out set; run `loop round DIR --force`")
+	}
+	pool := buildPool(c.p, cr, c.sc, c.s.HeldOut.Kind, c.s.HeldOut, c.machine, meets)
+	if needModel {
+		m, err := learner.ReadMachine(bytesReader(c.sn.Model))
+		if err != nil {
+			return nil, fmt.Errorf("reading model %s: %w", c.r.Model, err)
+		}
+		var idx []int
+		var items []handoff.Item
+		for i, it := range c.p.items {
+			if it.Kind == m.Kind {
+				idx = append(idx, i)
+				items = append(items, it)
+			}
+		}
+		x, err := m.Featurise(items)
+		if err != nil {
+			return nil, err
+		}
+		pool.Features = spread(x, idx, len(c.p.items))
+	}
+	batch, err := pickBatch(c.p, pool, rc, c.r.Round, c.machine)
+	if err != nil {
+		return nil, err
+	}
+	b, err := json.Marshal(batch)
+	if err != nil {
+		return nil, err
+	}
+	var desc []string
+	for _, o := range cfg.Overrides {
+		desc = append(desc, o.Key+"="+o.Value)
+	}
+	err = st.CommitRound(store.RoundWrite{Round: c.r.Round, Selection: b, Action: "selection.put",
+		Detail: fmt.Sprintf("round %d's batch picked again with %s: %d items", c.r.Round, strings.Join(desc, ", "), len(batch))}, source)
+	return batch, err
+}
+
+// storedConsensus lays the stored consensus out per item position; labels
+// added since count as crowd labels without a consensus yet.
+func (c *current) storedConsensus(cfg Config) (*consensusResult, error) {
+	post, nl := posteriorsOf(c.p, c.sn.Consensus)
+	cr := &consensusResult{posterior: post, nlabels: make([]int32, len(nl)), cs: c.sn.Consensus}
+	now := c.labelCounts()
+	K := len(c.p.cb.Classes)
+	for i, n := range nl {
+		cr.nlabels[i] = int32(n)
+		if n == 0 && now[i] > 0 {
+			// Labelled since the round: not unlabelled any more, and not
+			// judged by a consensus that did not see its labels.
+			cr.nlabels[i] = int32(now[i])
+			row := cr.posterior[i*K : (i+1)*K]
+			clear(row)
+			for k := range row {
+				row[k] = 1 / float64(K)
 			}
 		}
 	}
-	if changed {
-		if err := c.s.save(st, source); err != nil {
-			return nil, err
+	return cr, nil
+}
+
+// audit picks n random machine-labelled items that were not audited
+// before and have no crowd labels, and remembers them.
+func (c *current) audit(st *store.Store, n int, source string) ([]BatchItem, error) {
+	if len(c.machine) == 0 {
+		return nil, fmt.Errorf("%w: no machine labels to audit; run `loop autolabel DIR` first", ErrNothing)
+	}
+	counts := c.labelCounts()
+	done := setOf(c.s.Audit)
+	pool := selector.Pool{State: make([]selector.State, len(c.p.items))}
+	open := 0
+	for i, it := range c.p.items {
+		pool.State[i] = selector.Excluded
+		if _, ok := c.machine[it.ID]; ok && counts[i] == 0 && !done[it.ID] && c.p.gold[i] < 0 {
+			pool.State[i] = selector.Machine
+			open++
 		}
+	}
+	if open == 0 {
+		return nil, fmt.Errorf("%w: every machine-labelled item has been audited or labelled by people already", ErrNothing)
+	}
+	plan := selector.Plan{Audit: n, NoRefill: true, Seed: c.r.Config.Seed + 7919*uint64(len(c.s.Audit)+1)}
+	batch, err := picksToBatch(c.p, pool, plan, c.machine)
+	if err != nil {
+		return nil, err
+	}
+	err = st.UpdateState(stateName, "audit.put", source, func(old []byte) ([]byte, string, error) {
+		s, err := decodeState(old)
+		if err != nil {
+			return nil, "", err
+		}
+		for _, b := range batch {
+			s.Audit = append(s.Audit, b.Item)
+		}
+		data, err := s.encode()
+		return data, fmt.Sprintf("%d items sent for audit (%d in all)", len(batch), len(s.Audit)), err
+	})
+	if err != nil {
+		return nil, err
 	}
 	return batch, nil
 }
@@ -180,24 +302,33 @@ type AutolabelReport struct {
 	Threshold float64 `json:"threshold"`
 	Go        bool    `json:"go"`
 	Forced    bool    `json:"forced"`
-	Scored    int     `json:"scored"`   // unlabelled items of the model's kind
+	Scored    int     `json:"scored"`   // items of the model's kind without crowd labels or gold
 	Labelled  int     `json:"labelled"` // machine labels written
 	Queued    int     `json:"queued"`   // below the threshold: left for people
+	Unscored  int     `json:"unscored"` // added since the round: no score yet
 	Bound     float64 `json:"bound"`    // the verdict's upper bound on disagreement at that threshold
 }
 
-// Autolabel writes machine labels for every unlabelled item of the model's
-// kind whose confidence is at or above the threshold and queues the rest for
-// people. Without a GO verdict it refuses unless cfg.Force.
+// ErrThreshold is wrapped by the errors of a threshold outside (0, 1].
+var ErrThreshold = errors.New("threshold")
+
+// Autolabel writes machine labels, with the latest round's scores, for
+// every item of the model's kind without crowd labels or gold whose
+// confidence is at or above the threshold, and queues the rest for people,
+// in one transaction. Without a GO verdict it refuses unless cfg.Force.
 func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelReport, error) {
-	c, err := loadCurrent(st)
+	if cfg.Threshold < 0 || cfg.Threshold > 1 {
+		return nil, &SettingError{Key: "threshold", Value: fmt.Sprint(cfg.Threshold), Want: "auto or a number in (0, 1]"}
+	}
+	c, err := loadCurrent(st, false)
 	if err != nil {
 		return nil, err
 	}
 	d := c.r.Verdict.Decision
 	rep := &AutolabelReport{Model: c.r.Model, Round: c.r.Round, Go: d.Go, Forced: cfg.Force && !d.Go}
 	if !d.Go && !cfg.Force {
-		return nil, fmt.Errorf("the latest verdict (round %d) is NOT YET: %v; label more items and run another round, or pass --force to autolabel anyway (the error bound then does not hold)", c.r.Round, d.Reasons)
+		return nil, fmt.Errorf("the latest verdict (round %d) is NOT YET: %s; label more items and run another round, or pass --force to autolabel anyway (the error bound then does not hold)",
+			c.r.Round, strings.Join(d.Reasons, "; "))
 	}
 	th := cfg.Threshold
 	if th <= 0 {
@@ -208,29 +339,77 @@ func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelR
 		rep.Bound = c.r.Verdict.Threshold.Upper
 	}
 	rep.Threshold = th
-	K := len(c.p.cb.Classes)
 	keys := c.p.cb.Keys()
+	counts := c.labelCounts()
+	kind := c.r.Train.Kind
 	var out []handoff.MachineLabel
-	c.s.Queue = nil
+	var queue []string
 	for i, it := range c.p.items {
-		if it.Kind != c.t.m.Kind || c.cr.nlabels[i] > 0 || c.p.gold[i] >= 0 {
+		if it.Kind != kind || counts[i] > 0 || c.p.gold[i] >= 0 {
+			continue
+		}
+		row := c.sc.row(i)
+		if row == nil {
+			rep.Unscored++
 			continue
 		}
 		rep.Scored++
-		row := c.proba[i*K : (i+1)*K]
 		b := argmax(row)
 		if row[b] >= th {
-			out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: append([]float64(nil), row...), Model: c.t.m.Name, Round: c.r.Round})
+			out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: slices.Clone(row), Model: c.r.Model, Round: c.r.Round})
 		} else {
-			c.s.Queue = append(c.s.Queue, it.ID)
+			queue = append(queue, it.ID)
 		}
 	}
-	rep.Labelled, rep.Queued = len(out), len(c.s.Queue)
-	if err := st.PutMachineLabels(out, source); err != nil {
+	rep.Labelled, rep.Queued = len(out), len(queue)
+	s := c.s.clone()
+	s.Queue = queue
+	sb, err := s.encode()
+	if err != nil {
 		return nil, err
 	}
-	if err := c.s.save(st, source); err != nil {
+	err = st.CommitRound(store.RoundWrite{Round: c.r.Round, Machine: out, State: map[string][]byte{stateName: sb}, Action: "autolabel",
+		Detail: fmt.Sprintf("model %s at threshold %.4g: %d machine labels, %d left for people", c.r.Model, th, len(out), len(queue))}, source)
+	if err != nil {
 		return nil, err
 	}
 	return rep, nil
+}
+
+// Stranded lists the items of the latest round's kind without crowd labels
+// or gold that neither are in the latest round's batch nor could be picked
+// by the next round (as a model-unsure pick, a held-out top-up or an
+// audit). Items added since the round count as pickable: the next round
+// scores them. It should always be empty; it exists so that tests and
+// `loop status` can say so.
+func Stranded(st *store.Store) ([]string, error) {
+	c, err := loadCurrent(st, false)
+	if err != nil {
+		return nil, err
+	}
+	cr, err := c.storedConsensus(c.r.Config)
+	if err != nil {
+		return nil, err
+	}
+	held := c.s.HeldOut
+	if held == nil {
+		return nil, fmt.Errorf("the rounds' state has no held-out set; run `loop round DIR --force`")
+	}
+	pool := buildPool(c.p, cr, c.sc, held.Kind, held, c.machine, func(int) bool { return true })
+	inBatch := setOf(nil)
+	for _, b := range c.batch {
+		inBatch[b.Item] = true
+	}
+	var out []string
+	for i, it := range c.p.items {
+		if it.Kind != held.Kind || cr.nlabels[i] > 0 || c.p.gold[i] >= 0 || inBatch[it.ID] || c.sc.row(i) == nil {
+			continue
+		}
+		switch pool.State[i] {
+		case selector.Unlabelled, selector.HeldOutWaiting, selector.Machine:
+		default:
+			out = append(out, it.ID)
+		}
+	}
+	return out, nil
 }

@@ -2,10 +2,11 @@ package round
 
 import (
 	"fmt"
-	"math/rand/v2"
 	"sort"
 
-	"gonum.org/v1/gonum/stat"
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"handoff/verdict"
 )
 
 // ParentShares is one parent's roll-up: how many of its items have a final
@@ -21,7 +22,7 @@ type ParentShares struct {
 	Position *Interval `json:"position,omitempty"`
 }
 
-// Interval is an estimate with a percentile bootstrap interval.
+// Interval is an estimate with a confidence interval.
 type Interval struct {
 	Value float64 `json:"value"`
 	Lo    float64 `json:"lo"`
@@ -30,7 +31,7 @@ type Interval struct {
 
 // RollupConfig configures Rollup.
 type RollupConfig struct {
-	Reps  int     // bootstrap replicates; 0 means 1000
+	Reps  int     // unused: the intervals are exact (kept for callers)
 	Level float64 // interval level; 0 means 0.95
 	Seed  uint64
 }
@@ -38,10 +39,15 @@ type RollupConfig struct {
 // Rollup rolls the final classes of the rows up to their parents. For parent
 // g with n_g answered items, the share of class c is (1/n_g) Σ_i [class_i =
 // c]; for an ordinal codebook the position is (1/n_g) Σ_i (index of class_i
-// + 1). Intervals are percentile bootstrap intervals over Reps replicates
-// that resample the parent's items with replacement (items are resampled
-// within their parent, parents are not mixed). Items without a final class or
-// without a parent are left out; parents are returned sorted by name.
+// + 1). A share is a binomial proportion and gets the exact two-sided
+// Clopper–Pearson interval at Level (so 0 of 3 is [0, 0.708], never a point).
+// The position, a mean bounded in [1, K], gets the Clopper–Pearson interval
+// of the fractional count s = Σ_i (position_i − 1)/(K − 1) out of n_g
+// (Beta quantiles with s, n_g − s + 1 and s + 1, n_g − s), mapped back to
+// [1, K]: exact for K = 2, conservative for bounded outcomes otherwise (a
+// common practice for bounded means, no source). Items are treated as a
+// sample of the parent's items. Items without a final class or without a
+// parent are left out; parents are returned sorted by name.
 func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]ParentShares, error) {
 	if cfg.Reps <= 0 {
 		cfg.Reps = 1000
@@ -86,9 +92,8 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 	}
 	sort.Strings(names)
 	K := len(classes)
-	lo, hi := (1-cfg.Level)/2, 1-(1-cfg.Level)/2
 	out := make([]ParentShares, 0, len(names))
-	for gi, name := range names {
+	for _, name := range names {
 		g := groups[name]
 		ps := ParentShares{Parent: name, Items: g.items, Answered: len(g.cls), Shares: make([]Interval, K)}
 		n := len(g.cls)
@@ -96,47 +101,39 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 			out = append(out, ps)
 			continue
 		}
-		share := func(cls []int) ([]float64, float64) {
-			s := make([]float64, K)
-			pos := 0.0
-			for _, k := range cls {
-				s[k]++
-				pos += float64(k + 1)
+		counts := make([]int, K)
+		frac := 0.0 // Σ (position − 1) / (K − 1)
+		for _, k := range g.cls {
+			counts[k]++
+			if K > 1 {
+				frac += float64(k) / float64(K-1)
 			}
-			for k := range s {
-				s[k] /= float64(len(cls))
-			}
-			return s, pos / float64(len(cls))
-		}
-		s0, p0 := share(g.cls)
-		rng := rand.New(rand.NewPCG(cfg.Seed, uint64(gi)))
-		boots := make([][]float64, K)
-		for k := range boots {
-			boots[k] = make([]float64, cfg.Reps)
-		}
-		pos := make([]float64, cfg.Reps)
-		res := make([]int, n)
-		for b := range cfg.Reps {
-			for i := range res {
-				res[i] = g.cls[rng.IntN(n)]
-			}
-			s, p := share(res)
-			for k := range s {
-				boots[k][b] = s[k]
-			}
-			pos[b] = p
-		}
-		q := func(x []float64, p float64) float64 {
-			sort.Float64s(x)
-			return stat.Quantile(p, stat.Empirical, x, nil)
 		}
 		for k := range K {
-			ps.Shares[k] = Interval{Value: s0[k], Lo: q(boots[k], lo), Hi: q(boots[k], hi)}
+			l, h := verdict.ClopperPearson(counts[k], n, cfg.Level)
+			ps.Shares[k] = Interval{Value: float64(counts[k]) / float64(n), Lo: l, Hi: h}
 		}
 		if ordinal {
-			ps.Position = &Interval{Value: p0, Lo: q(pos, lo), Hi: q(pos, hi)}
+			l, h := fractionalCP(frac, n, cfg.Level)
+			w := float64(K - 1)
+			ps.Position = &Interval{Value: 1 + w*frac/float64(n), Lo: 1 + w*l, Hi: 1 + w*h}
 		}
 		out = append(out, ps)
 	}
 	return out, nil
+}
+
+// fractionalCP is the Clopper–Pearson interval for a real-valued count s
+// of n (0 ≤ s ≤ n) at level.
+func fractionalCP(s float64, n int, level float64) (lo, hi float64) {
+	a := 1 - level
+	N := float64(n)
+	lo, hi = 0, 1
+	if s > 0 {
+		lo = distuv.Beta{Alpha: s, Beta: N - s + 1}.Quantile(a / 2)
+	}
+	if s < N {
+		hi = distuv.Beta{Alpha: s + 1, Beta: N - s}.Quantile(1 - a/2)
+	}
+	return lo, hi
 }

@@ -5,8 +5,15 @@
 // features, learner, selector and verdict together; cmd/loop and api both call
 // it.
 //
+// A round is one pure step and one commit: a snapshot of the store read in
+// one read transaction (items, labels, gold, state, machine labels,
+// settings) → the round, which touches no store → one write transaction for
+// everything it writes (consensus, model, round record, selection, state,
+// scores). A crash part-way leaves the previous round as it was.
+//
 // Every step is deterministic given the store's contents and Config.Seed: the
-// same store and seed give byte-identical stored results.
+// same store and settings give byte-identical stored results, from the
+// command line or from the board.
 package round
 
 import (
@@ -31,25 +38,24 @@ type project struct {
 	hasG   bool
 }
 
-// load reads the project. Items are in store order; labels reference them by
-// position.
+// load reads the project in one read transaction.
 func load(st *store.Store) (*project, error) {
-	p := &project{cb: st.Codebook()}
-	err := st.EachItem(func(n int, it handoff.Item) error {
-		p.items = append(p.items, it)
-		return nil
-	})
+	sn, err := st.Snapshot(store.SnapshotOptions{Times: true})
 	if err != nil {
-		return nil, fmt.Errorf("reading items: %w", err)
+		return nil, err
 	}
+	return projectOf(sn)
+}
+
+// projectOf builds the project from a snapshot. Items are in store order;
+// labels reference them by position.
+func projectOf(sn *store.Snapshot) (*project, error) {
+	p := &project{cb: sn.Codebook, items: sn.Items}
 	p.index = make(map[string]int, len(p.items))
 	for i, it := range p.items {
 		p.index[it.ID] = i
 	}
-	t, err := st.LabelTable(true)
-	if err != nil {
-		return nil, fmt.Errorf("reading labels: %w", err)
-	}
+	t := sn.Labels
 	// Map the table's item numbers to positions in p.items.
 	pos := make([]int32, len(t.ItemIDs))
 	for n, id := range t.ItemIDs {
@@ -88,12 +94,15 @@ func load(st *store.Store) (*project, error) {
 			l.Time = append(l.Time, t.Time[i])
 		}
 	}
+	if t.Seconds == nil {
+		l.Seconds = nil
+	}
+	if t.Time == nil {
+		l.Time = nil
+	}
 	p.labels = l
 	p.anns = t.AnnotatorIDs
-	p.golds, err = st.Gold()
-	if err != nil {
-		return nil, fmt.Errorf("reading gold: %w", err)
-	}
+	p.golds = sn.Gold
 	p.gold = make([]int, len(p.items))
 	for i := range p.gold {
 		p.gold[i] = -1

@@ -76,23 +76,25 @@ type trained struct {
 // Train fits the machine on the stored consensus of every labelled item that
 // is not held out, stores the model and returns its report.
 func Train(st *store.Store, cfg TrainConfig, source string) (*TrainReport, error) {
-	p, err := load(st)
+	sn, err := st.Snapshot(store.SnapshotOptions{Times: true})
 	if err != nil {
 		return nil, err
 	}
-	cs, _, err := StoredConsensus(st)
+	p, err := projectOf(sn)
 	if err != nil {
 		return nil, err
 	}
-	s, err := loadState(st)
+	if sn.ConsensusMeta == nil {
+		return nil, fmt.Errorf("%w: no consensus yet; run `loop consensus DIR` first", ErrNothing)
+	}
+	s, err := decodeState(sn.State[stateName])
 	if err != nil {
 		return nil, err
 	}
-	post, nl := posteriorsOf(p, cs)
-	held := setOf(s.HeldOut)
+	post, nl := posteriorsOf(p, sn.Consensus)
 	var rows []int
-	for i := range p.items {
-		if (nl[i] > 0 || p.gold[i] >= 0) && !held[p.items[i].ID] {
+	for i, it := range p.items {
+		if (nl[i] > 0 || p.gold[i] >= 0) && !s.HeldOut.member(it) {
 			rows = append(rows, i)
 		}
 	}
@@ -305,7 +307,7 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 		return nil, err
 	}
 	X := learner.Subset(all, rows)
-	// Grouped k-fold: items of one parent stay together.
+	// Grouped k-fold (learner.GroupKFold): items of one parent stay together.
 	folds := cfg.Folds
 	if folds <= 0 {
 		folds = 5
@@ -319,42 +321,83 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 			groups[j] = p.items[i].ID
 		}
 	}
-	fold := groupFolds(groups, folds, cfg.Seed)
+	if ng := len(uniqueStrings(groups)); ng < folds {
+		folds = ng
+	}
+	if folds < 2 {
+		return nil, fmt.Errorf("%w: %d labelled items in one parent group cannot be cross-validated; label items of other parents", ErrNothing, len(rows))
+	}
+	foldRows, err := learner.GroupKFold(len(rows), groups, folds, cfg.Seed)
+	if err != nil {
+		return nil, fmt.Errorf("cross-validation: %w", err)
+	}
 	kp := len(present)
 	oofRaw := make([]float64, len(rows)*kp)
-	nf := 0
-	for f := range folds {
-		var tr, te []int
+	inFold := make([]bool, len(rows))
+	for f, te := range foldRows {
+		clear(inFold)
+		for _, j := range te {
+			inFold[j] = true
+		}
+		var tr []int
 		for j := range rows {
-			if fold[j] == f {
-				te = append(te, j)
-			} else {
+			if !inFold[j] {
 				tr = append(tr, j)
 			}
 		}
-		if len(te) == 0 || len(tr) == 0 {
-			continue
+		// The fold's model is fitted on the classes its training rows have;
+		// it gives probability 0 to the others (it never saw them).
+		fmass := make([]float64, kp)
+		for _, j := range tr {
+			for c, v := range sub[j] {
+				fmass[c] += v
+			}
+		}
+		var fcls []int
+		for c, m := range fmass {
+			if m > 1e-9 {
+				fcls = append(fcls, c)
+			}
+		}
+		if len(fcls) < 2 {
+			return nil, fmt.Errorf("cross-validation fold %d of %d: its training items all have one class; label more items of other classes", f+1, folds)
 		}
 		trT := make([][]float64, len(tr))
 		for a, j := range tr {
-			trT[a] = sub[j]
+			t := make([]float64, len(fcls))
+			sum := 0.0
+			for b, c := range fcls {
+				t[b] = sub[j][c]
+				sum += t[b]
+			}
+			if sum <= 0 {
+				// All of this row's mass is on classes the fold lacks:
+				// spread it evenly over the fold's classes.
+				for b := range t {
+					t[b] = 1 / float64(len(t))
+				}
+			} else {
+				for b := range t {
+					t[b] /= sum
+				}
+			}
+			trT[a] = t
 		}
 		mod, err := fit.Fit(learner.Subset(X, tr), trT, nil)
 		if err != nil {
-			// A fold may miss a class; fall back to no out-of-fold figure
-			// for it rather than failing the whole fit.
-			for _, j := range te {
-				copy(oofRaw[j*kp:(j+1)*kp], uniform(kp))
-			}
-			continue
+			return nil, fmt.Errorf("cross-validation fold %d of %d: %w", f+1, folds, err)
 		}
-		nf++
-		pr := make([]float64, len(te)*kp)
+		pr := make([]float64, len(te)*len(fcls))
 		mod.PredictProbaInto(pr, learner.Subset(X, te))
 		for a, j := range te {
-			copy(oofRaw[j*kp:(j+1)*kp], pr[a*kp:(a+1)*kp])
+			row := oofRaw[j*kp : (j+1)*kp]
+			clear(row)
+			for b, c := range fcls {
+				row[c] = pr[a*len(fcls)+b]
+			}
 		}
 	}
+	nf := folds
 	truth := make([]int, len(rows))
 	for j := range rows {
 		truth[j] = argmax(sub[j])
@@ -403,32 +446,10 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	return &trained{m: m, rep: rep, rows: rows, oof: oof, design: X, all: all, fit: fit, sub: sub}, nil
 }
 
-func uniform(k int) []float64 {
-	u := make([]float64, k)
-	for i := range u {
-		u[i] = 1 / float64(k)
-	}
-	return u
-}
-
-// groupFolds assigns each row to one of k folds so that rows of one group
-// share a fold: the distinct groups, sorted, are shuffled with the seed and
-// dealt round-robin.
-func groupFolds(groups []string, k int, seed uint64) []int {
-	uniq := slices.Clone(groups)
-	slices.Sort(uniq)
-	uniq = slices.Compact(uniq)
-	rng := rand.New(rand.NewPCG(seed, 0x9e3779b97f4a7c15))
-	rng.Shuffle(len(uniq), func(i, j int) { uniq[i], uniq[j] = uniq[j], uniq[i] })
-	f := make(map[string]int, len(uniq))
-	for i, g := range uniq {
-		f[g] = i % k
-	}
-	out := make([]int, len(groups))
-	for i, g := range groups {
-		out[i] = f[g]
-	}
-	return out
+func uniqueStrings(xs []string) []string {
+	u := slices.Clone(xs)
+	slices.Sort(u)
+	return slices.Compact(u)
 }
 
 // rowsAt returns the out-of-fold probabilities as rows, tempered by T.

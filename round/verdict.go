@@ -3,81 +3,74 @@ package round
 import (
 	"slices"
 
-	"handoff/crowd"
 	"handoff/store"
 	"handoff/verdict"
 )
 
-// VerdictConfig overrides the latest round's verdict settings; zero values
-// keep the round's.
+// VerdictConfig changes verdict settings for one report (max-error,
+// confidence, median-gate, require-stable); none means the latest round's.
 type VerdictConfig struct {
-	MaxError, Confidence          float64
-	RequireCeiling, RequireStable bool
+	Overrides []Override
 }
 
-// Verdict returns the verdict of the latest round. When cfg changes a
-// setting, or when audited machine labels exist, it is recomputed from the
-// latest model and the labels as they are now (the consensus is recomputed in
-// memory with the round's settings, so audit labels added since count; the
-// learning curve and stop set are the rounds').
+// verdictKeys are the settings Verdict may override.
+var verdictKeys = []string{"max-error", "confidence", "median-gate", "require-stable"}
+
+// Verdict returns the verdict of the latest round, with the audit of
+// machine labels as it stands now (the consensus recomputed in memory with
+// the round's settings, so audit labels added since count). When cfg
+// changes a setting, the whole verdict is computed again from the latest
+// round's stored scores (no featurising) and the labels as they are now;
+// the look stays the round's.
 func Verdict(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
-	r, err := Latest(st)
+	for _, o := range cfg.Overrides {
+		if !slices.Contains(verdictKeys, o.Key) {
+			return nil, &SettingError{Key: o.Key, Value: o.Value, Want: "one of the verdict settings max-error, confidence, median-gate, require-stable"}
+		}
+		probe := DefaultConfig()
+		if err := probe.Set(o.Key, o.Value); err != nil {
+			return nil, err
+		}
+	}
+	c, err := loadCurrent(st, false)
 	if err != nil {
 		return nil, err
 	}
-	s, err := loadState(st)
-	if err != nil {
-		return nil, err
-	}
-	opt := r.Config.Verdict
+	r := c.r
+	rc := r.Config
+	settings := slices.Clone(r.Settings)
 	changed := false
-	if cfg.MaxError > 0 && cfg.MaxError != opt.MaxError {
-		opt.MaxError, changed = cfg.MaxError, true
-	}
-	if cfg.Confidence > 0 && cfg.Confidence != opt.Confidence {
-		opt.Confidence, changed = cfg.Confidence, true
-	}
-	if cfg.RequireCeiling != opt.RequireCeiling || cfg.RequireStable != opt.RequireStable {
-		opt.RequireCeiling, opt.RequireStable, changed = cfg.RequireCeiling, cfg.RequireStable, true
-	}
-	if !changed && len(s.Audit) == 0 {
-		return r.Verdict, nil
-	}
-	c, err := loadCurrent(st)
-	if err != nil {
-		return nil, err
-	}
-	p := c.p
-	cr, err := consensus(p, r.Config.Consensus)
-	if err != nil {
-		return nil, err
-	}
-	K := len(p.cb.Classes)
-	in := verdict.Input{Classes: p.cb.Keys(), StopSet: s.StopPreds, Curve: s.Curve}
-	for _, id := range s.HeldOut {
-		i, ok := p.index[id]
-		if !ok || (cr.nlabels[i] == 0 && p.gold[i] < 0) {
-			continue
+	for _, o := range cfg.Overrides {
+		old, _ := rc.Get(o.Key)
+		if err := rc.Set(o.Key, o.Value); err != nil {
+			return nil, err
 		}
-		in.Truth = append(in.Truth, argmax(cr.posterior[i*K:(i+1)*K]))
-		in.Proba = append(in.Proba, slices.Clone(c.proba[i*K:(i+1)*K]))
-	}
-	for i, it := range p.items {
-		if it.Kind != c.t.m.Kind || cr.nlabels[i] > 0 || p.gold[i] >= 0 {
-			continue
+		now, _ := rc.Get(o.Key)
+		if now != old {
+			changed = true
 		}
-		if _, done := c.machine[it.ID]; done {
-			continue
-		}
-		in.Archive = append(in.Archive, slices.Max(c.proba[i*K:(i+1)*K]))
-	}
-	if ag, err := crowd.Agree(cr.kept, crowd.AgreementOptions{Reps: -1, Seed: r.Config.Seed}); err == nil {
-		for _, l := range ag.LeaveOneOut {
-			if l.Kappa.Defined {
-				in.Annotators = append(in.Annotators, verdict.Annotator{ID: p.anns[l.Annotator], Kappa: l.Kappa.Value, Items: l.Kappa.N})
+		for i := range settings {
+			if settings[i].Key == o.Key {
+				settings[i].Value, settings[i].Source = now, "flag"
 			}
 		}
 	}
-	in.Audit = auditCounts(p, cr, s, c.machine)
-	return verdict.Compute(in, opt)
+	if err := rc.Validate(); err != nil {
+		return nil, err
+	}
+	if !changed && len(c.s.Audit) == 0 {
+		return r.Verdict, nil
+	}
+	cr, err := consensus(c.p, rc.Consensus)
+	if err != nil {
+		return nil, err
+	}
+	if !changed {
+		return r.Verdict.WithAudit(auditCounts(c.p, cr, c.s, c.machine))
+	}
+	vin, err := verdictInput(c.p, cr, c.s, rc, c.sc.row, c.machine, max(r.Look, 1), r.Model, settings)
+	if err != nil {
+		return nil, err
+	}
+	return verdict.Compute(vin.in, rc.Verdict)
 }

@@ -103,12 +103,22 @@ func TestEntropyBeatsRandom(t *testing.T) {
 				plan := Plan{Unsure: step, Seed: seed*100 + uint64(round)}
 				if mode == "random" {
 					// Held-out top-up picks are plain random samples of
-					// the unlabelled pool.
+					// the waiting held-out items: mark the pool so.
+					for i := range state {
+						if state[i] == Unlabelled {
+							state[i] = HeldOutWaiting
+						}
+					}
 					plan = Plan{HeldOut: step, NoRefill: true, Seed: plan.Seed}
 				}
 				picks, err := Select(Pool{State: state, Proba: proba}, plan)
 				if err != nil {
 					t.Fatal(err)
+				}
+				for i := range state {
+					if state[i] == HeldOutWaiting {
+						state[i] = Unlabelled
+					}
 				}
 				for _, p := range picks {
 					label(p.Item)

@@ -15,22 +15,23 @@ type Reason string
 // The reasons, in the order Select fills them.
 const (
 	ReasonAudit    Reason = "audit"          // random machine-labelled item, to measure error after handoff
-	ReasonHeldOut  Reason = "held-out"       // random unlabelled item that joins the held-out set once labelled
+	ReasonHeldOut  Reason = "held-out"       // random unlabelled member of the held-out set: its first labels
+	ReasonStandard Reason = "reference"      // labelled held-out item below the reference standard: more labels
 	ReasonConflict Reason = "model-vs-crowd" // confident consensus that the model disputes: expert review
 	ReasonSplit    Reason = "crowd-split"    // consensus posterior still low: more labels
 	ReasonUnsure   Reason = "model-unsure"   // the model is unsure: a label teaches it most
 )
 
 // Reasons lists every reason in the order Select fills them.
-var Reasons = []Reason{ReasonAudit, ReasonHeldOut, ReasonConflict, ReasonSplit, ReasonUnsure}
+var Reasons = []Reason{ReasonAudit, ReasonHeldOut, ReasonStandard, ReasonConflict, ReasonSplit, ReasonUnsure}
 
 // State says what an item is to the selector.
 type State uint8
 
 // The item states.
 const (
-	// Unlabelled items have no crowd labels: candidates for model-unsure
-	// and for held-out top-up.
+	// Unlabelled items have no crowd labels and are not in the held-out
+	// set: candidates for model-unsure.
 	Unlabelled State = iota
 	// Labelled items have crowd labels and a consensus and are used for
 	// training: candidates for crowd-split and model-vs-crowd conflict.
@@ -43,6 +44,14 @@ const (
 	Machine
 	// Excluded items are never picked (already queued, dropped, …).
 	Excluded
+	// HeldOutWaiting items are members of the held-out set without labels
+	// yet: candidates for held-out top-up only, drawn at random, so that
+	// the labelled part of the held-out set stays a random sample of it.
+	HeldOutWaiting
+	// HeldOutBelow items are labelled members of the held-out set whose
+	// consensus does not yet meet the reference standard: candidates for
+	// reference-standard requests only.
+	HeldOutBelow
 )
 
 // Pool is what Select chooses from. Item i is described by entry i of every
@@ -77,7 +86,7 @@ type Pool struct {
 // weighting off, Diversity "" turns diversity off, Candidates 0 is 10,
 // SplitBelow 0 is 0.8, ConflictAbove 0 is 0.9, MaxLabels 0 is no cap.
 type Plan struct {
-	Unsure, Split, Conflict, HeldOut, Audit int // items wanted per reason
+	Unsure, Split, Conflict, HeldOut, Standard, Audit int // items wanted per reason
 
 	Strategy Strategy // uncertainty score for model-unsure picks
 	// Beta is the density exponent: model-unsure scores are multiplied by
@@ -151,7 +160,7 @@ func PlanShares(n int, shares map[Reason]float64) (Plan, error) {
 		counts[best]++
 		rem[best] = -1
 	}
-	p.Audit, p.HeldOut, p.Conflict, p.Split, p.Unsure = counts[0], counts[1], counts[2], counts[3], counts[4]
+	p.Audit, p.HeldOut, p.Standard, p.Conflict, p.Split, p.Unsure = counts[0], counts[1], counts[2], counts[3], counts[4], counts[5]
 	return p, nil
 }
 
@@ -165,12 +174,15 @@ type Pick struct {
 }
 
 // Select picks the next batch from pool according to plan. Reasons are
-// filled in the order of Reasons: audit and held-out top-up first, as plain
-// random samples (so the held-out set stays a random sample of the archive),
-// then conflicts, crowd-split items and finally model-unsure items. No item
-// is picked twice, HeldOut and Excluded items are never picked, and the
-// result depends only on the inputs and plan.Seed. Picks are returned
-// grouped by reason in that order, best first within a reason.
+// filled in the order of Reasons: audit (random Machine items) and held-out
+// top-up (random HeldOutWaiting items) first, as plain random samples (so
+// the labelled part of the held-out set stays a random sample of it), then
+// reference-standard requests (HeldOutBelow items, the machine's most
+// confident first when Proba has their rows, otherwise in random order),
+// conflicts, crowd-split items and finally model-unsure items. No item is
+// picked twice, HeldOut and Excluded items are never picked, and the result
+// depends only on the inputs and plan.Seed. Picks are returned grouped by
+// reason in that order, best first within a reason.
 //
 // Slices of the wrong length panic; invalid probabilities or features and
 // impossible plans return an error saying which item or field is wrong.
@@ -193,7 +205,7 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 	for _, q := range []struct {
 		name string
 		v    int
-	}{{"Unsure", plan.Unsure}, {"Split", plan.Split}, {"Conflict", plan.Conflict}, {"HeldOut", plan.HeldOut}, {"Audit", plan.Audit}, {"Candidates", plan.Candidates}, {"MaxLabels", plan.MaxLabels}} {
+	}{{"Unsure", plan.Unsure}, {"Split", plan.Split}, {"Conflict", plan.Conflict}, {"HeldOut", plan.HeldOut}, {"Standard", plan.Standard}, {"Audit", plan.Audit}, {"Candidates", plan.Candidates}, {"MaxLabels", plan.MaxLabels}} {
 		if q.v < 0 {
 			return nil, fmt.Errorf("plan.%s: %d is negative", q.name, q.v)
 		}
@@ -268,7 +280,24 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 
 	// Audit and held-out top-up: random.
 	add(ReasonAudit, random(Machine), zero, plan.Audit)
-	add(ReasonHeldOut, random(Unlabelled), zero, plan.HeldOut)
+	add(ReasonHeldOut, random(HeldOutWaiting), zero, plan.HeldOut)
+	if plan.Standard > 0 {
+		below := random(HeldOutBelow)
+		score := zero
+		if pool.Proba != nil {
+			score = make([]float64, n)
+			for _, i := range below {
+				if p := pool.Proba[i]; p != nil {
+					if err := checkProba(p); err != nil {
+						return nil, fmt.Errorf("item %d: model probabilities: %w", i, err)
+					}
+					score[i] = p[Argmax(p)]
+				}
+			}
+			below = ranked(below, score)
+		}
+		add(ReasonStandard, below, score, plan.Standard)
+	}
 
 	// Conflicts and crowd-split items among the labelled.
 	if plan.Conflict > 0 || plan.Split > 0 {

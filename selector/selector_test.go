@@ -196,7 +196,7 @@ func mixedPool(seed uint64, n int) Pool {
 	r := rand.New(rand.NewPCG(seed, 1))
 	p := Pool{State: make([]State, n), Proba: make([][]float64, n), Consensus: make([][]float64, n), Labels: make([]int, n)}
 	for i := range p.State {
-		p.State[i] = State(r.IntN(5))
+		p.State[i] = State(r.IntN(7))
 		a := r.Float64()
 		p.Proba[i] = []float64{a, 1 - a}
 		if p.State[i] == Labelled {
@@ -214,7 +214,7 @@ func mixedPool(seed uint64, n int) Pool {
 
 func TestSelectMixRespectsQuotas(t *testing.T) {
 	pool := mixedPool(7, 2000)
-	plan := Plan{Unsure: 50, Split: 20, Conflict: 10, HeldOut: 15, Audit: 5, Seed: 3, MaxLabels: 5}
+	plan := Plan{Unsure: 50, Split: 20, Conflict: 10, HeldOut: 15, Standard: 12, Audit: 5, Seed: 3, MaxLabels: 5}
 	picks, err := Select(pool, plan)
 	if err != nil {
 		t.Fatal(err)
@@ -228,7 +228,7 @@ func TestSelectMixRespectsQuotas(t *testing.T) {
 		}
 		seen[p.Item] = true
 		st := pool.State[p.Item]
-		ok := map[Reason]State{ReasonAudit: Machine, ReasonHeldOut: Unlabelled, ReasonUnsure: Unlabelled, ReasonSplit: Labelled, ReasonConflict: Labelled}[p.Reason]
+		ok := map[Reason]State{ReasonAudit: Machine, ReasonHeldOut: HeldOutWaiting, ReasonStandard: HeldOutBelow, ReasonUnsure: Unlabelled, ReasonSplit: Labelled, ReasonConflict: Labelled}[p.Reason]
 		if st != ok {
 			t.Errorf("%s pick of item %d in state %d", p.Reason, p.Item, st)
 		}
@@ -238,13 +238,22 @@ func TestSelectMixRespectsQuotas(t *testing.T) {
 			if c[Argmax(c)] >= 0.8 || pool.Labels[p.Item] >= 5 {
 				t.Errorf("crowd-split pick %d has posterior %v and %d labels", p.Item, c, pool.Labels[p.Item])
 			}
+		case ReasonStandard:
+			// The machine's most confident below-standard items go first.
+			conf := pool.Proba[p.Item][Argmax(pool.Proba[p.Item])]
+			for i, st := range pool.State {
+				if st == HeldOutBelow && !seen[i] && pool.Proba[i][Argmax(pool.Proba[i])] > conf {
+					t.Errorf("reference pick %d (confidence %.3f) before item %d (%.3f)", p.Item, conf, i, pool.Proba[i][Argmax(pool.Proba[i])])
+					break
+				}
+			}
 		case ReasonConflict:
 			if c[Argmax(c)] < 0.9 || Argmax(c) == Argmax(pool.Proba[p.Item]) {
 				t.Errorf("conflict pick %d: consensus %v, model %v", p.Item, c, pool.Proba[p.Item])
 			}
 		}
 	}
-	want := map[Reason]int{ReasonUnsure: 50, ReasonSplit: 20, ReasonConflict: 10, ReasonHeldOut: 15, ReasonAudit: 5}
+	want := map[Reason]int{ReasonUnsure: 50, ReasonSplit: 20, ReasonConflict: 10, ReasonHeldOut: 15, ReasonStandard: 12, ReasonAudit: 5}
 	if !reflect.DeepEqual(got, want) {
 		t.Errorf("reason counts %v, want %v", got, want)
 	}

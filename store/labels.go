@@ -296,43 +296,51 @@ func (t *LabelTable) Len() int { return len(t.Item) }
 // LabelTable reads every label into a LabelTable in one read transaction,
 // with Time and Seconds filled only if withTimes is set.
 func (s *Store) LabelTable(withTimes bool) (*LabelTable, error) {
-	t := &LabelTable{Classes: s.cb.Keys()}
+	var t *LabelTable
 	err := s.db.View(func(tx *bolt.Tx) error {
-		t.ItemIDs = itemIDs(tx)
-		as := make([]string, tx.Bucket(bAnnotators).Sequence())
-		if err := tx.Bucket(bAnnotatorIDs).ForEach(func(k, v []byte) error {
-			as[binary.BigEndian.Uint64(v)] = string(k)
-			return nil
-		}); err != nil {
-			return err
-		}
-		t.AnnotatorIDs = as
-		n := int(tx.Bucket(bLabels).Sequence())
-		t.Item = make([]uint32, 0, n)
-		t.Annotator = make([]uint32, 0, n)
-		t.Class = make([]uint16, 0, n)
-		if withTimes {
-			t.Time = make([]int64, 0, n)
-			t.Seconds = make([]float32, 0, n)
-		}
-		var r LabelRecord
-		c := tx.Bucket(bLabels).Cursor()
-		for k, v := c.First(); k != nil; k, v = c.Next() {
-			if err := decodeLabel(v, &r); err != nil {
-				return err
-			}
-			t.Item = append(t.Item, r.Item)
-			t.Annotator = append(t.Annotator, r.Annotator)
-			t.Class = append(t.Class, r.Class)
-			if withTimes {
-				t.Time = append(t.Time, r.Time)
-				t.Seconds = append(t.Seconds, float32(r.Seconds))
-			}
-		}
-		return nil
+		var err error
+		t, err = s.labelTable(tx, withTimes)
+		return err
 	})
 	if err != nil {
 		return nil, err
+	}
+	return t, nil
+}
+
+// labelTable reads the label table inside tx.
+func (s *Store) labelTable(tx *bolt.Tx, withTimes bool) (*LabelTable, error) {
+	t := &LabelTable{Classes: s.cb.Keys()}
+	t.ItemIDs = itemIDs(tx)
+	as := make([]string, tx.Bucket(bAnnotators).Sequence())
+	if err := tx.Bucket(bAnnotatorIDs).ForEach(func(k, v []byte) error {
+		as[binary.BigEndian.Uint64(v)] = string(k)
+		return nil
+	}); err != nil {
+		return nil, err
+	}
+	t.AnnotatorIDs = as
+	n := int(tx.Bucket(bLabels).Sequence())
+	t.Item = make([]uint32, 0, n)
+	t.Annotator = make([]uint32, 0, n)
+	t.Class = make([]uint16, 0, n)
+	if withTimes {
+		t.Time = make([]int64, 0, n)
+		t.Seconds = make([]float32, 0, n)
+	}
+	var r LabelRecord
+	c := tx.Bucket(bLabels).Cursor()
+	for k, v := c.First(); k != nil; k, v = c.Next() {
+		if err := decodeLabel(v, &r); err != nil {
+			return nil, err
+		}
+		t.Item = append(t.Item, r.Item)
+		t.Annotator = append(t.Annotator, r.Annotator)
+		t.Class = append(t.Class, r.Class)
+		if withTimes {
+			t.Time = append(t.Time, r.Time)
+			t.Seconds = append(t.Seconds, float32(r.Seconds))
+		}
 	}
 	return t, nil
 }

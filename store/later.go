@@ -88,24 +88,28 @@ func (s *Store) each(bucket []byte, fn func(k, v []byte) error) error {
 // method, its settings and annotator reliabilities) beside it.
 func (s *Store) PutConsensus(cs []handoff.Consensus, meta []byte, source string) error {
 	return s.update(source, "consensus.put", fmt.Sprintf("%d items", len(cs)), func(tx *bolt.Tx) error {
-		if err := tx.DeleteBucket(bConsensus); err != nil {
-			return err
-		}
-		b, err := tx.CreateBucket(bConsensus)
-		if err != nil {
-			return err
-		}
-		ids := tx.Bucket(bItemIDs)
-		for _, c := range cs {
-			if ids.Get([]byte(c.Item)) == nil {
-				return dataErr("item", "consensus for unknown item %q", c.Item)
-			}
-			if err := putJSON(b, []byte(c.Item), c); err != nil {
-				return err
-			}
-		}
-		return tx.Bucket(bMeta).Put(kConsensusMeta, append([]byte(nil), meta...))
+		return putConsensus(tx, cs, meta)
 	})
+}
+
+func putConsensus(tx *bolt.Tx, cs []handoff.Consensus, meta []byte) error {
+	if err := tx.DeleteBucket(bConsensus); err != nil {
+		return err
+	}
+	b, err := tx.CreateBucket(bConsensus)
+	if err != nil {
+		return err
+	}
+	ids := tx.Bucket(bItemIDs)
+	for _, c := range cs {
+		if ids.Get([]byte(c.Item)) == nil {
+			return dataErr("item", "consensus for unknown item %q", c.Item)
+		}
+		if err := putJSON(b, []byte(c.Item), c); err != nil {
+			return err
+		}
+	}
+	return tx.Bucket(bMeta).Put(kConsensusMeta, append([]byte(nil), meta...))
 }
 
 // Consensus returns all consensus, ordered by item id, and the meta bytes
@@ -149,16 +153,23 @@ func (s *Store) PutModel(version string, data []byte, source string) error {
 		return dataErr("version", "empty model version")
 	}
 	return s.update(source, "model.put", fmt.Sprintf("model %q, %d bytes", version, len(data)), func(tx *bolt.Tx) error {
-		if err := tx.Bucket(bModels).Put([]byte(version), append([]byte(nil), data...)); err != nil {
-			return err
-		}
-		o := tx.Bucket(bModelOrder)
-		n := o.Sequence()
-		if err := o.Put(u64(n), []byte(version)); err != nil {
-			return err
-		}
-		return o.SetSequence(n + 1)
+		return putModel(tx, version, data)
 	})
+}
+
+func putModel(tx *bolt.Tx, version string, data []byte) error {
+	if version == "" {
+		return dataErr("version", "empty model version")
+	}
+	if err := tx.Bucket(bModels).Put([]byte(version), append([]byte(nil), data...)); err != nil {
+		return err
+	}
+	o := tx.Bucket(bModelOrder)
+	n := o.Sequence()
+	if err := o.Put(u64(n), []byte(version)); err != nil {
+		return err
+	}
+	return o.SetSequence(n + 1)
 }
 
 // Model returns the model file stored under version, or ErrNotFound.

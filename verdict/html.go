@@ -108,7 +108,7 @@ func hline(p *plot.Plot, y, x0, x1 float64, c color.Color, name string) error {
 }
 
 func (r *Report) plotCurve() (template.HTML, error) {
-	p := newPlot("Learning curve", "labelled items", "held-out error")
+	p := newPlot("Learning curve", "labels spent", "error on the evaluation set")
 	xy := func(ps []CurvePoint) plotter.XYs {
 		out := make(plotter.XYs, len(ps))
 		for i, q := range ps {
@@ -140,11 +140,8 @@ func (r *Report) plotCurve() (template.HTML, error) {
 			lo, hi = math.Min(lo, float64(q.Labels)), math.Max(hi, float64(q.Labels))
 		}
 	}
-	if f := r.Fit; f != nil {
-		xmax := hi
-		if f.Reachable && f.LabelsAt > 0 {
-			xmax = math.Max(hi, math.Min(float64(f.LabelsAt), 4*hi))
-		}
+	if f := r.Fit; f != nil && f.Fitted {
+		xmax := math.Max(hi, float64(f.LabelsAt))
 		var fx plotter.XYs
 		for i := 0; i <= 100; i++ {
 			x := lo + (xmax-lo)*float64(i)/100
@@ -327,11 +324,13 @@ func (r *Report) confusionCells() [][]cell {
 }
 
 var page = template.Must(template.New("report").Funcs(template.FuncMap{
-	"pct": pct,
-	"iv":  iv,
-	"f3":  func(v float64) string { return fmt.Sprintf("%.3f", v) },
-	"g4":  func(v float64) string { return fmt.Sprintf("%.4g", v) },
-	"inc": func(i int) int { return i + 1 },
+	"pct":  pct,
+	"iv":   iv,
+	"ivp":  ivp,
+	"more": moreRange,
+	"f3":   func(v float64) string { return fmt.Sprintf("%.3f", v) },
+	"g4":   func(v float64) string { return fmt.Sprintf("%.4g", v) },
+	"inc":  func(i int) int { return i + 1 },
 }).Parse(`<!DOCTYPE html>
 <html lang="en">
 <head>
@@ -355,7 +354,7 @@ figure{margin:1rem 0}
 </head>
 <body>
 <h1>{{.Title}}</h1>
-<p class="muted">Held-out set of {{.R.Agreement.N}} items; {{len .R.Classes}} classes.</p>
+<p class="muted">{{.R.Agreement.N}} held-out items meet the reference standard; {{len .R.Classes}} classes. Look {{.R.Settings.Look}}: α = {{g4 .R.Settings.Alpha}} spent across looks by {{.R.Settings.Spending}}; this look tests at α<sub>{{.R.Settings.Look}}</sub> = {{g4 .R.Settings.LookAlpha}}.</p>
 {{with .R.Decision}}
 <div class="{{if .Go}}go{{else}}notyet{{end}}">
 <strong>{{$.Headline}}</strong>
@@ -364,9 +363,13 @@ figure{margin:1rem 0}
 {{if .Notes}}<ul class="muted">{{range .Notes}}<li>{{.}}</li>{{end}}</ul>{{end}}
 {{end}}
 
-<h2>Agreement of machine and consensus</h2>
+{{with .R.Standard}}
+<h2>Reference standard</h2>
+<p>The held-out set is a random {{pct .Share}} of the archive ({{.Members}} items). An item meets the reference standard when it is gold, when its consensus posterior reaches {{.Level}}, or once it has {{.Cap}} labels; a labelled item counts from {{.Lag}} round(s) after the round that first saw it labelled (from the first round for items labelled before it), met or not, so that which items count depends on time alone. {{.Met}} count and meet it, {{.Below}} count but do not yet (as disagreements wherever a threshold covers them), {{.Pending}} were labelled too recently to count, {{.Waiting}} have no labels yet.</p>
+{{end}}
+<h2>Agreement of machine and reference</h2>
 {{with .R.Agreement}}
-<p>Percentile bootstrap {{pct .Level}} intervals from {{.B}} resamples of the held-out items (seeded).</p>
+<p>Accuracy, kappa and macro-F1: percentile bootstrap {{pct .Level}} intervals from {{.B}} resamples of the held-out items (seeded). Precision and recall: exact Clopper–Pearson {{pct .Level}} intervals.</p>
 <table>
 <tr><th>figure</th><th>estimate [interval]</th></tr>
 <tr><th>accuracy</th><td>{{iv .Accuracy}}</td></tr>
@@ -375,46 +378,51 @@ figure{margin:1rem 0}
 </table>
 <table>
 <tr><th>class</th><th>support</th><th>predicted</th><th>precision</th><th>recall</th><th>F1</th></tr>
-{{range .Classes}}<tr><th>{{.Class}}</th><td>{{.Support}}</td><td>{{.Predicted}}</td><td>{{iv .Precision}}</td><td>{{iv .Recall}}</td><td>{{f3 .F1}}</td></tr>
+{{range .Classes}}<tr><th>{{.Class}}</th><td>{{.Support}}</td><td>{{.Predicted}}</td><td>{{ivp .Precision "predicted"}}</td><td>{{ivp .Recall "support"}}</td><td>{{f3 .F1}}</td></tr>
 {{end}}</table>
 {{end}}
 <h3>Confusion matrix</h3>
-<p class="muted">Rows: consensus class; columns: machine class. Cells are counts, shaded by their share of the row; hover for the share of all items with its interval.</p>
+<p class="muted">Rows: reference class; columns: machine class. Cells are counts, shaded by their share of the row; hover for the share of all items with its exact interval.</p>
 <table>
-<tr><th>consensus \ machine</th>{{range .R.Classes}}<th>{{.}}</th>{{end}}</tr>
+<tr><th>reference \ machine</th>{{range .R.Classes}}<th>{{.}}</th>{{end}}</tr>
 {{range $t, $row := .Cells}}<tr><th>{{index $.R.Classes $t}}</th>{{range $row}}<td style="{{.Style}}"{{if .Diag}} class="diag"{{end}} title="{{pct .Share.Est}} of items [{{pct .Share.Lo}}, {{pct .Share.Hi}}]">{{.Count}}</td>{{end}}</tr>
 {{end}}</table>
 {{if .ConfusionPlot}}<figure>{{.ConfusionPlot}}</figure>{{end}}
 
 {{if .R.Ceiling}}{{with .R.Ceiling}}
 <h2>Crowd ceiling</h2>
-<p>Each annotator's Cohen's kappa against the consensus without them: median {{f3 .Median}}, quartiles [{{f3 .Q1}}, {{f3 .Q3}}], {{len .Annotators}} annotators.
-The machine's kappa is {{f3 .MachineKappa}}: {{if .AtLeastMedian}}at least as good as{{else}}below{{end}} the median annotator.</p>
+<p>Each annotator's Cohen's kappa against the consensus without them: median {{f3 .Median}}, quartiles [{{f3 .Q1}}, {{f3 .Q3}}], {{len .Annotators}} annotators; the machine's kappa on all held-out items is {{f3 .MachineKappa}}.
+The median annotator agrees with the others on {{pct .MedianAgreement}} of their items; the machine agrees with the reference on {{pct .MachineAgreement}} of the {{.MachineItems}} held-out items it would autolabel: {{if .AtLeastMedian}}at least as good as{{else}}below{{end}} the median annotator.</p>
 {{end}}<figure>{{.AnnotatorPlot}}</figure>{{end}}
 
 <h2>Coverage and risk</h2>
 {{with .R.Threshold}}
-<p>Thresholds are the distinct held-out confidences, tested from the most confident down (fixed-sequence testing), each with a one-sided {{pct .Level}} Clopper–Pearson upper bound on the disagreement; thresholds covering fewer than {{.MinCount}} items are not tested.
-{{if .Found}}Chosen threshold <strong>{{g4 .Threshold}}</strong>: {{.N}} held-out items ({{pct .Coverage}}), {{.Errors}} disagreements ({{pct .Risk}}), upper bound {{pct .Upper}} ≤ max-error {{pct .MaxError}}; expected archive coverage {{pct .Archive}}.{{else}}No threshold passed.{{end}}
+<p>Thresholds are the distinct held-out confidences, tested from the most confident down (fixed-sequence testing), each with a one-sided Clopper–Pearson upper bound on the disagreement at level {{.Level}} (this look's share of α); thresholds covering fewer than {{.MinCount}} items are not tested.
+{{if .Found}}Chosen threshold <strong>{{g4 .Threshold}}</strong>: {{.N}} held-out items ({{pct .Coverage}}), {{.Errors}} disagreements ({{pct .Risk}}{{if .Unsettled}}; {{.Unsettled}} of them items below the reference standard, counted as disagreements{{end}}), upper bound {{pct .Upper}} ≤ max-error {{pct .MaxError}}; expected archive coverage {{pct .Archive}}.{{else}}No threshold passed.{{end}}
 <br><small>{{.Stop}}</small></p>
 {{end}}
-<figure>{{.RiskPlot}}</figure>
+{{if .RiskPlot}}<figure>{{.RiskPlot}}</figure>{{end}}
+{{with .R.Truth}}
+<h2>Against the truth</h2>
+<p>The consensus errs on {{.GoldErrors}} of {{.GoldItems}} gold items: {{pct .Rate}} [{{pct .Lo}}, {{pct .Hi}}]. The machine's error against the truth on the autolabelled items is at most <strong>{{pct .Total}}</strong> = the disagreement bound {{pct .Disagreement}} (machine vs reference) + the consensus-error bound {{pct .ConsensusError}} (reference vs truth, measured on gold), each one-sided at level {{.Level}}.</p>
+{{end}}
 
-<h2>Calibration</h2>
+{{if .ReliabilityPlot}}<h2>Calibration</h2>
 <p>Expected calibration error {{f3 .R.Calibration.ECE}} over {{len .R.Calibration.Bins}} equal-width confidence bins.</p>
-<figure>{{.ReliabilityPlot}}</figure>
+<figure>{{.ReliabilityPlot}}</figure>{{end}}
 
 {{if .R.Stop}}{{with .R.Stop}}
 <h2>Stop rule</h2>
-<p>Cohen's kappa between consecutive rounds' predictions on the stop set; stop once it is at least {{.Threshold}} for {{.Window}} rounds in a row:
+<p>Cohen's kappa between consecutive rounds' predictions on the stop set (rounds with new labels only); stop once it is at least {{.Threshold}} for {{.Window}} rounds in a row:
 <strong>{{if .Stable}}stable{{else}}not yet{{end}}</strong>.</p>
 {{if .Kappas}}<table><tr><th>rounds</th>{{range $i, $k := .Kappas}}<td>{{$i}}→{{inc $i}}</td>{{end}}</tr><tr><th>kappa</th>{{range .Kappas}}<td>{{printf "%.4f" .}}</td>{{end}}</tr></table>{{end}}
 {{end}}{{end}}
 
 {{if .R.Curve}}
 <h2>Learning curve</h2>
-{{if .R.Fit}}{{with .R.Fit}}<p>Inverse power law err(n) = {{g4 .A}}·n<sup>−{{g4 .B}}</sup> + {{g4 .C}}.
-{{if .Reachable}}The target error {{pct .Target}} is reached at about {{.LabelsAt}} labels ({{.More}} more).{{else}}The target error {{pct .Target}} is not reachable: the curve levels off at {{pct .C}}.{{end}}</p>{{end}}
+<p class="muted">Each round's model scored on one fixed evaluation set (the held-out items that meet the reference standard now and that every round's model scored), against the labels spent by that round.</p>
+{{if .R.Fit}}{{with .R.Fit}}<p>{{if .Fitted}}Inverse power law err(n) = {{g4 .A}}·n<sup>−{{g4 .B}}</sup> + {{g4 .C}} (R² {{f3 .R2}}; exponent constrained to [0.05, 2], floor to [0, the error reached]).{{end}}
+{{if eq .More 0}}The target error {{pct .Target}} is reached with the {{.Spent}} labels spent.{{else}}The target error {{pct .Target}} is reached at about {{.LabelsAt}} labels: {{.More}} more, {{pct .Level}} bootstrap interval {{more .}}.{{end}}</p>{{end}}
 {{else}}<p>{{.R.FitError}}</p>{{end}}
 <figure>{{.CurvePlot}}</figure>
 {{end}}
@@ -425,7 +433,8 @@ The machine's kappa is {{f3 .MachineKappa}}: {{if .AtLeastMedian}}at least as go
 {{end}}{{end}}
 
 <h2>Settings</h2>
-{{with .R.Settings}}<p class="muted">max-error {{.MaxError}}, bound confidence {{.Confidence}}, bootstrap B = {{.Bootstrap}} at level {{.Level}} with seed {{.Seed}}, minimum {{.MinCount}} items per tested threshold, {{.Bins}} calibration bins, stop rule kappa ≥ {{.StopKappa}} for {{.StopWindow}} rounds, learning-curve target {{.TargetError}}.</p>{{end}}
+{{with .R.Settings}}<p class="muted">Verdict: max-error {{.MaxError}}, confidence {{.Confidence}} over all looks (look {{.Look}}, α<sub>{{.Look}}</sub> = {{g4 .LookAlpha}}), bootstrap B = {{.Bootstrap}} at level {{.Level}} with seed {{.Seed}}, minimum {{.MinCount}} items per tested threshold, {{.Bins}} calibration bins, stop rule kappa ≥ {{.StopKappa}} for {{.StopWindow}} rounds, learning-curve target {{.TargetError}}, median-annotator gate {{if .MedianGate}}on{{else}}off{{end}}.</p>{{end}}
+{{if .R.Run}}<table><tr><th>setting</th><th>value</th><th>from</th></tr>{{range .R.Run}}<tr><th>{{.Key}}</th><td>{{.Value}}</td><td>{{.Source}}</td></tr>{{end}}</table>{{end}}
 </body>
 </html>
 `))
@@ -452,8 +461,10 @@ func (r *Report) WriteHTML(w io.Writer, title string) error {
 			return fmt.Errorf("coverage–risk plot: %w", err)
 		}
 	}
-	if data.ReliabilityPlot, err = r.plotReliability(); err != nil {
-		return fmt.Errorf("reliability plot: %w", err)
+	if r.Agreement.N > 0 {
+		if data.ReliabilityPlot, err = r.plotReliability(); err != nil {
+			return fmt.Errorf("reliability plot: %w", err)
+		}
 	}
 	if len(r.Curve) > 0 {
 		if data.CurvePlot, err = r.plotCurve(); err != nil {
@@ -465,7 +476,7 @@ func (r *Report) WriteHTML(w io.Writer, title string) error {
 			return fmt.Errorf("confusion-matrix plot: %w", err)
 		}
 	}
-	if r.Ceiling != nil {
+	if r.Ceiling != nil && len(r.Ceiling.Annotators) > 0 {
 		if data.AnnotatorPlot, err = r.plotAnnotators(); err != nil {
 			return fmt.Errorf("annotator plot: %w", err)
 		}

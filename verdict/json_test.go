@@ -36,12 +36,17 @@ func fieldPaths(prefix string, v any, out map[string]bool) {
 // with -update after a deliberate change and say so in the changelog).
 func TestJSONFieldsStable(t *testing.T) {
 	in := sample(4, 400, []string{"a", "b"})
-	in.Annotators = []Annotator{{"x", 0.7, 10}, {"y", 0.6, 12}}
+	in.Annotators = []Annotator{{"x", 0.7, 0.8, 10}, {"y", 0.6, 0.75, 12}}
+	in.Unsettled = [][]float64{{0.9, 0.1}}
+	in.Standard = &Standard{Level: 0.99, Cap: 9, Members: 500, Share: 0.2, Met: 400, Below: 1, Waiting: 99}
+	in.Gold = &GoldCounts{Items: 40, Errors: 1}
+	in.Stored = &StoredLabels{Model: "r1-a", Round: 1, Items: 10, Latest: "r2-b"}
+	in.Run = []Setting{{"max-error", "0.05", "stored"}}
 	in.StopSet = [][]int{{0, 1}, {0, 1}}
-	in.Curve = []CurvePoint{{100, 0.3}, {200, 0.2}, {400, 0.15}}
+	in.Curve = []CurvePoint{{100, 0.3}, {200, 0.2}, {400, 0.15}, {800, 0.12}}
 	in.Compare = &Series{Name: "random", Points: []CurvePoint{{100, 0.35}}}
 	in.Audit = &AuditCounts{Items: 50, Errors: 2}
-	rep, err := Compute(in, Options{Bootstrap: 50})
+	rep, err := Compute(in, Options{Bootstrap: 50, TargetError: 0.11})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -6,45 +6,61 @@ import (
 	"slices"
 )
 
-// Annotator is one person's agreement with the crowd: Cohen's kappa of their
-// labels against the leave-one-out consensus (the consensus computed without
-// them), over Items items. It is computed elsewhere (crowd/) and passed in.
+// Annotator is one person's agreement with the crowd, computed elsewhere
+// (round/, crowd/) and passed in: Kappa is Cohen's kappa of their labels
+// against the leave-one-out consensus (the consensus without them), and
+// Agreement the share of their labels that match it, over Items items.
 type Annotator struct {
-	ID    string  `json:"id"`
-	Kappa float64 `json:"kappa"`
-	Items int     `json:"items"`
+	ID        string  `json:"id"`
+	Kappa     float64 `json:"kappa"`
+	Agreement float64 `json:"agreement"`
+	Items     int     `json:"items"`
 }
 
-// Ceiling is how well people agree with the crowd: the distribution of
-// annotators' kappas, and whether the machine does at least as well as the
-// median annotator.
+// Ceiling is how well people agree with the crowd — the distribution of
+// annotators' kappas and agreements — and the median-annotator gate: whether
+// the machine agrees with the reference on the items it would autolabel at
+// least as often as the median annotator agrees with the others.
 type Ceiling struct {
 	Annotators   []Annotator `json:"annotators"` // sorted by kappa, highest first
-	Median       float64     `json:"median"`
-	Q1           float64     `json:"q1"` // lower quartile
-	Q3           float64     `json:"q3"` // upper quartile
+	Median       float64     `json:"median"`     // of the kappas
+	Q1           float64     `json:"q1"`         // lower quartile of the kappas
+	Q3           float64     `json:"q3"`         // upper quartile of the kappas
 	MachineKappa float64     `json:"machine_kappa"`
-	// AtLeastMedian reports MachineKappa ≥ Median.
+	// MedianAgreement is the median of the annotators' agreements;
+	// MachineAgreement the machine's agreement with the reference on the
+	// MachineItems held-out items it would autolabel.
+	MedianAgreement  float64 `json:"median_agreement"`
+	MachineAgreement float64 `json:"machine_agreement"`
+	MachineItems     int     `json:"machine_items"`
+	// AtLeastMedian reports MachineAgreement ≥ MedianAgreement.
 	AtLeastMedian bool `json:"at_least_median"`
 }
 
-// CrowdCeiling summarises annotators' kappas: median and quartiles (type 7
-// quantiles, R's default) and whether machineKappa reaches the median. It
-// returns an error if there are no annotators or a kappa is not finite or
-// outside [−1, 1].
-func CrowdCeiling(ann []Annotator, machineKappa float64) (Ceiling, error) {
+// CrowdCeiling summarises annotators' kappas (median and quartiles, type 7
+// quantiles, R's default) and agreements (median), and compares the
+// machine's agreement machineAgree on machineItems items with the median
+// annotator's. It returns an error if there are no annotators or a kappa or
+// agreement is not finite or outside its range ([−1, 1], [0, 1]).
+func CrowdCeiling(ann []Annotator, machineKappa, machineAgree float64, machineItems int) (Ceiling, error) {
 	if len(ann) == 0 {
 		return Ceiling{}, fmt.Errorf("annotators: none given for the crowd ceiling")
 	}
 	ks := make([]float64, len(ann))
+	ag := make([]float64, len(ann))
 	for i, a := range ann {
 		if math.IsNaN(a.Kappa) || a.Kappa < -1 || a.Kappa > 1 {
 			return Ceiling{}, fmt.Errorf("annotator %q: kappa %v is not in [−1, 1]", a.ID, a.Kappa)
 		}
-		ks[i] = a.Kappa
+		if math.IsNaN(a.Agreement) || a.Agreement < 0 || a.Agreement > 1 {
+			return Ceiling{}, fmt.Errorf("annotator %q: agreement %v is not in [0, 1]", a.ID, a.Agreement)
+		}
+		ks[i], ag[i] = a.Kappa, a.Agreement
 	}
 	slices.Sort(ks)
-	c := Ceiling{Annotators: slices.Clone(ann), Median: quantile7(ks, 0.5), Q1: quantile7(ks, 0.25), Q3: quantile7(ks, 0.75), MachineKappa: machineKappa}
+	slices.Sort(ag)
+	c := Ceiling{Annotators: slices.Clone(ann), Median: quantile7(ks, 0.5), Q1: quantile7(ks, 0.25), Q3: quantile7(ks, 0.75),
+		MachineKappa: machineKappa, MedianAgreement: quantile7(ag, 0.5), MachineAgreement: machineAgree, MachineItems: machineItems}
 	slices.SortStableFunc(c.Annotators, func(a, b Annotator) int {
 		switch {
 		case a.Kappa > b.Kappa:
@@ -54,7 +70,7 @@ func CrowdCeiling(ann []Annotator, machineKappa float64) (Ceiling, error) {
 		}
 		return 0
 	})
-	c.AtLeastMedian = machineKappa >= c.Median
+	c.AtLeastMedian = machineItems > 0 && machineAgree >= c.MedianAgreement
 	return c, nil
 }
 

@@ -33,18 +33,38 @@ type Threshold struct {
 	MaxError  float64 `json:"max_error"`
 	Level     float64 `json:"level"`
 	MinCount  int     `json:"min_count"`
+	// Unsettled is how many of the N covered items do not yet meet the
+	// reference standard and were counted as disagreements.
+	Unsettled int `json:"unsettled"`
 	// Stop explains where the walk ended.
 	Stop string `json:"stop"`
 }
 
 // MinCountFor returns the default minimum number of held-out items a
-// threshold must cover to be tested: the larger of 100 and the smallest n at
-// which zero errors would pass, n₀ = ⌈ln(1−level)/ln(1−maxErr)⌉ (59 for
-// 5% at 95%, 299 for 1%). Common practice, no source: thresholds covering
-// fewer items could fail only by chance and would end the walk early.
+// threshold must cover to be tested: the larger of 100 and n₁, the smallest
+// n at which one disagreement in n items would still pass (one-sided
+// Clopper–Pearson bound at level ≤ maxErr): 93 for 5% at 95%, 473 for 1%;
+// 198 for 5% at look 10 (level 1 − 0.05/110). Common practice, no source:
+// the walk stops at the first failing threshold, so starting it where a
+// single unlucky disagreement among the most confident items would already
+// fail it ends it early for nothing.
 func MinCountFor(maxErr, level float64) int {
-	n0 := int(math.Ceil(math.Log(1-level) / math.Log(1-maxErr)))
-	return max(100, n0)
+	lo, hi := 2, 2
+	for UpperBound(1, hi, level) > maxErr {
+		lo, hi = hi, 2*hi
+		if hi > 1<<30 {
+			return hi
+		}
+	}
+	for lo < hi {
+		m := (lo + hi) / 2
+		if UpperBound(1, m, level) <= maxErr {
+			hi = m
+		} else {
+			lo = m + 1
+		}
+	}
+	return max(100, hi)
 }
 
 // CoverageRisk builds the coverage–risk curve of held-out confidences conf

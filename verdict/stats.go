@@ -67,6 +67,20 @@ func quantile7(sorted []float64, p float64) float64 {
 	return sorted[lo] + (h-float64(lo))*(sorted[lo+1]-sorted[lo])
 }
 
+// Proportion returns k/n with its exact two-sided Clopper–Pearson interval
+// at level, or nil (no estimate) when n = 0. It panics unless 0 ≤ k ≤ n and
+// 0 < level < 1.
+func Proportion(k, n int, level float64) *Interval {
+	if n == 0 {
+		if k != 0 {
+			panic(fmt.Sprintf("verdict: proportion %d of 0", k))
+		}
+		return nil
+	}
+	lo, hi := ClopperPearson(k, n, level)
+	return &Interval{Est: float64(k) / float64(n), Lo: lo, Hi: hi}
+}
+
 // Interval is an estimate with a confidence interval.
 type Interval struct {
 	Est float64 `json:"est"`
@@ -75,18 +89,21 @@ type Interval struct {
 }
 
 // ClassScore is one class's precision and recall of the machine against the
-// consensus, with counts.
+// reference, with counts. Precision is TP/Predicted and Recall TP/Support,
+// each with its exact two-sided Clopper–Pearson interval at the agreement's
+// level; either is nil ("no estimate") when its denominator is 0.
 type ClassScore struct {
-	Class     string   `json:"class"`
-	Support   int      `json:"support"`   // held-out items whose consensus is this class
-	Predicted int      `json:"predicted"` // held-out items the machine gives this class
-	Precision Interval `json:"precision"`
-	Recall    Interval `json:"recall"`
-	F1        float64  `json:"f1"`
+	Class     string    `json:"class"`
+	Support   int       `json:"support"`   // held-out items whose reference is this class
+	Predicted int       `json:"predicted"` // held-out items the machine gives this class
+	Precision *Interval `json:"precision"`
+	Recall    *Interval `json:"recall"`
+	F1        float64   `json:"f1"`
 }
 
-// Agreement is the machine against the consensus on the held-out set.
-// Intervals are seeded percentile bootstrap intervals (see Agree).
+// Agreement is the machine against the reference on the held-out set.
+// Accuracy, kappa and macro-F1 have seeded percentile bootstrap intervals;
+// per-class figures and cells exact binomial ones (see Agree).
 type Agreement struct {
 	N        int          `json:"n"`
 	Level    float64      `json:"level"`
@@ -95,9 +112,9 @@ type Agreement struct {
 	Kappa    Interval     `json:"kappa"`
 	MacroF1  Interval     `json:"macro_f1"`
 	Classes  []ClassScore `json:"classes"`
-	// Confusion[t][p] counts held-out items with consensus class t and
+	// Confusion[t][p] counts held-out items with reference class t and
 	// machine class p; Cells[t][p] is that count's share of N with its
-	// interval.
+	// exact interval.
 	Confusion [][]int      `json:"confusion"`
 	Cells     [][]Interval `json:"cells"`
 }
@@ -208,12 +225,16 @@ func scores(c [][]int, prec, rec, f1 []float64) (acc, kappa, macro float64) {
 	return float64(diag) / float64(n), KappaCounts(c), macro
 }
 
-// Agree compares machine classes pred with consensus classes truth (each in
-// [0, len(classes))) and puts a seeded percentile bootstrap interval on every
-// figure (Efron & Tibshirani 1993, ch. 13): B resamples of the items with
-// replacement, the figure recomputed on each, and the (1−level)/2 and
-// (1+level)/2 quantiles (type 7) of the B values taken as the interval.
-// B ≤ 0 means 1000, level 0 means 0.95. It returns an error for an empty set
+// Agree compares machine classes pred with reference classes truth (each in
+// [0, len(classes))). Accuracy, Cohen's kappa and macro-F1 get a seeded
+// percentile bootstrap interval (Efron & Tibshirani 1993, ch. 13): B
+// resamples of the items with replacement, the figure recomputed on each,
+// and the (1−level)/2 and (1+level)/2 quantiles (type 7) of the B values
+// taken as the interval. Per-class precision and recall and the cells'
+// shares are binomial proportions and get the exact two-sided
+// Clopper–Pearson interval instead, which never collapses to a point (0 of
+// 11 gives [0, 0.285], 2 of 2 gives [0.158, 1]); a proportion with a zero
+// denominator has no estimate (nil). B ≤ 0 means 1000, level 0 means 0.95. It returns an error for an empty set
 // or a class outside the codebook; length mismatch panics.
 func Agree(truth, pred []int, classes []string, B int, level float64, seed uint64) (Agreement, error) {
 	if len(truth) != len(pred) {
@@ -252,8 +273,8 @@ func Agree(truth, pred []int, classes []string, B int, level float64, seed uint6
 	for j := range c {
 		ag.Confusion[j] = slices.Clone(c[j])
 	}
-	// Bootstrap replicates: series[f][b] for every figure f.
-	nf := 3 + 2*k + k*k
+	// Bootstrap replicates: series[f][b] for accuracy, kappa and macro-F1.
+	nf := 3
 	series := make([][]float64, nf)
 	for f := range series {
 		series[f] = make([]float64, B)
@@ -268,13 +289,6 @@ func Agree(truth, pred []int, classes []string, B int, level float64, seed uint6
 		confusion(c, truth, pred, idx)
 		a, kp, m := scores(c, bp, br, bf)
 		series[0][b], series[1][b], series[2][b] = a, kp, m
-		for j := 0; j < k; j++ {
-			series[3+j][b] = bp[j]
-			series[3+k+j][b] = br[j]
-			for q := 0; q < k; q++ {
-				series[3+2*k+j*k+q][b] = float64(c[j][q]) / float64(n)
-			}
-		}
 	}
 	iv := func(f int, est float64) Interval {
 		s := series[f]
@@ -288,14 +302,15 @@ func Agree(truth, pred []int, classes []string, B int, level float64, seed uint6
 			sup += ag.Confusion[j][q]
 			pr += ag.Confusion[q][j]
 		}
+		tp := ag.Confusion[j][j]
 		ag.Classes = append(ag.Classes, ClassScore{Class: classes[j], Support: sup, Predicted: pr,
-			Precision: iv(3+j, prec[j]), Recall: iv(3+k+j, rec[j]), F1: f1[j]})
+			Precision: Proportion(tp, pr, level), Recall: Proportion(tp, sup, level), F1: f1[j]})
 	}
 	ag.Cells = make([][]Interval, k)
 	for j := 0; j < k; j++ {
 		ag.Cells[j] = make([]Interval, k)
 		for q := 0; q < k; q++ {
-			ag.Cells[j][q] = iv(3+2*k+j*k+q, float64(ag.Confusion[j][q])/float64(n))
+			ag.Cells[j][q] = *Proportion(ag.Confusion[j][q], n, level)
 		}
 	}
 	return ag, nil

@@ -3,6 +3,8 @@ package verdict
 import (
 	"bytes"
 	"encoding/json"
+	"errors"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"reflect"
@@ -132,7 +134,7 @@ func TestBootstrapIntervals(t *testing.T) {
 	if !near(a.Accuracy.Hi-a.Accuracy.Lo, 2*half, 0.2*2*half) {
 		t.Errorf("accuracy interval %v, width far from normal approximation %v", a.Accuracy, 2*half)
 	}
-	for _, v := range []Interval{a.Accuracy, a.Kappa, a.MacroF1, a.Classes[0].Precision, a.Cells[0][1]} {
+	for _, v := range []Interval{a.Accuracy, a.Kappa, a.MacroF1, *a.Classes[0].Precision, a.Cells[0][1]} {
 		if !(v.Lo <= v.Est && v.Est <= v.Hi) {
 			t.Errorf("interval %+v does not contain its estimate", v)
 		}
@@ -148,24 +150,185 @@ func TestBootstrapIntervals(t *testing.T) {
 }
 
 func TestCrowdCeiling(t *testing.T) {
-	ann := []Annotator{{"a", 0.5, 10}, {"b", 0.7, 10}, {"c", 0.6, 10}, {"d", 0.9, 10}}
-	c, err := CrowdCeiling(ann, 0.66)
+	ann := []Annotator{{"a", 0.5, 0.70, 10}, {"b", 0.7, 0.80, 10}, {"c", 0.6, 0.75, 10}, {"d", 0.9, 0.95, 10}}
+	c, err := CrowdCeiling(ann, 0.66, 0.80, 120)
 	if err != nil {
 		t.Fatal(err)
 	}
 	// Type 7 quantiles of 0.5 0.6 0.7 0.9 (R: quantile(x, c(.25,.5,.75))):
-	// 0.575, 0.65, 0.75.
-	if !near(c.Q1, 0.575, 1e-12) || !near(c.Median, 0.65, 1e-12) || !near(c.Q3, 0.75, 1e-12) || !c.AtLeastMedian {
+	// 0.575, 0.65, 0.75; median agreement of 0.70 0.75 0.80 0.95: 0.775.
+	if !near(c.Q1, 0.575, 1e-12) || !near(c.Median, 0.65, 1e-12) || !near(c.Q3, 0.75, 1e-12) || !near(c.MedianAgreement, 0.775, 1e-12) || !c.AtLeastMedian {
 		t.Errorf("ceiling %+v", c)
 	}
 	if c.Annotators[0].ID != "d" {
 		t.Errorf("annotators not sorted by kappa: %v", c.Annotators)
 	}
-	if c, _ := CrowdCeiling(ann, 0.64); c.AtLeastMedian {
-		t.Error("0.64 counted as at least the median 0.65")
+	// The gate compares agreements, not kappas.
+	if c, _ := CrowdCeiling(ann, 0.99, 0.77, 120); c.AtLeastMedian {
+		t.Error("agreement 0.77 counted as at least the median 0.775")
 	}
-	if _, err := CrowdCeiling([]Annotator{{"x", math.NaN(), 1}}, 0); err == nil {
+	if c, _ := CrowdCeiling(ann, 0.99, 1, 0); c.AtLeastMedian {
+		t.Error("a machine that would autolabel nothing passed the gate")
+	}
+	if _, err := CrowdCeiling([]Annotator{{"x", math.NaN(), 0.5, 1}}, 0, 0, 1); err == nil {
 		t.Error("NaN kappa accepted")
+	}
+	if _, err := CrowdCeiling([]Annotator{{"x", 0.5, 1.5, 1}}, 0, 0, 1); err == nil {
+		t.Error("agreement 1.5 accepted")
+	}
+}
+
+func TestExactClassIntervals(t *testing.T) {
+	// The degenerate cases of a bootstrap: a class predicted 11 times and
+	// never right, a class predicted twice and right both times, a class
+	// never predicted. Exact intervals (scipy 1.10 beta.ppf, two-sided
+	// 95%): 0 of 11 → [0, 0.28492]; 2 of 2 → [0.15811, 1].
+	var truth, pred []int
+	add := func(t, p, n int) {
+		for range n {
+			truth, pred = append(truth, t), append(pred, p)
+		}
+	}
+	add(0, 1, 11) // class 1 predicted 11 times, all wrong
+	add(2, 2, 2)  // class 2 predicted twice, both right
+	add(0, 0, 30)
+	a, err := Agree(truth, pred, []string{"a", "b", "c", "d"}, 100, 0.95, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, c, d := a.Classes[1], a.Classes[2], a.Classes[3]
+	if b.Precision == nil || b.Precision.Est != 0 || b.Precision.Lo != 0 || !near(b.Precision.Hi, 0.28492, 1e-4) {
+		t.Errorf("0 of 11: %+v", b.Precision)
+	}
+	if b.Recall != nil {
+		t.Errorf("class b has no support, recall %+v (want no estimate)", b.Recall)
+	}
+	if c.Precision == nil || c.Precision.Est != 1 || c.Precision.Hi != 1 || !near(c.Precision.Lo, 0.15811, 1e-4) {
+		t.Errorf("2 of 2: %+v", c.Precision)
+	}
+	if d.Precision != nil || d.Recall != nil {
+		t.Errorf("class d never occurs: %+v %+v (want no estimates)", d.Precision, d.Recall)
+	}
+	var txt bytes.Buffer
+	rep := &Report{Classes: []string{"a", "b", "c", "d"}, Agreement: a, Settings: Settings{Look: 1}}
+	rep.WriteText(&txt)
+	for _, bad := range []string{"0.000 [0.000, 0.000]", "1.000 [1.000, 1.000]", "1.000 [0.000, 1.000]"} {
+		if strings.Contains(txt.String(), bad) {
+			t.Errorf("report shows the degenerate interval %q:\n%s", bad, txt.String())
+		}
+	}
+	if !strings.Contains(txt.String(), "no estimate (0 predicted)") {
+		t.Errorf("report does not say 'no estimate' for a class never predicted:\n%s", txt.String())
+	}
+}
+
+func TestLookAlphaSumsToAlpha(t *testing.T) {
+	sum := 0.0
+	for r := 1; r <= 1_000_000; r++ {
+		sum += LookAlpha(0.05, r)
+	}
+	// Σ_{r≤R} 1/(r(r+1)) = 1 − 1/(R+1).
+	if !near(sum, 0.05*(1-1.0/1_000_001), 1e-12) {
+		t.Errorf("α spent over a million looks: %v", sum)
+	}
+	if !near(LookAlpha(0.05, 1), 0.025, 1e-15) || !near(LookAlpha(0.05, 10), 0.05/110, 1e-15) {
+		t.Errorf("α_1 %v α_10 %v", LookAlpha(0.05, 1), LookAlpha(0.05, 10))
+	}
+}
+
+func TestLooksTightenTheBound(t *testing.T) {
+	// The same data at a later look is tested at a smaller α_r: the bound
+	// grows and the minimum count with it, so a GO at look 1 may be a NOT
+	// YET at look 20.
+	in := sample(1, 2000, []string{"a", "b"})
+	in.Annotators = []Annotator{{"x", 0.6, 0.7, 40}}
+	var covered []int
+	for _, look := range []int{1, 5, 20} {
+		in.Look = look
+		rep, err := Compute(in, Options{Bootstrap: 50})
+		if err != nil {
+			t.Fatal(err)
+		}
+		s := rep.Settings
+		if s.Look != look || !near(s.LookAlpha, 0.05/float64(look*(look+1)), 1e-15) || s.MinCount != MinCountFor(0.05, 1-s.LookAlpha) {
+			t.Errorf("look %d: settings %+v", look, s)
+		}
+		if rep.Threshold.Found {
+			if !near(rep.Threshold.Upper, UpperBound(rep.Threshold.Errors, rep.Threshold.N, 1-s.LookAlpha), 1e-12) {
+				t.Errorf("look %d: bound %v not at level 1 − α_r", look, rep.Threshold.Upper)
+			}
+			covered = append(covered, rep.Threshold.N)
+		}
+		var txt bytes.Buffer
+		rep.WriteText(&txt)
+		if !strings.Contains(txt.String(), fmt.Sprintf("Look %d:", look)) {
+			t.Errorf("look %d: the report does not say which look it is:\n%s", look, txt.String())
+		}
+	}
+	if len(covered) != 3 || !(covered[0] > covered[1] && covered[1] > covered[2]) {
+		t.Errorf("covered held-out items at looks 1, 5, 20: %v, want GO at each with fewer items covered as α_r shrinks", covered)
+	}
+}
+
+func TestUnsettledCountAsDisagreements(t *testing.T) {
+	// 300 settled items, all right at confidence 0.99; 5 unsettled ones at
+	// 0.995 (covered by every threshold). They count as disagreements: the
+	// chosen threshold's errors include them.
+	in := Input{Classes: []string{"a", "b"}, Look: 1}
+	for range 300 {
+		in.Truth = append(in.Truth, 0)
+		in.Proba = append(in.Proba, []float64{0.99, 0.01})
+	}
+	for range 5 {
+		in.Unsettled = append(in.Unsettled, []float64{0.995, 0.005})
+	}
+	in.Standard = &Standard{Level: 0.99, Cap: 9, Members: 400, Share: 0.2, Met: 300, Below: 5, Waiting: 95}
+	rep, err := Compute(in, Options{Bootstrap: 50, NoMedianGate: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	th := rep.Threshold
+	if !th.Found || th.N != 305 || th.Errors != 5 || th.Unsettled != 5 {
+		t.Errorf("threshold %+v: want 305 covered, 5 disagreements, all unsettled", th)
+	}
+	if rep.Agreement.N != 300 || rep.Agreement.Accuracy.Est != 1 {
+		t.Errorf("agreement uses only settled items: n %d accuracy %v", rep.Agreement.N, rep.Agreement.Accuracy.Est)
+	}
+	// Without the unsettled items the bound would pass with 0 errors.
+	in.Unsettled = nil
+	rep2, _ := Compute(in, Options{Bootstrap: 50, NoMedianGate: true})
+	if rep2.Threshold.Upper >= th.Upper {
+		t.Errorf("unsettled items did not raise the bound: %v vs %v", rep2.Threshold.Upper, th.Upper)
+	}
+}
+
+func TestTruthBound(t *testing.T) {
+	// Gold: the consensus errs on 2 of 80 gold items. The bound against the
+	// truth is the disagreement bound plus the consensus-error bound, each
+	// at level 1 − α_r/2.
+	in := sample(1, 1500, []string{"a", "b"})
+	in.Look = 2
+	in.Gold = &GoldCounts{Items: 80, Errors: 2}
+	rep, err := Compute(in, Options{Bootstrap: 50, NoMedianGate: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	tb := rep.Truth
+	if tb == nil || !rep.Threshold.Found {
+		t.Fatalf("no truth bound: %+v", rep.Threshold)
+	}
+	lv := 1 - LookAlpha(0.05, 2)/2
+	th := rep.Threshold
+	if !near(tb.Disagreement, UpperBound(th.Errors, th.N, lv), 1e-12) || !near(tb.ConsensusError, UpperBound(2, 80, lv), 1e-12) ||
+		!near(tb.Total, tb.Disagreement+tb.ConsensusError, 1e-12) || tb.Level != lv {
+		t.Errorf("truth bound %+v", tb)
+	}
+	var txt bytes.Buffer
+	rep.WriteText(&txt)
+	for _, want := range []string{"disagreement bound", "consensus-error bound", "machine vs reference", "reference vs truth"} {
+		if !strings.Contains(txt.String(), want) {
+			t.Errorf("report does not say %q", want)
+		}
 	}
 }
 
@@ -227,38 +390,63 @@ func TestStability(t *testing.T) {
 	}
 }
 
-func TestFitPowerLaw(t *testing.T) {
-	// Points exactly on err = 2·n^−0.5 + 0.03: the fit recovers the curve
-	// and n* = (2 / (0.05 − 0.03))² = 10,000.
+func TestFitCurve(t *testing.T) {
+	// Points exactly on err = 2·n^−0.5 + 0.03 up to 1,600 labels: the fit
+	// recovers the curve; n* = (2 / (0.06 − 0.03))² = 4,444 lies within 3×
+	// the labels spent, so there is an estimate with an interval.
 	var pts []CurvePoint
 	for _, n := range []int{100, 200, 400, 800, 1600} {
 		pts = append(pts, CurvePoint{n, 2*math.Pow(float64(n), -0.5) + 0.03})
 	}
-	f, err := FitPowerLaw(pts, 0.05)
+	f, err := FitCurve(pts, CurveOptions{Target: 0.06})
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !near(f.A, 2, 1e-3) || !near(f.B, 0.5, 1e-4) || !near(f.C, 0.03, 1e-5) {
+	if !near(f.A, 2, 2e-3) || !near(f.B, 0.5, 2e-4) || !near(f.C, 0.03, 1e-5) || f.R2 < 0.999 {
 		t.Errorf("fit %+v, want a 2 b 0.5 c 0.03", f)
 	}
-	if !f.Reachable || math.Abs(float64(f.LabelsAt-10000)) > 10 || f.More != f.LabelsAt-1600 {
-		t.Errorf("labels at target %d (more %d), want about 10000", f.LabelsAt, f.More)
+	if math.Abs(float64(f.LabelsAt-4445)) > 10 || f.More != f.LabelsAt-1600 || f.MoreLo > f.More || f.MoreHi < f.More {
+		t.Errorf("labels at target %d (more %d [%d, %d]), want about 4,445", f.LabelsAt, f.More, f.MoreLo, f.MoreHi)
 	}
-	// Noisy points from a curve with floor 0.08: target 0.05 not reachable.
+	// Target 0.05: n* = 10,000 > 3 × 1,600: no estimate.
+	if _, err := FitCurve(pts, CurveOptions{Target: 0.05}); !errors.Is(err, ErrNoEstimate) || !strings.Contains(err.Error(), "3×") {
+		t.Errorf("extrapolation to 6× the labels spent: %v", err)
+	}
+	// A cap below n*: no estimate either.
+	if _, err := FitCurve(pts, CurveOptions{Target: 0.06, Cap: 3000}); !errors.Is(err, ErrNoEstimate) {
+		t.Errorf("estimate beyond the cap: %v", err)
+	}
+	// Three points are too few.
+	if _, err := FitCurve(pts[:3], CurveOptions{Target: 0.06}); !errors.Is(err, ErrNoEstimate) {
+		t.Errorf("three points: %v", err)
+	}
+	// A flat curve and a noisy one give no estimate.
+	flat := []CurvePoint{{100, 0.2}, {200, 0.2}, {300, 0.2}, {400, 0.2}}
+	if _, err := FitCurve(flat, CurveOptions{Target: 0.1}); !errors.Is(err, ErrNoEstimate) {
+		t.Errorf("flat curve: %v", err)
+	}
+	noisy := []CurvePoint{{100, 0.2}, {200, 0.3}, {300, 0.1}, {400, 0.3}, {500, 0.15}}
+	if _, err := FitCurve(noisy, CurveOptions{Target: 0.05}); !errors.Is(err, ErrNoEstimate) || !strings.Contains(err.Error(), "poorly") {
+		t.Errorf("noisy curve: %v", err)
+	}
+	// A floor above the target: no estimate, and the floor never exceeds
+	// the error reached.
 	r := rand.New(rand.NewPCG(3, 3))
 	pts = pts[:0]
 	for _, n := range []int{50, 100, 200, 300, 500, 800, 1200} {
 		pts = append(pts, CurvePoint{n, 1.5*math.Pow(float64(n), -0.7) + 0.08 + 0.003*r.NormFloat64()})
 	}
-	f, err = FitPowerLaw(pts, 0.05)
-	if err != nil {
-		t.Fatal(err)
+	if _, err := FitCurve(pts, CurveOptions{Target: 0.05}); !errors.Is(err, ErrNoEstimate) || !strings.Contains(err.Error(), "levels off") {
+		t.Errorf("floor above the target: %v", err)
 	}
-	if f.Reachable || !near(f.C, 0.08, 0.01) {
-		t.Errorf("noisy fit %+v: want floor near 0.08, not reachable", f)
+	g := fitPower(pts, pts[len(pts)-1].Error, true)
+	if g.C < 0 || g.C > pts[len(pts)-1].Error || g.B < MinExponent || g.B > MaxExponent || !near(g.C, 0.08, 0.015) {
+		t.Errorf("constrained fit %+v: floor near 0.08 within [0, last error], exponent in range", g.PowerLaw)
 	}
-	if _, err := FitPowerLaw(pts[:2], 0.05); err == nil {
-		t.Error("two points accepted")
+	// Already at the target: 0 more.
+	done := []CurvePoint{{100, 0.3}, {200, 0.2}, {400, 0.12}, {800, 0.08}}
+	if f, err := FitCurve(done, CurveOptions{Target: 0.1}); err != nil || f.More != 0 {
+		t.Errorf("target reached: %+v %v", f, err)
 	}
 }
 
@@ -322,7 +510,7 @@ func TestCoverageRiskFixedSequence(t *testing.T) {
 	if th.Found || th.MinCount != 100 {
 		t.Errorf("50 items: %+v", th)
 	}
-	if MinCountFor(0.01, 0.95) != 299 || MinCountFor(0.05, 0.95) != 100 {
+	if MinCountFor(0.01, 0.95) != 473 || MinCountFor(0.05, 0.95) != 100 || MinCountFor(0.05, 1-0.05/110) != 198 {
 		t.Errorf("MinCountFor: %d %d", MinCountFor(0.01, 0.95), MinCountFor(0.05, 0.95))
 	}
 	if _, _, err := CoverageRisk([]float64{math.NaN()}, []bool{true}, nil, 0.05, 0.95, 0); err == nil {
@@ -373,15 +561,16 @@ func sample(seed uint64, n int, classes []string) Input {
 func TestComputeAndRender(t *testing.T) {
 	classes := []string{"<script>alert(1)</script>", "plain & simple", "third"}
 	in := sample(1, 1500, classes)
-	in.Annotators = []Annotator{{"ann<b>1</b>", 0.61, 300}, {"ann2", 0.72, 280}, {"ann3", 0.55, 150}, {"ann4", 0.8, 90}}
+	in.Annotators = []Annotator{{"ann<b>1</b>", 0.61, 0.7, 300}, {"ann2", 0.72, 0.8, 280}, {"ann3", 0.55, 0.66, 150}, {"ann4", 0.8, 0.85, 90}}
 	stop := make([]int, 300)
 	in.StopSet = [][]int{stop, stop, stop, stop}
 	for _, n := range []int{100, 200, 400, 800, 1200} {
 		in.Curve = append(in.Curve, CurvePoint{n, 0.9*math.Pow(float64(n), -0.4) + 0.02})
 	}
+	in.Run = []Setting{{"max-error", "0.05", "stored"}, {"batch", "50", "flag"}}
 	in.Compare = &Series{Name: "random <selection>", Points: []CurvePoint{{100, 0.3}, {200, 0.25}, {400, 0.2}}}
 	in.Audit = &AuditCounts{Items: 200, Errors: 7}
-	rep, err := Compute(in, Options{Seed: 7, Bootstrap: 300})
+	rep, err := Compute(in, Options{Seed: 7, Bootstrap: 300, TargetError: 0.07})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -392,8 +581,8 @@ func TestComputeAndRender(t *testing.T) {
 	if d.Bound > 0.05 || d.ArchiveCoverage <= 0 || d.Threshold != rep.Threshold.Threshold {
 		t.Errorf("decision %+v", d)
 	}
-	if rep.Fit == nil || !rep.Fit.Reachable || d.LabelsNeeded != rep.Fit.More {
-		t.Errorf("fit %+v, labels needed %d", rep.Fit, d.LabelsNeeded)
+	if rep.Fit == nil || !rep.Fit.Reachable || d.LabelsNeeded != rep.Fit.More || d.LabelsNeeded <= 0 {
+		t.Errorf("fit %+v %q, labels needed %d", rep.Fit, rep.FitError, d.LabelsNeeded)
 	}
 	if rep.Audit == nil || rep.Audit.Errors != 7 || !(rep.Audit.Lo < 0.035 && 0.035 < rep.Audit.Hi) {
 		t.Errorf("audit %+v", rep.Audit)
@@ -413,7 +602,10 @@ func TestComputeAndRender(t *testing.T) {
 	if err := json.Unmarshal(js.Bytes(), &m); err != nil {
 		t.Fatal(err)
 	}
-	for _, key := range []string{"decision", "agreement", "ceiling", "coverage_risk", "threshold", "calibration", "stop", "curve", "compare", "fit", "audit", "settings"} {
+	if !strings.Contains(txt.String(), "batch 50 (flag)") {
+		t.Errorf("text report does not print the run's settings:\n%s", txt.String())
+	}
+	for _, key := range []string{"decision", "agreement", "ceiling", "coverage_risk", "threshold", "calibration", "stop", "curve", "compare", "fit", "audit", "run", "settings"} {
 		if _, ok := m[key]; !ok {
 			t.Errorf("JSON lacks %q", key)
 		}
@@ -471,23 +663,23 @@ func TestNotYet(t *testing.T) {
 		b[i] = i % 2
 	}
 	in.StopSet = [][]int{a, b, a, b}
-	in.Annotators = []Annotator{{"x", 0.8, 50}, {"y", 0.9, 50}}
+	in.Annotators = []Annotator{{"x", 0.8, 0.85, 50}, {"y", 0.9, 0.95, 50}}
 	in.Curve = []CurvePoint{{100, 0.4}, {200, 0.33}, {400, 0.31}, {800, 0.3}}
 	in.Audit = &AuditCounts{Items: 100, Errors: 30}
-	rep, err := Compute(in, Options{Bootstrap: 100, RequireCeiling: true, RequireStable: true})
+	rep, err := Compute(in, Options{Bootstrap: 100, RequireStable: true})
 	if err != nil {
 		t.Fatal(err)
 	}
 	d := rep.Decision
-	if d.Go || len(d.Reasons) != 4 {
-		t.Errorf("want NOT YET with 4 reasons (bound, ceiling, stop, audit), got %+v", d)
+	if d.Go || len(d.Reasons) != 4 || !reflect.DeepEqual(d.HeldBy, []string{GateBound, GateMedian, GateStable, GateAudit}) {
+		t.Errorf("want NOT YET held back by 4 gates (bound, median, stop, audit), got %+v", d)
 	}
 	if d.LabelsNeeded != -1 {
 		t.Errorf("labels needed %d, want −1 (curve levels off above the target)", d.LabelsNeeded)
 	}
 	var txt bytes.Buffer
 	rep.WriteText(&txt)
-	if !strings.HasPrefix(txt.String(), "VERDICT  NOT YET") {
+	if !strings.HasPrefix(txt.String(), "VERDICT  NOT YET (held back by: error bound, median annotator, stop rule, audit)") {
 		t.Errorf("text:\n%s", txt.String())
 	}
 	var html bytes.Buffer

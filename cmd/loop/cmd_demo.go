@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -17,12 +18,13 @@ import (
 
 func init() { register(newDemoCmd) }
 
-// demoProject is one project of the demo workspace.
+// demoProject is one project of the demo workspace, with the settings it
+// stores (`loop config DIR` shows them).
 type demoProject struct {
 	name     string
 	kind     handoff.Kind
 	codebook handoff.Codebook
-	cfg      round.Config
+	settings []round.Override
 }
 
 func newDemoCmd() *cobra.Command {
@@ -64,7 +66,7 @@ rolled up. The data is invented for demonstration only.`,
 		},
 	}
 	c.Flags().Uint64Var(&seed, "seed", 1, "seed of the invented scenario and of every round")
-	c.Flags().IntVar(&rounds, "rounds", 5, "most rounds per project before giving up on GO")
+	c.Flags().IntVar(&rounds, "rounds", 8, "most rounds per project before giving up on GO")
 	c.Flags().StringVar(&only, "only", "", "build just one project: reports or particles")
 	c.Flags().BoolVar(&small, "small", false, "a small scenario, for quick checks")
 	return c
@@ -88,19 +90,19 @@ func runDemo(cmd *cobra.Command, dir string, seed uint64, maxRounds int, only st
 	if err != nil {
 		return err
 	}
-	reports := round.DefaultConfig()
-	reports.Seed = seed
-	particles := round.DefaultConfig()
-	particles.Seed = seed
-	particles.Consensus.Debias = "magnification"
-	particles.Consensus.Reference = "40"
-	reports.HeldOutShare, particles.HeldOutShare = 0.25, 0.25
-	// The demo team accepts up to 10% disagreement with the crowd among
-	// autolabelled items (a team sets its own; the default is 5%).
-	reports.Verdict.MaxError, particles.Verdict.MaxError = 0.10, 0.10
+	sd := fmt.Sprint(seed)
+	// Each demo team keeps its settings in its project: the defaults
+	// (max-error 0.05 at 95% over all looks, the reference standard at
+	// 0.99 or 9 labels), its seed, a reference lag of one round (its crowd
+	// gives 7 labels a request, so a held-out item reaches the cap of 9
+	// with its second request), and for the particles the debiasing by
+	// magnification and a max-error of 0.1 (its images are harder).
+	common := []round.Override{{Key: "seed", Value: sd}, {Key: "reference-lag", Value: "1"}}
 	projects := []demoProject{
-		{name: "reports", kind: handoff.KindText, codebook: sim.TopicCodebook(), cfg: reports},
-		{name: "particles", kind: handoff.KindImage, codebook: sim.ParticleCodebook(), cfg: particles},
+		{name: "reports", kind: handoff.KindText, codebook: sim.TopicCodebook(), settings: common},
+		{name: "particles", kind: handoff.KindImage, codebook: sim.ParticleCodebook(), settings: append(slices.Clone(common),
+			round.Override{Key: "debias", Value: "magnification"}, round.Override{Key: "reference-stratum", Value: "40"},
+			round.Override{Key: "max-error", Value: "0.1"})},
 	}
 	answerRound := 1
 	var summary []string
@@ -136,17 +138,27 @@ func demoProjectRun(cmd *cobra.Command, d *sim.Demo, dir string, pr demoProject,
 	if _, err := st.PutGold(gold, src); err != nil {
 		return "", err
 	}
-	outf(cmd, "%s: %d %s items, %d crowd labels, %d gold answers\n", pr.name, len(items), pr.kind, len(labels), len(gold))
+	if _, err := round.SetSettings(st, pr.settings, src); err != nil {
+		return "", err
+	}
+	var set []string
+	for _, o := range pr.settings {
+		set = append(set, o.Key+" "+o.Value)
+	}
+	outf(cmd, "%s: %d %s items, %d crowd labels, %d gold answers; settings stored: %s\n", pr.name, len(items), pr.kind, len(labels), len(gold), strings.Join(set, ", "))
 	var res *round.Result
 	for r := 1; r <= maxRounds; r++ {
-		res, err = round.Run(st, pr.cfg, src)
+		res, err = round.RunWith(st, round.RunOptions{}, src)
 		if err != nil {
 			return "", err
 		}
 		dec := res.Verdict.Decision
-		outf(cmd, "  round %d: trained on %d items, held-out accuracy %.3f, %s\n",
-			res.Round, res.Train.Rows, res.Verdict.Agreement.Accuracy.Est, res.Verdict.Headline())
-		if dec.Go && r >= 2 || r == maxRounds {
+		held := "no held-out item counts yet"
+		if res.HeldOut > 0 {
+			held = fmt.Sprintf("%d held-out items count, accuracy %.3f", res.HeldOut, res.Verdict.Agreement.Accuracy.Est)
+		}
+		outf(cmd, "  round %d: trained on %d items, %s, %s\n", res.Round, res.Train.Rows, held, res.Verdict.Headline())
+		if dec.Go || r == maxRounds {
 			break
 		}
 		if err := demoAnswer(st, d, res.Batch, answerRound, src); err != nil {

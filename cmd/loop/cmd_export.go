@@ -117,11 +117,12 @@ func newRollupCmd() *cobra.Command {
 	)
 	c := &cobra.Command{
 		Use:   "rollup DIR --by parent",
-		Short: "Roll item labels up to their parents, with bootstrap intervals",
+		Short: "Roll item labels up to their parents, with exact intervals",
 		Long: `rollup gives, for each parent (the document or source items were split
 from), the share of each class among its items' final labels and, for an
-ordinal codebook, the mean position (1 = lowest class), each with a bootstrap
-95% interval that resamples items within the parent.`,
+ordinal codebook, the mean position (1 = lowest class), each with an exact
+95% Clopper–Pearson interval (for the position, on its fractional count; see
+round.Rollup), the parent's items taken as a sample of its items.`,
 		Example: `  loop rollup proj --by parent
   loop rollup proj --by parent --json > shares.json`,
 		Args: cobra.ExactArgs(1),
@@ -170,8 +171,8 @@ ordinal codebook, the mean position (1 = lowest class), each with a bootstrap
 		},
 	}
 	c.Flags().StringVar(&by, "by", "parent", "what to roll up by (parent)")
-	c.Flags().IntVar(&cfg.Reps, "reps", 1000, "bootstrap replicates")
-	c.Flags().Uint64Var(&cfg.Seed, "seed", 1, "bootstrap seed")
+	c.Flags().IntVar(&cfg.Reps, "reps", 1000, "unused: the intervals are exact (kept so that older scripts run)")
+	c.Flags().Uint64Var(&cfg.Seed, "seed", 1, "unused: the intervals are exact (kept so that older scripts run)")
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c
 }

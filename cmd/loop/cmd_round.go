@@ -3,9 +3,9 @@ package main
 import (
 	"encoding/csv"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
-	"os"
 	"strconv"
 	"strings"
 
@@ -14,9 +14,7 @@ import (
 	"handoff"
 	"handoff/learner"
 	"handoff/round"
-	"handoff/selector"
 	"handoff/store"
-	"handoff/verdict"
 )
 
 func init() {
@@ -112,75 +110,45 @@ func trainText(r *round.TrainReport) string {
 	return b.String()
 }
 
-// roundFlags binds a round's options.
-type roundFlags struct {
-	cfg       round.Config
-	kind      string
-	strategy  string
-	diversity string
-	clean     cleaningFlags
-}
-
-func (f *roundFlags) bind(c *cobra.Command) {
-	f.cfg = round.DefaultConfig()
-	fl := c.Flags()
-	trainFlags(c, &f.cfg.Train, &f.kind)
-	fl.StringVar(&f.cfg.Consensus.Method, "method", "dawid-skene", "combining method: majority, dawid-skene or one-coin")
-	fl.StringVar(&f.cfg.Consensus.Debias, "debias", "", "correct a bias shared by everyone that depends on this covariate")
-	fl.StringVar(&f.cfg.Consensus.Reference, "reference-stratum", "", "the covariate value taken as unbiased when there is no gold")
-	fl.IntVar(&f.cfg.Batch, "n", 200, "size of the next batch")
-	fl.StringVar(&f.strategy, "strategy", "entropy", "model-unsure score: entropy, margin, least-confidence or committee")
-	fl.StringVar(&f.diversity, "diversity", "", "spread model-unsure picks: cosine or euclidean (default: off)")
-	fl.Float64Var(&f.cfg.HeldOutShare, "held-out", 0.1, "share of labelled items reserved for the verdict at the first round")
-	fl.Float64Var(&f.cfg.Verdict.MaxError, "max-error", 0.05, "largest acceptable disagreement among autolabelled items")
-	fl.Float64Var(&f.cfg.Verdict.Confidence, "confidence", 0.95, "confidence level of the error bound")
-	fl.Uint64Var(&f.cfg.Seed, "seed", 1, "seed of every random choice")
-	f.clean.bind(c)
-}
-
-func (f *roundFlags) config() (round.Config, error) {
-	cfg := f.cfg
-	k, err := parseKind(f.kind)
-	if err != nil {
-		return cfg, err
-	}
-	cfg.Train.Kind = k
-	st, err := selector.ParseStrategy(f.strategy)
-	if err != nil {
-		return cfg, usageErrorf("--strategy: %v", err)
-	}
-	cfg.Strategy = st
-	switch f.diversity {
-	case "":
-	case "cosine", "euclidean":
-		cfg.Diversity = selector.Metric(f.diversity)
-	default:
-		return cfg, usageErrorf("--diversity %q: want cosine or euclidean", f.diversity)
-	}
-	cfg.Consensus.Rules = f.clean.rules()
-	cfg.Consensus.NoCleaning = f.clean.noCleaning
-	return cfg, nil
-}
-
 func newRoundCmd() *cobra.Command {
 	var (
-		f      roundFlags
 		asJSON bool
+		force  bool
 	)
 	c := &cobra.Command{
 		Use:   "round DIR",
-		Short: "Run one round: consensus → train → score → next batch → verdict",
-		Long: `round runs the whole loop once: it cleans and combines the crowd labels,
-reserves (or tops up) the held-out set, trains the machine on the rest,
-scores the unlabelled items, picks the next batch for people (each item with
-its reason) and reaches a verdict on the held-out set. Everything is stored as
-a numbered round; the same store and seed give the same results.`,
+		Short: "Run one round: consensus → train → score → verdict → next batch",
+		Long: `round runs the whole loop once, as one step on one snapshot of the project
+and one commit: it cleans and combines the crowd labels, trains the machine on
+the labelled items outside the held-out set, scores the archive, reaches a
+verdict on the held-out set and picks the next batch for people (each item with
+its reason). Everything is stored as a numbered round in one transaction; the
+same project and settings give the same results.
+
+The settings are the project's (` + "`loop config DIR`" + `); a flag below overrides
+one for this run only, and the output says so.
+
+The held-out set is a random sample of the archive fixed at the first round
+(settings held-out and held-out-min; see ` + "`loop config --help`" + `). Its items are
+never trained on; the next batch asks people for their first labels (reason
+held-out) and for more labels until each meets the reference standard
+(reason reference: consensus posterior ≥ reference-level, default 0.99, or
+reference-cap labels, default 9). The verdict counts only held-out items that
+meet the standard; labelled ones below it count as disagreements wherever a
+threshold covers them.
+
+The verdict's error bound holds at the stated confidence over all rounds a team
+runs before its first GO: α = 1 − confidence is spent across looks, look r
+testing at α/(r(r+1)). Only rounds with labels new since the last one are looks:
+without new labels a round changes nothing and says so (--force runs it anyway,
+without adding a look).`,
 		Example: `  loop round proj
-  loop round proj --n 300 --strategy margin --max-error 0.03
-  loop round particles --debias magnification --reference-stratum 40`,
+  loop round proj -n 300 --strategy margin --max-error 0.03
+  loop round particles --debias magnification --reference-stratum 40
+  loop round proj --force --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			cfg, err := f.config()
+			over, err := checkedOverrides(cmd)
 			if err != nil {
 				return err
 			}
@@ -190,23 +158,36 @@ a numbered round; the same store and seed give the same results.`,
 			}
 			defer s.Close()
 			bar := newProgress(cmd, -1, "round")
-			r, err := round.Run(s, cfg, source(cmd))
+			r, err := round.RunWith(s, round.RunOptions{Overrides: over, Force: force}, source(cmd))
 			bar.Finish()
+			if errors.Is(err, round.ErrNoNewLabels) {
+				outf(cmd, "round: %v\n", err)
+				return nil
+			}
 			if err != nil {
-				return err
+				return settingUsage(err)
 			}
 			if asJSON {
 				return printJSON(cmd, r)
 			}
-			outf(cmd, "round %d: model %s\n", r.Round, r.Model)
+			outf(cmd, "round %d (look %d): model %s\n", r.Round, r.Look, r.Model)
+			outf(cmd, "  settings: %s\n", overrideText(over))
+			for _, n := range r.Notes {
+				outf(cmd, "  note: %s\n", n)
+			}
 			outf(cmd, "%s", indent(consensusText(r.Consensus, false)))
 			outf(cmd, "%s", indent(trainText(r.Train)))
+			if st := r.Verdict.Standard; st != nil {
+				outf(cmd, "  held-out set: %d items (a random %.3g of the archive): %d count and meet the reference standard, %d count but do not yet, %d labelled too recently to count, %d without labels\n",
+					st.Members, r.HeldOutShare, st.Met, st.Below, st.Pending, st.Waiting)
+			}
 			outf(cmd, "  next batch: %d items (%s); write it with `loop next %s`\n", len(r.Batch), reasonCounts(r.Batch), args[0])
 			outf(cmd, "verdict: %s\n", r.Verdict.Headline())
 			return nil
 		},
 	}
-	f.bind(c)
+	bindSettings(c)
+	c.Flags().BoolVar(&force, "force", false, "run the round even when no label is new since the last one (it is then not a new look)")
 	c.Flags().BoolVar(&asJSON, "json", false, "print the round as JSON")
 	return c
 }
@@ -229,23 +210,35 @@ func reasonCounts(b []round.BatchItem) string {
 
 func newNextCmd() *cobra.Command {
 	var (
-		cfg              round.NextConfig
-		strategy, format string
-		out, diversity   string
-		shares           string
+		cfg         round.NextConfig
+		format, out string
 	)
 	c := &cobra.Command{
 		Use:   "next DIR",
 		Short: "Write the next batch of items for people, each with its reason",
-		Long: `next picks the items people should label next with the latest round's
-model and writes them as CSV or JSONL, ready for any crowd platform or the
-built-in labelling page. Each item carries its reason: model-unsure (the model
-is least sure), crowd-split (the crowd still disagrees: more labels),
-conflict (a confident crowd the model disputes: expert review), held-out
-(a random top-up of the held-out set) or audit (a random machine-labelled
-item, with --audit N, to measure the real error after handoff).`,
-		Example: `  loop next proj --n 200 --out batch.csv
-  loop next proj --n 100 --strategy margin --diversity cosine --format jsonl
+		Long: `next writes the batch the latest round chose — the same items with the same
+reasons — as CSV or JSONL, ready for any crowd platform or the built-in
+labelling page. Each item carries its reason:
+
+  held-out        a random member of the held-out set without labels yet
+  reference       a held-out item whose consensus is below the reference
+                  standard: more labels
+  model-vs-crowd  a confident crowd the model disputes (out-of-fold): expert review
+  crowd-split     the crowd still disagrees: more labels
+  model-unsure    the model is least sure: a label teaches it most
+  audit           (with --audit N) a random machine-labelled item, to measure
+                  the real error after handoff
+  below-threshold (with --below-threshold) an item autolabel left for people
+
+With -n, --shares, --strategy, --diversity, --density, --balanced or --seed the
+batch is picked again from the latest round's scores with those settings (the
+archive is not featurised again unless --diversity or --density needs feature
+rows) and stored as the round's batch, so the board hands out the same items.
+Items of an earlier batch that nobody labelled go back to the pool at the next
+round.`,
+		Example: `  loop next proj --out batch.csv
+  loop next proj -n 100 --shares model-unsure=0.6,held-out=0.3,reference=0.1
+  loop next proj -n 100 --strategy margin --diversity cosine --format jsonl
   loop next proj --audit 150 --out audit.csv
   loop next proj --below-threshold --out people.csv`,
 		Args: cobra.ExactArgs(1),
@@ -253,30 +246,28 @@ item, with --audit N, to measure the real error after handoff).`,
 			if format != "csv" && format != "jsonl" {
 				return usageErrorf("--format %q: want csv or jsonl", format)
 			}
-			if strategy != "" {
-				st, err := selector.ParseStrategy(strategy)
-				if err != nil {
-					return usageErrorf("--strategy: %v", err)
+			if cmd.Flags().Changed("audit") && cfg.Audit < 1 {
+				return usageErrorf("--audit %d: want a number of items ≥ 1", cfg.Audit)
+			}
+			var err error
+			if cfg.Overrides, err = checkedOverrides(cmd); err != nil {
+				return err
+			}
+			if cfg.BelowThreshold || cfg.Audit > 0 {
+				if len(cfg.Overrides) > 1 || len(cfg.Overrides) == 1 && cfg.Overrides[0].Key != "batch" {
+					return usageErrorf("--audit and --below-threshold take no batch settings but -n")
 				}
-				cfg.Strategy = st
-			}
-			switch diversity {
-			case "":
-			case "cosine", "euclidean":
-				cfg.Diversity = selector.Metric(diversity)
-			default:
-				return usageErrorf("--diversity %q: want cosine or euclidean", diversity)
-			}
-			if shares != "" {
-				cfg.Shares = map[selector.Reason]float64{}
-				for _, kv := range strings.Split(shares, ",") {
-					k, v, ok := strings.Cut(kv, "=")
-					x, err := strconv.ParseFloat(v, 64)
-					if !ok || err != nil {
-						return usageErrorf("--shares %q: want reason=share,… e.g. model-unsure=0.7,held-out=0.3", shares)
+				if len(cfg.Overrides) == 1 {
+					var n int
+					if _, err := fmt.Sscan(cfg.Overrides[0].Value, &n); err != nil || n < 1 {
+						return usageErrorf("-n %q: want an integer ≥ 1", cfg.Overrides[0].Value)
 					}
-					cfg.Shares[selector.Reason(strings.TrimSpace(k))] = x
+					if cfg.Audit > 0 {
+						return usageErrorf("give the audit's size with --audit N, not -n")
+					}
+					cfg.N = n
 				}
+				cfg.Overrides = nil
 			}
 			s, err := openStore(args[0])
 			if err != nil {
@@ -285,7 +276,7 @@ item, with --audit N, to measure the real error after handoff).`,
 			defer s.Close()
 			b, err := round.Next(s, cfg, source(cmd))
 			if err != nil {
-				return err
+				return settingUsage(err)
 			}
 			w, done, err := openOutput(cmd, out)
 			if err != nil {
@@ -304,16 +295,10 @@ item, with --audit N, to measure the real error after handoff).`,
 			return nil
 		},
 	}
+	bindSettings(c, "batch", "shares", "strategy", "diversity", "density", "balanced", "seed")
 	fl := c.Flags()
-	fl.IntVar(&cfg.N, "n", 200, "batch size")
-	fl.StringVar(&strategy, "strategy", "", "entropy, margin, least-confidence or committee (default: the round's)")
-	fl.StringVar(&diversity, "diversity", "", "spread model-unsure picks: cosine or euclidean")
-	fl.Float64Var(&cfg.Beta, "density", 0, "weight model-unsure scores by information density to this power (0: off)")
-	fl.BoolVar(&cfg.Balanced, "balanced", false, "spread model-unsure picks over the predicted classes")
-	fl.StringVar(&shares, "shares", "", "split over reasons, e.g. model-unsure=0.6,held-out=0.2,crowd-split=0.1,conflict=0.1")
 	fl.IntVar(&cfg.Audit, "audit", 0, "instead: this many random machine-labelled items to audit")
-	fl.BoolVar(&cfg.BelowThreshold, "below-threshold", false, "instead: the items autolabel left for people")
-	fl.Uint64Var(&cfg.Seed, "seed", 0, "seed (default: the round's)")
+	fl.BoolVar(&cfg.BelowThreshold, "below-threshold", false, "instead: the items autolabel left for people (-n caps how many)")
 	fl.StringVar(&format, "format", "csv", "csv or jsonl")
 	fl.StringVarP(&out, "out", "o", "", "output file (default: standard output)")
 	return c
@@ -340,42 +325,50 @@ func writeBatch(w io.Writer, format string, b []round.BatchItem) error {
 
 func newVerdictCmd() *cobra.Command {
 	var (
-		asJSON    bool
-		html      string
-		maxErr    float64
-		conf      float64
-		requireCe bool
-		requireSt bool
+		asJSON bool
+		html   string
 	)
 	c := &cobra.Command{
 		Use:   "verdict DIR",
 		Short: "Is the machine good enough to take over? The handoff report",
-		Long: `verdict reports, on the held-out set of the latest round: accuracy, Cohen's
-kappa and macro-F1 of machine against crowd with bootstrap intervals; the crowd
-ceiling (each annotator's kappa against the leave-one-out consensus) and
-whether the machine is as good as the median annotator; the coverage–risk
-curve with Clopper–Pearson upper bounds and the threshold chosen by
-fixed-sequence testing, so the bound holds without another split; calibration;
-the stopping rule; the learning curve with the labels still needed; and, after
-an audit, the real error of machine labels. It ends with GO (threshold,
-coverage, bound) or NOT YET (why).
+		Long: `verdict reports, on the held-out set of the latest round — the held-out items
+that meet the reference standard: accuracy, Cohen's kappa and macro-F1 of
+machine against the reference with bootstrap intervals, per-class precision and
+recall with exact intervals; the crowd ceiling and whether the machine agrees
+with the reference on the items it would autolabel at least as often as the
+median annotator agrees with the others (required for GO unless the setting
+median-gate is off); the coverage–risk curve with Clopper–Pearson upper bounds
+and the threshold chosen by fixed-sequence testing; with gold, a bound on the
+machine's error against the truth (disagreement bound + the consensus's error
+bound on gold); calibration; the stop rule; the learning curve, scored on one
+fixed evaluation set, with the labels still needed when an estimate can be made;
+and, after an audit, the real error of machine labels. It ends with GO
+(threshold, coverage, bound) or NOT YET and the gates that held it back, and
+prints the settings it used.
 
-With --max-error or --confidence different from the round's, the verdict is
-recomputed from the stored round.`,
+The bound's confidence holds over all rounds before the first GO: look r of the
+verdict tests at α/(r(r+1)) (α = 1 − confidence), and the report says which look
+it is. With --max-error, --confidence, --median-gate or --require-stable the
+verdict is computed again from the latest round's stored scores for this report
+only.`,
 		Example: `  loop verdict proj
   loop verdict proj --max-error 0.03 --confidence 0.99
   loop verdict proj --html report.html
   loop verdict proj --json | jq .decision`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			over, err := checkedOverrides(cmd)
+			if err != nil {
+				return err
+			}
 			s, err := openStore(args[0])
 			if err != nil {
 				return err
 			}
 			defer s.Close()
-			rep, err := round.Verdict(s, round.VerdictConfig{MaxError: maxErr, Confidence: conf, RequireCeiling: requireCe, RequireStable: requireSt})
+			rep, err := round.Verdict(s, round.VerdictConfig{Overrides: over})
 			if err != nil {
-				return err
+				return settingUsage(err)
 			}
 			if html != "" {
 				w, done, err := openOutput(cmd, html)
@@ -400,13 +393,10 @@ recomputed from the stored round.`,
 			return nil
 		},
 	}
+	bindSettings(c, "max-error", "confidence", "median-gate", "require-stable")
 	fl := c.Flags()
 	fl.BoolVar(&asJSON, "json", false, "print JSON")
 	fl.StringVar(&html, "html", "", "also write a self-contained HTML report with plots to this file")
-	fl.Float64Var(&maxErr, "max-error", 0, "largest acceptable disagreement among autolabelled items (default: the round's, 0.05)")
-	fl.Float64Var(&conf, "confidence", 0, "confidence level of the error bound (default: the round's, 0.95)")
-	fl.BoolVar(&requireCe, "require-ceiling", false, "GO also needs the machine to agree with the crowd as well as the median annotator")
-	fl.BoolVar(&requireSt, "require-stable", false, "GO also needs the stopping rule (stable predictions)")
 	return c
 }
 
@@ -419,9 +409,10 @@ func newAutolabelCmd() *cobra.Command {
 	c := &cobra.Command{
 		Use:   "autolabel DIR",
 		Short: "Write machine labels above the threshold; queue the rest for people",
-		Long: `autolabel scores every unlabelled item with the latest round's model, writes a
-machine label (class, calibrated confidence, model version, round) for each
-item at or above the threshold, and queues the rest for people (write them
+		Long: `autolabel takes the latest round's scores of every item without crowd labels
+(machine-labelled ones included, so a newer model relabels them; the archive is
+not featurised again), writes a machine label (class, calibrated confidence,
+model version, round) for each item at or above the threshold, and queues the rest for people (write them
 with ` + "`loop next DIR --below-threshold`" + `). The threshold is the verdict's
 (auto) unless you give one. Without a GO verdict it refuses unless --force.
 
@@ -434,7 +425,7 @@ Machine labels are evidence, not truth: audit a random sample afterwards with
 			var cfg round.AutolabelConfig
 			if threshold != "auto" {
 				x, err := strconv.ParseFloat(threshold, 64)
-				if err != nil || x <= 0 || x > 1 {
+				if err != nil || !(x > 0 && x <= 1) {
 					return usageErrorf("--threshold %q: want auto or a number in (0, 1]", threshold)
 				}
 				cfg.Threshold = x
@@ -455,7 +446,10 @@ Machine labels are evidence, not truth: audit a random sample afterwards with
 				return printJSON(cmd, r)
 			}
 			outf(cmd, "autolabel with model %s (round %d) at threshold %.4g:\n", r.Model, r.Round, r.Threshold)
-			outf(cmd, "  %d unlabelled items scored: %d machine-labelled, %d left for people\n", r.Scored, r.Labelled, r.Queued)
+			outf(cmd, "  %d items without crowd labels scored: %d machine-labelled, %d left for people\n", r.Scored, r.Labelled, r.Queued)
+			if r.Unscored > 0 {
+				outf(cmd, "  %d items added since round %d have no score yet: run a round to score them\n", r.Unscored, r.Round)
+			}
 			if r.Forced {
 				outf(cmd, "  FORCED without a GO verdict: no error bound holds for these labels; audit them\n")
 			} else if r.Bound > 0 {
@@ -524,6 +518,3 @@ func roundStatus(s *store.Store) (any, string, error) {
 	v := map[string]any{"round": r.Round, "model": r.Model, "decision": r.Verdict.Decision, "held_out": r.HeldOut, "pool": r.Pool}
 	return v, fmt.Sprintf("latest round %d, model %s: %s\n", r.Round, r.Model, r.Verdict.Headline()), nil
 }
-
-var _ = os.Stdout
-var _ verdict.Options

@@ -10,9 +10,11 @@ import (
 	"fmt"
 	"log"
 	"os"
+	"strings"
 	"time"
 
 	"handoff/bench/verdict"
+	"handoff/crowd"
 	"handoff/verdict"
 )
 
@@ -23,6 +25,8 @@ func main() {
 	level := flag.Float64("confidence", 0.95, "confidence of the bound")
 	seed := flag.Uint64("seed", 2026, "seed")
 	grid := flag.String("cp", "", "write Clopper–Pearson bounds over a (k, n) grid to this file")
+	looks := flag.Int("looks", 500, "projects of the repeated-looks simulation (0: skip it)")
+	looksMD := flag.String("looks-md", "", "write the repeated-looks tables (Markdown) to this file")
 	flag.Parse()
 
 	if *grid != "" {
@@ -47,6 +51,51 @@ func main() {
 		}
 		f.Close()
 		fmt.Printf("cp_count %d\ncp_seconds %.6f\n", count, el.Seconds())
+	}
+
+	if *looks > 0 {
+		var md strings.Builder
+		for _, c := range []struct {
+			maxErr float64
+			method string
+		}{{0.05, ""}, {0.10, ""}, {0.05, crowd.MethodOneCoin}, {0.10, crowd.MethodOneCoin}} {
+			t0 := time.Now()
+			r, err := honest.RunLooks(honest.LooksConfig{Projects: *looks, MaxError: c.maxErr, Level: *level, Seed: *seed, Method: c.method})
+			if err != nil {
+				log.Fatal(err)
+			}
+			method := r.Config.Method
+			if c.method == "" {
+				method += " (the default)"
+			}
+			fmt.Fprintf(&md, "\n### max-error %.2f, consensus %s\n\n%d projects, %.0f s; the settled reference labels err against the truth on %.1f%% of items (mean over projects at their last look).\n\n",
+				c.maxErr, method, *looks, time.Since(t0).Seconds(), 100*r.ReferenceError)
+			md.WriteString("| rule | GO verdicts (of projects) | exceeded max-error against the truth | rate | mean look of the first GO | mean archive coverage | |\n| --- | --- | --- | --- | --- | --- | --- |\n")
+			for k, x := range r.Rules {
+				rate, verdictStr := "—", "comparison"
+				if x.Go > 0 {
+					rate = fmt.Sprintf("%.2f%%", 100*float64(x.Exceed)/float64(x.Go))
+				}
+				if k == 0 {
+					verdictStr = "≤ 5%: pass"
+					if x.Go > 0 && float64(x.Exceed) > 0.05*float64(x.Go) {
+						verdictStr = "≤ 5%: short"
+					}
+					if x.Go == 0 {
+						verdictStr = "no GO: nothing to measure"
+					}
+					fmt.Printf("looks_%g_%s_go %d\nlooks_%g_%s_exceed %d\n", c.maxErr, r.Config.Method, x.Go, c.maxErr, r.Config.Method, x.Exceed)
+				}
+				fmt.Fprintf(&md, "| %s | %d | %d | %s | %.1f | %.2f | %s |\n", x.Rule, x.Go, x.Exceed, rate, x.Look, x.Coverage, verdictStr)
+			}
+		}
+		if *looksMD != "" {
+			if err := os.WriteFile(*looksMD, []byte(md.String()), 0o644); err != nil {
+				log.Fatal(err)
+			}
+		} else {
+			fmt.Print(md.String())
+		}
 	}
 
 	start := time.Now()
