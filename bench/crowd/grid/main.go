@@ -74,7 +74,7 @@ func main() {
 	texts := flag.String("texts", "testdata/pkgdesc.jsonl", "real texts (id, text, section) for the second table; empty: none")
 	flag.Parse()
 	t0 := time.Now()
-	out := map[string]any{}
+	out := map[string]any{"load_before": loadavg()}
 	var grid []Cell
 	for _, l := range ints(*perAnn) {
 		for _, k := range ints(*classes) {
@@ -99,6 +99,7 @@ func main() {
 		out["texts"] = tc
 	}
 	out["seconds"] = time.Since(t0).Seconds()
+	out["load_after"] = loadavg()
 	out["gomaxprocs"] = runtime.GOMAXPROCS(0)
 	enc := json.NewEncoder(os.Stdout)
 	enc.SetIndent("", " ")
@@ -272,6 +273,16 @@ func ints(s string) []int {
 		out = append(out, n)
 	}
 	return out
+}
+
+// loadavg is the first three fields of /proc/loadavg ("" where there is none).
+func loadavg() string {
+	b, err := os.ReadFile("/proc/loadavg")
+	if err != nil {
+		return ""
+	}
+	f := strings.Fields(string(b))
+	return strings.Join(f[:min(3, len(f))], " ")
 }
 
 func fail(err error) {
