@@ -31,6 +31,7 @@ DATA=${DATA:-/tmp/crowd-bench-$ITEMS-$ANNOTATORS-$PER_ITEM.bin}
 OUT=${OUT:-bench/crowd/RESULTS.md}
 RAW=${RAW:-bench/crowd/results.json}
 GRID_RAW=${GRID_RAW:-bench/crowd/grid.json}
+trap 'rm -f "$OUT.partial" "$GRID_RAW.partial"' EXIT
 
 if [ -z "${REPORT_ONLY:-}" ]; then
 for part in $PARTS; do
