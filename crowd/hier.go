@@ -24,9 +24,16 @@ import (
 //     I_a = Σ_t n_a[t]·σ'(L_t + δ_a) + σ'(L̄ + δ_a).
 //  3. Shrinkage of skills (random effects, DerSimonian & Laird 1986):
 //     τ² over the annotators with labels and the random-effects mean δ̄ as
-//     in derSimonianLaird, and δ*_a = δ̄ + (δ_a − δ̄)·τ²/(τ² + v_a): an annotator with ten
-//     labels is pulled towards the crowd's skill, one with hundreds keeps
-//     their own.
+//     in derSimonianLaird, and δ*_a = δ̄ + (δ_a − δ̄)·τ²/(τ² + v_a): an
+//     annotator with ten labels is pulled towards the crowd's skill, one
+//     with hundreds keeps their own. τ² and δ̄ are estimated once, in the
+//     first hierarchical M-step, and then held: EM starts with five
+//     one-coin iterations (from label shares alone the posteriors are too
+//     soft for the spread of skills to show), and re-estimating τ² from the
+//     shrunk model's own, softer posteriors feeds on itself (on a simulated
+//     crowd with accuracies 0.9/0.7/0.55 and 12 labels each, τ fell from
+//     0.57 to 0 in ten iterations and accuracy from 0.90 to 0.87, below
+//     one-coin's 0.89).
 //  4. Prior mean of a's row t: μ_a[t][t] = σ(L_t + δ*_a) and, off the
 //     diagonal, μ_a[t][c] = (1 − μ_a[t][t])·m[t][c]/(1 − m[t][t]): a's
 //     mistakes are shaped like the crowd's.
