@@ -203,16 +203,27 @@ func emRun[F float](method string, l *Labels, o Options) (*Result, error) {
 			nItems++
 		}
 	}
-	// Initial M-step from label shares.
+	// Initial M-step from label shares. The hierarchical model starts from
+	// one-coin EM (warm iterations): from label shares alone, posteriors
+	// are too soft for its skill spread to show (every annotator looks
+	// alike and EM stays there).
+	warm := 0
+	step := method
+	if method == MethodHierarchical {
+		warm, step = min(hierWarm, maxIter-1), MethodOneCoin
+	}
 	s.run(func(wk int) { s.shares(wk); s.accumulate(wk) })
-	s.mstep(method, o.Smoothing, nItems)
+	s.mstep(step, o.Smoothing, nItems)
 	prev := math.Inf(-1)
 	for r.Iterations < maxIter {
 		s.run(func(wk int) { s.estep(wk, nil); s.accumulate(wk) })
 		r.Iterations++
 		ll := s.sumLL()
-		s.mstep(method, o.Smoothing, nItems)
-		if math.Abs(ll-prev) < tol*max(1, math.Abs(ll)) {
+		if r.Iterations > warm {
+			step = method
+		}
+		s.mstep(step, o.Smoothing, nItems)
+		if r.Iterations > warm+1 && math.Abs(ll-prev) < tol*max(1, math.Abs(ll)) {
 			r.Converged = true
 			break
 		}

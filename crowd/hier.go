@@ -23,11 +23,17 @@ import (
 //     who is always or never right), with variance v_a = 1/I_a,
 //     I_a = Σ_t n_a[t]·σ'(L_t + δ_a) + σ'(L̄ + δ_a).
 //  3. Shrinkage of skills (random effects, DerSimonian & Laird 1986):
-//     w_a = 1/v_a, δ̄ = Σ w δ / Σ w, Q = Σ w (δ − δ̄)²,
-//     τ² = max(0, (Q − (A−1)) / (Σw − Σw²/Σw)) over the A annotators with
-//     labels, and δ*_a = δ̄ + (δ_a − δ̄)·τ²/(τ² + v_a): an annotator with ten
-//     labels is pulled towards the crowd's skill, one with hundreds keeps
-//     their own.
+//     τ² over the annotators with labels and the random-effects mean δ̄ as
+//     in derSimonianLaird, and δ*_a = δ̄ + (δ_a − δ̄)·τ²/(τ² + v_a): an
+//     annotator with ten labels is pulled towards the crowd's skill, one
+//     with hundreds keeps their own. τ² and δ̄ are estimated once, in the
+//     first hierarchical M-step, and then held: EM starts with five
+//     one-coin iterations (from label shares alone the posteriors are too
+//     soft for the spread of skills to show), and re-estimating τ² from the
+//     shrunk model's own, softer posteriors feeds on itself (on a simulated
+//     crowd with accuracies 0.9/0.7/0.55 and 12 labels each, τ fell from
+//     0.57 to 0 in ten iterations and accuracy from 0.90 to 0.87, below
+//     one-coin's 0.89).
 //  4. Prior mean of a's row t: μ_a[t][t] = σ(L_t + δ*_a) and, off the
 //     diagonal, μ_a[t][c] = (1 − μ_a[t][t])·m[t][c]/(1 − m[t][t]): a's
 //     mistakes are shaped like the crowd's.
@@ -65,7 +71,10 @@ type HierPrior struct {
 	Skill []float64 `json:"-"`
 }
 
-const hierMaxEB = 4000 // annotators used for β
+const (
+	hierMaxEB = 4000 // annotators used for β
+	hierWarm  = 5    // one-coin iterations before the hierarchical M-step
+)
 
 func sigmoid(x float64) float64 { return 1 / (1 + math.Exp(-x)) }
 
@@ -128,34 +137,14 @@ func hierMstep[F float](cnt []F, nA, k int, p []float64, mu []float64, workers i
 			y[a], v[a] = skillFit(nt, L, Lbar, right+0.5)
 		}
 	})
-	// DerSimonian–Laird.
-	var sw, sw2, swy float64
-	var na int
-	for a := 0; a < nA; a++ {
-		if math.IsInf(v[a], 1) {
-			continue
-		}
-		w := 1 / v[a]
-		sw += w
-		sw2 += w * w
-		swy += w * y[a]
-		na++
-	}
-	if na > 0 && sw > 0 {
-		h.SkillMean = swy / sw
-	}
-	var q float64
-	for a := 0; a < nA; a++ {
-		if !math.IsInf(v[a], 1) {
-			d := y[a] - h.SkillMean
-			q += d * d / v[a]
-		}
-	}
 	var tau2 float64
-	if na > 1 && sw-sw2/sw > 0 {
-		tau2 = max(0, (q-float64(na-1))/(sw-sw2/sw))
+	if prev == nil {
+		h.SkillMean, tau2 = derSimonianLaird(y, v)
+		h.SkillSD = math.Sqrt(tau2)
+	} else {
+		h.SkillMean, h.SkillSD = prev.SkillMean, prev.SkillSD
+		tau2 = h.SkillSD * h.SkillSD
 	}
-	h.SkillSD = math.Sqrt(tau2)
 	for a := 0; a < nA; a++ {
 		d := h.SkillMean
 		if !math.IsInf(v[a], 1) && tau2 > 0 {
@@ -181,6 +170,50 @@ func hierMstep[F float](cnt []F, nA, k int, p []float64, mu []float64, workers i
 		h.Beta = prev.Beta
 	}
 	return h
+}
+
+// derSimonianLaird is the random-effects estimate of DerSimonian & Laird
+// (1986) for estimates y with sampling variances v (an infinite variance
+// leaves its estimate out): with w = 1/v and the fixed-effect mean
+// ȳ = Σwy/Σw, Q = Σw(y − ȳ)², τ² = max(0, (Q − (n−1))/(Σw − Σw²/Σw)), and
+// the random-effects mean μ = Σ y/(v+τ²) / Σ 1/(v+τ²). With fewer than two
+// estimates τ² = 0.
+func derSimonianLaird(y, v []float64) (mu, tau2 float64) {
+	var sw, sw2, swy float64
+	var n int
+	for i := range y {
+		if math.IsInf(v[i], 1) {
+			continue
+		}
+		w := 1 / v[i]
+		sw += w
+		sw2 += w * w
+		swy += w * y[i]
+		n++
+	}
+	if n == 0 || sw == 0 {
+		return 0, 0
+	}
+	fe := swy / sw
+	var q float64
+	for i := range y {
+		if !math.IsInf(v[i], 1) {
+			d := y[i] - fe
+			q += d * d / v[i]
+		}
+	}
+	if n > 1 && sw-sw2/sw > 0 {
+		tau2 = max(0, (q-float64(n-1))/(sw-sw2/sw))
+	}
+	var a, b float64
+	for i := range y {
+		if !math.IsInf(v[i], 1) {
+			w := 1 / (v[i] + tau2)
+			a += w * y[i]
+			b += w
+		}
+	}
+	return a / b, tau2
 }
 
 // skillFit solves Σ_t n_t σ(L_t+δ) + σ(L̄+δ) = right for δ by safeguarded
