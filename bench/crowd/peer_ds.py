@@ -11,14 +11,16 @@ annotators at once, DerSimonian–Laird, the row strength β by golden-section
 search on a Dirichlet–multinomial likelihood evaluated with
 scipy.special.gammaln).
 
-It runs ITERATIONS+1 EM iterations with no early stop and times the last
-ITERATIONS (the first is left out so the iterations timed are the same M-steps
-ours times: ours subtracts a one-iteration run from an ITERATIONS+1 one).
+It runs SKIP+ITERATIONS EM iterations with no early stop and times the last
+ITERATIONS, as ours does (ours subtracts a SKIP-iteration run from a
+SKIP+ITERATIONS one), so both time the same M-steps: for the hierarchical
+model the first five iterations are one-coin ones (crowd/em.go's warm start)
+and SKIP = 10 leaves them out.
 Prints one JSON line: seconds per EM iteration (mean over the timed
 iterations, setup excluded), peak RSS, accuracy against the generated truth,
 the log-likelihood at the end.
 
-usage: peer_ds.py FILE ITERATIONS [dawid-skene|hierarchical]
+usage: peer_ds.py FILE ITERATIONS [dawid-skene|hierarchical [SKIP]]
 """
 import json
 import math
@@ -37,6 +39,7 @@ except ImportError:  # slower, same figures
     GAMMALN = "math.lgamma via np.vectorize"
 
 HIER_MAX_EB = 4000  # annotators used for β, as ours
+HIER_WARM = 5       # one-coin iterations before the hierarchical M-steps, as ours
 
 
 def sigmoid(x):
@@ -121,6 +124,7 @@ def hier_beta(c3, mu, na, k):
 def main():
     path, iters = sys.argv[1], int(sys.argv[2])
     model = sys.argv[3] if len(sys.argv) > 3 else "dawid-skene"
+    skip = int(sys.argv[4]) if len(sys.argv) > 4 else 1
     if model not in ("dawid-skene", "hierarchical"):
         sys.exit(f"peer_ds.py: model {model!r}: want dawid-skene or hierarchical")
     with open(path, "rb") as f:
@@ -165,6 +169,31 @@ def main():
         logpi = np.log(np.maximum(pi, 1e-300)).reshape(k, na * k)
         return np.log(np.maximum(prior, 1e-300)), logpi
 
+    def mstep_onecoin(T):
+        # One accuracy per annotator: q_a = Σ diagonal / Σ all (1/K without labels).
+        prior = T[:, labelled].sum(1) / n_lab
+        c3 = counts_of(T)
+        diag = np.einsum("tat->a", c3)
+        tot = c3.sum((0, 2))
+        q = np.where(tot > 0, diag / np.where(tot > 0, tot, 1.0), 1.0 / k)
+        pi = np.broadcast_to(((1 - q) / (k - 1))[None, :, None], (k, na, k)).copy()
+        ti = np.arange(k)
+        pi[ti, :, ti] = q[None, :]
+        logpi = np.log(np.maximum(pi, 1e-300)).reshape(k, na * k)
+        return np.log(np.maximum(prior, 1e-300)), logpi
+
+    def dersimonian_laird(y, v):
+        # Random-effects mean and τ² (DerSimonian & Laird 1986), as ours.
+        w = 1 / v
+        sw, sw2 = w.sum(), (w * w).sum()
+        if y.size == 0 or sw == 0:
+            return 0.0, 0.0
+        fe = (w * y).sum() / sw
+        q = (w * (y - fe) ** 2).sum()
+        tau2 = max(0.0, (q - (y.size - 1)) / (sw - sw2 / sw)) if y.size > 1 and sw - sw2 / sw > 0 else 0.0
+        wr = 1 / (v + tau2)
+        return float((wr * y).sum() / wr.sum()), tau2
+
     def mstep_hier(T):
         # crowd/hier.go steps 1–6.
         prior = T[:, labelled].sum(1) / n_lab
@@ -179,12 +208,10 @@ def main():
         y = np.zeros(na)
         v = np.full(na, np.inf)
         y[has], v[has] = skill_fit(nt[has], right[has] + 0.5, L, Lbar)
-        w = 1 / v[has]
-        sw, sw2 = w.sum(), (w * w).sum()
-        mean = float((w * y[has]).sum() / sw) if sw > 0 else 0.0
-        q = float((w * (y[has] - mean) ** 2).sum())
-        A = int(has.sum())
-        tau2 = max(0.0, (q - (A - 1)) / (sw - sw2 / sw)) if A > 1 and sw - sw2 / sw > 0 else 0.0
+        if state["hier"] is None:  # τ² and δ̄ once, in the first hierarchical M-step
+            mean, tau2 = dersimonian_laird(y[has], v[has])
+        else:
+            mean, tau2 = state["hier"]["skill_mean"], state["hier"]["skill_sd"] ** 2
         skill = np.full(na, mean)
         if tau2 > 0:
             skill[has] = mean + (y[has] - mean) * tau2 / (tau2 + v[has])
@@ -194,7 +221,7 @@ def main():
         ti = np.arange(k)
         mu[:, ti, ti] = s
         st = state["step"]
-        if state["beta"] is None or st < 4 or st % 8 == 0:
+        if state["hier"] is None or st < 4 or st % 8 == 0:
             state["beta"] = hier_beta(c3, mu, na, k)
         state["step"] = st + 1
         b = state["beta"]
@@ -203,7 +230,14 @@ def main():
         logpi = np.log(np.maximum(pi, 1e-300)).reshape(k, na * k)
         return np.log(np.maximum(prior, 1e-300)), logpi
 
-    mstep = mstep_hier if model == "hierarchical" else mstep_ds
+    warm = 0
+    if model == "hierarchical":
+        warm = min(HIER_WARM, skip + iters - 1)
+
+    def mstep(T, it):
+        if model == "dawid-skene":
+            return mstep_ds(T)
+        return mstep_onecoin(T) if it <= warm else mstep_hier(T)
 
     def estep(logprior, logpi):
         S = np.empty((k, ni))
@@ -223,15 +257,16 @@ def main():
         return r.ru_utime + r.ru_stime
 
     times = []
-    logprior, logpi = mstep(T)
+    logprior, logpi = mstep(T, 0)
     ll = None
-    for it in range(iters + 1):
-        if it == 1:
+    cpu0 = cpu()
+    for it in range(1, skip + iters + 1):
+        if it == skip + 1:
             cpu0 = cpu()
         t0 = time.perf_counter()
         T, ll = estep(logprior, logpi)
-        logprior, logpi = mstep(T)
-        if it >= 1:
+        logprior, logpi = mstep(T, it)
+        if it > skip:
             times.append(time.perf_counter() - t0)
     cpu_iter = (cpu() - cpu0) / iters
     T, ll = estep(logprior, logpi)
@@ -239,7 +274,7 @@ def main():
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     out = {
         "tool": "numpy-peer", "numpy": np.__version__, "model": model, "labels": n, "items": ni,
-        "annotators": na, "classes": k, "iterations": iters,
+        "annotators": na, "classes": k, "iterations": iters, "skipped": skip,
         "seconds_setup": setup, "seconds_per_iter": sum(times) / len(times),
         "cpu_seconds_per_iter": cpu_iter,
         "peak_rss_mb": peak, "accuracy_model": acc, "log_likelihood": ll,

@@ -21,6 +21,7 @@ set -euo pipefail
 cd "$(dirname "$0")/../.."
 PARTS=${PARTS:-"grid scale"}
 ITERS=${ITERS:-10}
+SKIP=${SKIP:-10} # iterations run before the timed ones (covers the hierarchical model's warm-up)
 ITEMS=${ITEMS:-1000000}
 ANNOTATORS=${ANNOTATORS:-100000}
 PER_ITEM=${PER_ITEM:-40}
@@ -53,7 +54,7 @@ for part in $PARTS; do
     go build -o /tmp/crowd-bench-ours ./bench/crowd/ours
     /tmp/crowd-bench-gen -o "$DATA" -items "$ITEMS" -annotators "$ANNOTATORS" -per-item "$PER_ITEM"
     LOAD_BEFORE=$(cut -d' ' -f1-3 /proc/loadavg)
-    OURS=$(/tmp/crowd-bench-ours -i "$DATA" -iters "$ITERS" -method "$METHOD")
+    OURS=$(/tmp/crowd-bench-ours -i "$DATA" -iters "$ITERS" -skip "$SKIP" -method "$METHOD")
     echo "ours: $OURS" >&2
     # The peer runs the model ours used (for auto: the one chosen); it has
     # Dawid–Skene and the hierarchical model.
@@ -62,7 +63,7 @@ for part in $PARTS; do
       hierarchical|dawid-skene) ;;
       *) echo "ours used $MODEL, which the peer does not have" >&2; exit 1 ;;
     esac
-    PEER=$(/usr/bin/python3 bench/crowd/peer_ds.py "$DATA" "$ITERS" "$MODEL")
+    PEER=$(/usr/bin/python3 bench/crowd/peer_ds.py "$DATA" "$ITERS" "$MODEL" "$SKIP")
     echo "peer: $PEER" >&2
     LOAD_AFTER=$(cut -d' ' -f1-3 /proc/loadavg)
     rm -f "$DATA"
