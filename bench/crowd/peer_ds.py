@@ -152,7 +152,7 @@ def main():
     del cls
     setup = time.perf_counter() - t_setup
     eye = np.eye(k, dtype=bool)
-    state = {"step": 0, "beta": None, "hier": None}
+    state = {"beta": None, "hier": None}
 
     def counts_of(T):
         counts = np.empty((k, na * k))           # [true t, annotator·k + given c]
@@ -220,10 +220,8 @@ def main():
         mu = off[:, :, None] * m[None, :, :]                     # [a, t, c]
         ti = np.arange(k)
         mu[:, ti, ti] = s
-        st = state["step"]
-        if state["hier"] is None or st < 4 or st % 8 == 0:
+        if state["hier"] is None:  # β once too, then held
             state["beta"] = hier_beta(c3, mu, na, k)
-        state["step"] = st + 1
         b = state["beta"]
         state["hier"] = {"beta": b, "skill_mean": mean, "skill_sd": math.sqrt(tau2)}
         pi = (c3 + b * mu.transpose(1, 0, 2)) / (nt.T[:, :, None] + b)  # [t, a, c]
