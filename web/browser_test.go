@@ -840,3 +840,69 @@ func TestReport(t *testing.T) {
 		shot(t, ctx, strings.Replace(v.name, ".png", "-top.png", 1), chromedp.CaptureScreenshot())
 	}
 }
+
+// TestBoardRunRound: "Run a round" shows the project's stored settings and
+// asks first; with no labels new since the last round it says so and runs
+// nothing; after new labels, confirming runs the round with the stored
+// settings. Screenshots of both answers.
+func TestBoardRunRound(t *testing.T) {
+	p := boardProject(t)
+	if _, err := round.SetSettings(p.st, []round.Override{{Key: "batch", Value: "30"}}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	ctx := browser(t, 1366, 768)
+	setViewport(t, ctx, 1366, 768, false)
+	signIn(t, ctx, p.ts.URL, p.tokens["lead"], "/board")
+
+	// Nothing new since round 1.
+	if err := chromedp.Do(ctx, chromedp.Click("#run-round")); err != nil {
+		t.Fatal(err)
+	}
+	until(t, ctx, `document.getElementById("round-nothing")`)
+	if s := text(ctx, "#round-nothing"); !strings.Contains(s, "no labels are new since round 1") || !strings.Contains(s, "would change nothing") {
+		t.Errorf("with nothing new: %q", s)
+	}
+	if n := eval[int](t, ctx, `document.querySelectorAll("#round-go").length`); n != 0 {
+		t.Error("a round is offered with nothing new")
+	}
+	shot(t, ctx, "board-round-nothing.png", chromedp.CaptureScreenshot())
+	press(t, ctx, kb.Enter) // Close has the focus
+	until(t, ctx, `document.getElementById("round-confirm").hidden && !document.getElementById("run-round").disabled`)
+
+	// New labels: the board asks, showing the stored batch, then runs.
+	items, err := p.st.ItemIDs()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ls []handoff.Label
+	for i := 0; i < 7; i++ {
+		ls = append(ls, handoff.Label{Item: items[i], Annotator: "late", Class: sim.TopicCodebook().Classes[i%3].Key})
+	}
+	if _, err := p.st.PutLabels(ls, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if err := chromedp.Do(ctx, chromedp.Click("#run-round")); err != nil {
+		t.Fatal(err)
+	}
+	until(t, ctx, `document.getElementById("round-ask")`)
+	ask := text(ctx, "#round-ask")
+	if !strings.Contains(ask, "Run round 2, with 7 labels new since round 1") || !strings.Contains(ask, "stored settings") {
+		t.Errorf("the question: %q", ask)
+	}
+	if s := text(ctx, "#round-settings"); !strings.Contains(s, "batch") || !strings.Contains(s, "30") || !strings.Contains(s, "stored") {
+		t.Errorf("the settings shown: %q", s)
+	}
+	if rs, _ := p.st.Rounds(); len(rs) != 1 {
+		t.Fatalf("a round ran before it was confirmed: %d rounds", len(rs))
+	}
+	shot(t, ctx, "board-round-ask.png", chromedp.CaptureScreenshot())
+	press(t, ctx, kb.Enter) // "Run the round" has the focus
+	until(t, ctx, `document.getElementById("round-status").textContent.startsWith("Round 2 finished")`)
+	r, err := round.Latest(p.st)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Round != 2 || r.Config.Batch != 30 {
+		t.Errorf("the board's round: round %d with batch %d, want round 2 with the stored batch 30", r.Round, r.Config.Batch)
+	}
+}
