@@ -119,7 +119,15 @@ func svgOf(w vg.Length, plots []*plot.Plot, heights []vg.Length) (template.HTML,
 		h += x
 	}
 	c := vgsvg.New(w, h)
-	dc := draw.New(c)
+	// A margin, so that no glyph's box touches the figure's edge.
+	const m = vg.Length(4)
+	dc := draw.Crop(draw.New(c), m, -m, m, -m)
+	inner := h - 2*m
+	scaled := make([]vg.Length, len(heights))
+	for i, x := range heights {
+		scaled[i] = x * inner / h
+	}
+	heights, h = scaled, inner
 	canvases := make([]draw.Canvas, len(plots))
 	top := h
 	var left, right vg.Length
