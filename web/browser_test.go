@@ -983,3 +983,48 @@ func TestBoardRunRound(t *testing.T) {
 		t.Errorf("the board's round: round %d with batch %d, want round 2 with the stored batch 30", r.Round, r.Config.Batch)
 	}
 }
+
+// TestBoardOrdinal: on an ordinal codebook the agreement card adds
+// Krippendorff's alpha with the ordinal and interval metrics, which a
+// nominal codebook does not show (TestBoard).
+func TestBoardOrdinal(t *testing.T) {
+	cb := handoff.Codebook{Name: "severity", Question: "How bad is it?", Scale: handoff.Ordinal,
+		Classes: []handoff.Class{{Key: "none"}, {Key: "minor"}, {Key: "major"}}}
+	st, err := store.Create(t.TempDir(), cb, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { st.Close() })
+	var items []handoff.Item
+	var labels []handoff.Label
+	day := time.Date(2026, 1, 5, 9, 0, 0, 0, time.UTC)
+	for i := 0; i < 30; i++ {
+		id := fmt.Sprintf("s%02d", i)
+		items = append(items, handoff.Item{ID: id, Kind: handoff.KindText, Text: fmt.Sprintf("Report %d", i)})
+		for a, who := range []string{"ana", "ben", "cy"} {
+			c := i % 3
+			if (i+a)%7 == 0 {
+				c = (c + 1) % 3
+			}
+			labels = append(labels, handoff.Label{Item: id, Annotator: who, Class: cb.Classes[c].Key, Time: day.Add(time.Duration(i%4) * 24 * time.Hour)})
+		}
+	}
+	if _, err := st.PutItems(items, false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := st.PutLabels(labels, "test"); err != nil {
+		t.Fatal(err)
+	}
+	p := serve(t, st, api.Config{}, map[string]bool{"lead": true})
+	ctx := browser(t, 1366, 768)
+	setViewport(t, ctx, 1366, 768, false)
+	signIn(t, ctx, p.ts.URL, p.tokens["lead"], "/board")
+	until(t, ctx, `document.querySelector("#agreement table")`)
+	a := text(ctx, "#agreement")
+	for _, m := range []string{"alpha (nominal)", "alpha (ordinal)", "alpha (interval)"} {
+		if !strings.Contains(a, m) {
+			t.Errorf("the agreement card of an ordinal codebook lacks %s: %q", m, a)
+		}
+	}
+	shot(t, ctx, "board-ordinal-agreement.png", chromedp.Screenshot(chromedp.CSS("#agreement")))
+}
