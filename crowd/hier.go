@@ -80,7 +80,15 @@ const (
 	hierWarm  = 5    // one-coin iterations before the hierarchical M-step
 )
 
-func sigmoid(x float64) float64 { return 1 / (1 + math.Exp(-x)) }
+// sigmoid is 1/(1+e^−x), with e^−|x| from expNeg (relative error below
+// 1e-10): the skill fits call it for every annotator and class each M-step.
+func sigmoid(x float64) float64 {
+	if x >= 0 {
+		return 1 / (1 + expNeg(-x))
+	}
+	e := expNeg(x)
+	return e / (1 + e)
+}
 
 func logit(p float64) float64 { return math.Log(p / (1 - p)) }
 
