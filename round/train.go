@@ -247,13 +247,7 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	if len(rows) == 0 {
 		return nil, fmt.Errorf("%w: no labelled %s items to train on; label some items and run `loop consensus` first", ErrNothing, kind)
 	}
-	lname := cfg.Learner
-	if lname == "" {
-		lname = "logistic"
-		if kind == handoff.KindImage {
-			lname = "forest"
-		}
-	}
+	lname := learnerName(cfg.Learner, kind)
 	fit, err := learnerFor(lname, cfg)
 	if err != nil {
 		return nil, err
@@ -460,6 +454,18 @@ func rowsAt(raw []float64, n, k int, T float64) [][]float64 {
 		learner.Temper(out[j], T)
 	}
 	return out
+}
+
+// learnerName is the learner configured, or by default logistic for text
+// and forest for images.
+func learnerName(name string, kind handoff.Kind) string {
+	switch {
+	case name != "":
+		return name
+	case kind == handoff.KindImage:
+		return "forest"
+	}
+	return "logistic"
 }
 
 // learnerFor returns the configured learner.

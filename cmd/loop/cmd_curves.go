@@ -6,6 +6,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/plan"
 	"handoff/round"
 	"handoff/verdict"
 )
@@ -14,7 +15,7 @@ func init() { register(newCurvesCmd) }
 
 func newCurvesCmd() *cobra.Command {
 	var (
-		cfg    round.ProjectCurveConfig
+		cfg    plan.ProjectCurveConfig
 		kind   string
 		seeds  int
 		html   string
@@ -58,7 +59,7 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
 				return err
 			}
 			defer s.Close()
-			cmp, err := round.ProjectCurves(s, cfg)
+			cmp, err := plan.ProjectCurves(s, cfg)
 			if err != nil {
 				return err
 			}

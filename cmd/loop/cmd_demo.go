@@ -11,6 +11,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff"
+	"handoff/export"
 	"handoff/round"
 	"handoff/sim"
 	"handoff/store"
@@ -197,19 +198,19 @@ func demoProjectRun(cmd *cobra.Command, d *sim.Demo, dir string, pr demoProject,
 	if rep.Audit != nil {
 		outf(cmd, "  audit of %d machine labels: error %.3f [%.3f, %.3f] against the crowd\n", rep.Audit.N, rep.Audit.Rate, rep.Audit.Lo, rep.Audit.Hi)
 	}
-	rows, err := round.Rows(st)
+	rows, err := export.Rows(st)
 	if err != nil {
 		return "", err
 	}
 	exp := filepath.Join(dir, "export.csv")
-	if err := writeFileAtomic(exp, func(f *os.File) error { return round.WriteRows(f, "csv", rows, pr.codebook.Keys()) }); err != nil {
+	if err := writeFileAtomic(exp, func(f *os.File) error { return export.Write(f, "csv", rows, pr.codebook.Keys()) }); err != nil {
 		return "", err
 	}
 	html := filepath.Join(dir, "report.html")
 	if err := writeFileAtomic(html, func(f *os.File) error { return rep.WriteHTML(f, "Handoff verdict — demo "+pr.name) }); err != nil {
 		return "", err
 	}
-	ps, err := round.Rollup(rows, pr.codebook.Keys(), pr.codebook.IsOrdinal(), round.RollupConfig{Seed: 1})
+	ps, err := export.Rollup(rows, pr.codebook.Keys(), pr.codebook.IsOrdinal(), export.RollupConfig{Seed: 1})
 	if err != nil {
 		return "", err
 	}

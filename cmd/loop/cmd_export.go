@@ -9,7 +9,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"handoff/round"
+	"handoff/export"
 )
 
 func init() {
@@ -73,7 +73,7 @@ Items with no answer yet have an empty class and source.`,
 				return err
 			}
 			defer s.Close()
-			rows, err := round.Rows(s)
+			rows, err := export.Rows(s)
 			if err != nil {
 				return err
 			}
@@ -81,7 +81,7 @@ Items with no answer yet have an empty class and source.`,
 			if err != nil {
 				return err
 			}
-			err = round.WriteRows(w, format, rows, cbKeys(s))
+			err = export.Write(w, format, rows, cbKeys(s))
 			if derr := done(err == nil); err == nil {
 				err = derr
 			}
@@ -112,7 +112,7 @@ Items with no answer yet have an empty class and source.`,
 func newRollupCmd() *cobra.Command {
 	var (
 		by     string
-		cfg    round.RollupConfig
+		cfg    export.RollupConfig
 		asJSON bool
 	)
 	c := &cobra.Command{
@@ -122,7 +122,7 @@ func newRollupCmd() *cobra.Command {
 from), the share of each class among its items' final labels and, for an
 ordinal codebook, the mean position (1 = lowest class), each with an exact
 95% Clopper–Pearson interval (for the position, on its fractional count; see
-round.Rollup), the parent's items taken as a sample of its items.`,
+export.Rollup), the parent's items taken as a sample of its items.`,
 		Example: `  loop rollup proj --by parent
   loop rollup proj --by parent --json > shares.json`,
 		Args: cobra.ExactArgs(1),
@@ -135,12 +135,12 @@ round.Rollup), the parent's items taken as a sample of its items.`,
 				return err
 			}
 			defer s.Close()
-			rows, err := round.Rows(s)
+			rows, err := export.Rows(s)
 			if err != nil {
 				return err
 			}
 			cb := s.Codebook()
-			ps, err := round.Rollup(rows, cb.Keys(), cb.IsOrdinal(), cfg)
+			ps, err := export.Rollup(rows, cb.Keys(), cb.IsOrdinal(), cfg)
 			if err != nil {
 				return err
 			}

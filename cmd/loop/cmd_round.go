@@ -12,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff"
+	"handoff/export"
 	"handoff/learner"
 	"handoff/round"
 	"handoff/store"
@@ -317,7 +318,7 @@ func writeBatch(w io.Writer, format string, b []round.BatchItem) error {
 	cw := csv.NewWriter(w)
 	cw.Write([]string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"})
 	for _, x := range b {
-		cw.Write(round.SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
+		cw.Write(export.SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
 	}
 	cw.Flush()
 	return cw.Error()

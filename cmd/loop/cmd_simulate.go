@@ -7,7 +7,7 @@ import (
 
 	"github.com/spf13/cobra"
 
-	"handoff/round"
+	"handoff/plan"
 	"handoff/sim"
 )
 
@@ -18,7 +18,7 @@ func newSimulateCmd() *cobra.Command {
 		spec       = sim.CrowdSpec{Careful: 0.3, Average: 0.4, Careless: 0.2, Spammer: 0.1, Classes: 4, Items: 2000, Annotators: 100}
 		lpi        string
 		prevalence string
-		cfg        round.PlanConfig
+		cfg        plan.RedundancyConfig
 		asJSON     bool
 	)
 	c := &cobra.Command{
@@ -53,7 +53,7 @@ as a guide, and check them against a pilot with gold items.`,
 			}
 			cfg.Spec = spec
 			bar := newProgress(cmd, -1, "simulating")
-			cells, err := round.Plan(cfg)
+			cells, err := plan.Redundancy(cfg)
 			bar.Finish()
 			if err != nil {
 				return usageErrorf("%v", err)

@@ -1,6 +1,7 @@
-package round
+package export
 
 import (
+	"errors"
 	"fmt"
 	"sort"
 
@@ -84,7 +85,7 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 		g.cls = append(g.cls, k)
 	}
 	if len(groups) == 0 {
-		return nil, fmt.Errorf("%w: no item has a parent; import items with a parent field (or --split sentences) to roll up", ErrNothing)
+		return nil, ErrNoParents
 	}
 	names := make([]string, 0, len(groups))
 	for n := range groups {
@@ -122,6 +123,9 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 	}
 	return out, nil
 }
+
+// ErrNoParents is returned by Rollup when no item has a parent.
+var ErrNoParents = errors.New("no item has a parent; import items with a parent field (or --split sentences) to roll up")
 
 // fractionalCP is the Clopper–Pearson interval for a real-valued count s
 // of n (0 ≤ s ≤ n) at level.

@@ -1,4 +1,4 @@
-package round
+package plan
 
 import (
 	"bufio"
@@ -13,7 +13,9 @@ import (
 	"testing"
 
 	"handoff/features"
+	"handoff/internal/testproject"
 	"handoff/learner"
+	"handoff/round"
 	"handoff/selector"
 )
 
@@ -234,12 +236,12 @@ func TestLearningCurveRules(t *testing.T) {
 // project without a stored consensus, then runs on the consensus classes,
 // deterministically.
 func TestProjectCurves(t *testing.T) {
-	st, _ := smallProject(t, t.TempDir(), 7)
+	st, _ := testproject.Small(t, t.TempDir(), 7)
 	cfg := ProjectCurveConfig{Seeds: []uint64{1, 2}}
 	if _, err := ProjectCurves(st, cfg); err == nil {
 		t.Fatal("no consensus yet: no error")
 	}
-	if _, err := Consensus(st, DefaultConsensus(), "t"); err != nil {
+	if _, err := round.Consensus(st, round.DefaultConsensus(), "t"); err != nil {
 		t.Fatal(err)
 	}
 	a, err := ProjectCurves(st, cfg)

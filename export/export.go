@@ -1,10 +1,15 @@
-package round
+// Package export writes what a project has decided, item by item, and rolls
+// it up to the documents items came from: Rows gives one row per item with
+// its final class and provenance (gold, crowd consensus or machine label),
+// Write writes rows as CSV, JSON lines or Parquet, Rollup gives per-parent
+// class shares with exact intervals. It reads the store and never changes
+// it; the round (package round) decides, export only reports.
+package export
 
 import (
 	"bufio"
 	"encoding/csv"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"regexp"
@@ -91,10 +96,10 @@ func Rows(st *store.Store) ([]Row, error) {
 	return rows, err
 }
 
-// WriteRows writes rows in format csv, jsonl or parquet. CSV has one column
+// Write writes rows in format csv, jsonl or parquet. CSV has one column
 // per codebook class for the posterior (p_KEY) and one per covariate
 // (cov_NAME), in sorted order.
-func WriteRows(w io.Writer, format string, rows []Row, classes []string) error {
+func Write(w io.Writer, format string, rows []Row, classes []string) error {
 	switch format {
 	case "jsonl":
 		bw := bufio.NewWriter(w)
@@ -185,6 +190,3 @@ func SafeCells(rec []string) []string {
 
 // plainNumber is a decimal number: sign, digits, point, exponent.
 var plainNumber = regexp.MustCompile(`^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$`)
-
-// errNoRows is returned when an export would be empty.
-var errNoRows = errors.New("the project has no items to export")

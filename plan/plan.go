@@ -1,4 +1,11 @@
-package round
+// Package plan answers what-if questions by simulation, before or beside
+// the real rounds: how accurate a consensus a described crowd gives with
+// each combining method and number of labels per item (Redundancy), and
+// whether picking the items the model is unsure of beats random picks, on
+// a data set with known classes (LearningCurve, CompareStrategies) or on a
+// project's own consensus (ProjectCurves). Nothing here writes to a store;
+// the figures are simulated, never held-out agreement.
+package plan
 
 import (
 	"fmt"
@@ -7,9 +14,9 @@ import (
 	"handoff/sim"
 )
 
-// PlanConfig is a planning question: for a described crowd, how accurate is
+// RedundancyConfig is a planning question: for a described crowd, how accurate is
 // the consensus with each method at each number of labels per item?
-type PlanConfig struct {
+type RedundancyConfig struct {
 	Spec          sim.CrowdSpec // LabelsPerItem is ignored; see LabelsPerItem below
 	LabelsPerItem []int         // the redundancies to compare
 	Methods       []string      // combining methods (nil: majority, dawid-skene, one-coin)
@@ -17,9 +24,9 @@ type PlanConfig struct {
 	Seed          uint64
 }
 
-// PlanCell is the consensus accuracy of one method at one redundancy,
+// Cell is the consensus accuracy of one method at one redundancy,
 // averaged over the simulated projects, with the lowest and highest seen.
-type PlanCell struct {
+type Cell struct {
 	LabelsPerItem int     `json:"labels_per_item"`
 	Method        string  `json:"method"`
 	Accuracy      float64 `json:"accuracy"`
@@ -28,10 +35,10 @@ type PlanCell struct {
 	Labels        int     `json:"labels"` // labels the design needs: items × labels per item
 }
 
-// Plan simulates the described crowd (sim.CrowdSpec) and reports consensus
+// Redundancy simulates the described crowd (sim.CrowdSpec) and reports consensus
 // accuracy against the simulated truth for each method and redundancy, so a
 // team can choose its redundancy and budget before the project starts.
-func Plan(cfg PlanConfig) ([]PlanCell, error) {
+func Redundancy(cfg RedundancyConfig) ([]Cell, error) {
 	if len(cfg.LabelsPerItem) == 0 {
 		return nil, fmt.Errorf("plan: give at least one number of labels per item")
 	}
@@ -41,16 +48,16 @@ func Plan(cfg PlanConfig) ([]PlanCell, error) {
 	if cfg.Seeds <= 0 {
 		cfg.Seeds = 3
 	}
-	var out []PlanCell
+	var out []Cell
 	for _, lpi := range cfg.LabelsPerItem {
 		spec := cfg.Spec
 		spec.LabelsPerItem = lpi
 		if err := spec.Validate(); err != nil {
 			return nil, fmt.Errorf("plan: %d labels per item: %w", lpi, err)
 		}
-		cells := make([]PlanCell, len(cfg.Methods))
+		cells := make([]Cell, len(cfg.Methods))
 		for m := range cells {
-			cells[m] = PlanCell{LabelsPerItem: lpi, Method: cfg.Methods[m], Min: 1, Labels: spec.Items * lpi}
+			cells[m] = Cell{LabelsPerItem: lpi, Method: cfg.Methods[m], Min: 1, Labels: spec.Items * lpi}
 		}
 		for s := range cfg.Seeds {
 			l := &crowd.Labels{NItems: spec.Items, NAnnotators: spec.Annotators, NClasses: spec.Classes}
