@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -75,15 +76,7 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
 				r.FitError = fmt.Sprintf("Simulated by loop curves on the %d seeds %v: the solid curve is entropy selection, "+
 					"the dashed one random selection, each the mean test error over the seeds with the consensus as the oracle. "+
 					"Entropy is ahead at %d of %d budgets (%.0f%%).", len(cmp.Seeds), cmp.Seeds, cmp.Ahead, cmp.Matched, 100*cmp.Share)
-				w, done, err := openOutput(cmd, html)
-				if err != nil {
-					return err
-				}
-				err = r.WriteHTML(w, "Handoff learning curves — "+args[0])
-				if derr := done(err == nil); err == nil {
-					err = derr
-				}
-				if err != nil {
+				if err := writeOutput(cmd, html, func(w io.Writer) error { return r.WriteHTML(w, "Handoff learning curves — "+args[0]) }); err != nil {
 					return err
 				}
 				infof(cmd, "report written to %s\n", html)

@@ -1,10 +1,8 @@
 package main
 
 import (
-	"bufio"
 	"fmt"
 	"io"
-	"os"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -15,34 +13,6 @@ import (
 func init() {
 	register(newExportCmd)
 	register(newRollupCmd)
-}
-
-// openOutput returns a writer for path ("-" or "" is stdout) and a function
-// that finishes it: the file is written to a temporary name and renamed into
-// place only when everything succeeded, so a failed export leaves no half
-// file behind.
-func openOutput(cmd *cobra.Command, path string) (io.Writer, func(ok bool) error, error) {
-	if path == "" || path == "-" {
-		bw := bufio.NewWriter(cmd.OutOrStdout())
-		return bw, func(bool) error { return bw.Flush() }, nil
-	}
-	tmp := path + ".partial"
-	f, err := os.Create(tmp)
-	if err != nil {
-		return nil, nil, err
-	}
-	bw := bufio.NewWriter(f)
-	return bw, func(ok bool) error {
-		ferr := bw.Flush()
-		if cerr := f.Close(); ferr == nil {
-			ferr = cerr
-		}
-		if !ok || ferr != nil {
-			os.Remove(tmp)
-			return ferr
-		}
-		return os.Rename(tmp, path)
-	}, nil
 }
 
 func newExportCmd() *cobra.Command {
@@ -77,15 +47,7 @@ Items with no answer yet have an empty class and source.`,
 			if err != nil {
 				return err
 			}
-			w, done, err := openOutput(cmd, out)
-			if err != nil {
-				return err
-			}
-			err = export.Write(w, format, rows, cbKeys(s))
-			if derr := done(err == nil); err == nil {
-				err = derr
-			}
-			if err != nil {
+			if err := writeOutput(cmd, out, func(w io.Writer) error { return export.Write(w, format, rows, cbKeys(s)) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {

@@ -279,15 +279,7 @@ round.`,
 			if err != nil {
 				return settingUsage(err)
 			}
-			w, done, err := openOutput(cmd, out)
-			if err != nil {
-				return err
-			}
-			err = writeBatch(w, format, b)
-			if derr := done(err == nil); err == nil {
-				err = derr
-			}
-			if err != nil {
+			if err := writeOutput(cmd, out, func(w io.Writer) error { return writeBatch(w, format, b) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {
@@ -372,15 +364,7 @@ only.`,
 				return settingUsage(err)
 			}
 			if html != "" {
-				w, done, err := openOutput(cmd, html)
-				if err != nil {
-					return err
-				}
-				err = rep.WriteHTML(w, "Handoff verdict — "+args[0])
-				if derr := done(err == nil); err == nil {
-					err = derr
-				}
-				if err != nil {
+				if err := writeOutput(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff verdict — "+args[0]) }); err != nil {
 					return err
 				}
 				infof(cmd, "report written to %s\n", html)
@@ -493,15 +477,7 @@ elsewhere (see beam/).`,
 			if r.Verdict != nil && r.Verdict.Threshold.Found {
 				m.Cutoff = r.Verdict.Threshold.Threshold
 			}
-			w, done, err := openOutput(cmd, args[1])
-			if err != nil {
-				return err
-			}
-			err = learner.WriteMachine(w, m)
-			if derr := done(err == nil); err == nil {
-				err = derr
-			}
-			if err != nil {
+			if err := writeOutput(cmd, args[1], func(w io.Writer) error { return learner.WriteMachine(w, m) }); err != nil {
 				return err
 			}
 			infof(cmd, "model %s written to %s (threshold %.4g)\n", m.Version(), args[1], m.Cutoff)

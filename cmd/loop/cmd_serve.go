@@ -2,10 +2,8 @@ package main
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"net"
-	"net/http"
 	"os"
 	"os/signal"
 	"syscall"
@@ -14,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/api"
+	"handoff/internal/beside"
 )
 
 func init() { register(newServeCmd) }
@@ -116,28 +115,15 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 			}
 			// The command channel for commands run beside the server:
 			// loopback only, with a secret in DIR/serve.json.
-			cln, err := net.Listen("tcp", "127.0.0.1:0")
+			ch, err := beside.Listen(dir, "http://"+ln.Addr().String(), s, besideAllowed, runIn, func() {
+				if err := sv.Refresh(); err != nil {
+					cfg.Logf("reading the project again after a command: %v", err)
+				}
+			})
 			if err != nil {
 				ln.Close()
 				return err
 			}
-			secret := newSecret()
-			registerServed(dir, s)
-			defer unregisterServed(dir)
-			chs := &http.Server{Handler: commandHandler(secret, func() {
-				if err := sv.Refresh(); err != nil {
-					cfg.Logf("reading the project again after a command: %v", err)
-				}
-			}), ReadHeaderTimeout: 10 * time.Second}
-			go chs.Serve(cln)
-			defer chs.Close()
-			rec := serveRecord{PID: os.Getpid(), Serves: "http://" + ln.Addr().String(), Command: "http://" + cln.Addr().String(),
-				Secret: secret, Started: time.Now().UTC()}
-			if err := writeServeRecord(dir, rec); err != nil {
-				ln.Close()
-				return fmt.Errorf("recording the server in %s: %w", dir, err)
-			}
-			defer removeServeRecord(dir, secret)
 
 			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
@@ -145,7 +131,7 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 			err = sv.Serve(ctx, ln)
 			sctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 			defer cancel()
-			if serr := chs.Shutdown(sctx); serr != nil && !errors.Is(serr, http.ErrServerClosed) && err == nil {
+			if serr := ch.Close(sctx); serr != nil && err == nil {
 				err = serr
 			}
 			infof(cmd, "stopped\n")

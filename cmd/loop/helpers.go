@@ -1,10 +1,13 @@
 package main
 
 import (
+	"bufio"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"sort"
 	"time"
 
@@ -13,6 +16,9 @@ import (
 	"golang.org/x/term"
 
 	"handoff"
+	"handoff/ingest"
+	"handoff/internal/atomicfile"
+	"handoff/internal/beside"
 	"handoff/store"
 )
 
@@ -26,7 +32,7 @@ var importChunk int
 // on the open store, whose Close leaves it open; where another process
 // holds the project, the error says which server and what to do.
 func openStore(dir string) (*store.Store, error) {
-	if s, ok := servedStore(dir); ok {
+	if s, ok := beside.Served(dir); ok {
 		s.ImportChunk = importChunk
 		return s, nil
 	}
@@ -91,26 +97,60 @@ func newProgress(cmd *cobra.Command, max int64, desc string) *progressbar.Progre
 	)
 }
 
-// progressFile opens path for reading with a byte-counting progress bar.
-// Close the returned file and Finish the bar when done.
-func progressFile(cmd *cobra.Command, path, desc string) (io.ReadCloser, *progressbar.ProgressBar, error) {
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, nil, err
+// readFiles makes f show a progress bar per file (bytes read) and per
+// folder of images (images read).
+func readFiles[T any](cmd *cobra.Command, f *ingest.Files[T]) *ingest.Files[T] {
+	f.Open = func(path string) (io.ReadCloser, error) {
+		file, err := os.Open(path)
+		if err != nil {
+			return nil, err
+		}
+		size := int64(-1)
+		if fi, err := file.Stat(); err == nil && fi.Mode().IsRegular() {
+			size = fi.Size()
+		}
+		bar := newProgress(cmd, size, filepath.Base(path))
+		if interactive(cmd) && size >= 0 {
+			progressbar.OptionShowBytes(true)(bar)
+		}
+		r := progressbar.NewReader(file, bar)
+		return readCloser{&r, func() error { bar.Finish(); return file.Close() }}, nil
 	}
-	size := int64(-1)
-	if fi, err := f.Stat(); err == nil && fi.Mode().IsRegular() {
-		size = fi.Size()
+	f.Folder = func(path string, n int) (func(), func()) {
+		bar := newProgress(cmd, int64(n), filepath.Base(path))
+		return func() { bar.Add(1) }, func() { bar.Finish() }
 	}
-	bar := newProgress(cmd, size, desc)
-	if interactive(cmd) && size >= 0 {
-		progressbar.OptionShowBytes(true)(bar)
+	return f
+}
+
+type readCloser struct {
+	io.Reader
+	close func() error
+}
+
+func (r readCloser) Close() error { return r.close() }
+
+// located adds the file and line of the record being read to a store data
+// error.
+func located[T any](err error, f *ingest.Files[T]) error {
+	var de *store.DataError
+	if loc, ok := f.Where(); ok && errors.As(err, &de) {
+		return ingest.At(loc, de.Field, de.Err)
 	}
-	r := progressbar.NewReader(f, bar)
-	return struct {
-		io.Reader
-		io.Closer
-	}{&r, f}, bar, nil
+	return err
+}
+
+// writeOutput writes what fn writes to path, whole or not at all
+// (atomicfile), or to stdout when path is "" or "-".
+func writeOutput(cmd *cobra.Command, path string, fn func(w io.Writer) error) error {
+	if path == "" || path == "-" {
+		bw := bufio.NewWriter(cmd.OutOrStdout())
+		if err := fn(bw); err != nil {
+			return err
+		}
+		return bw.Flush()
+	}
+	return atomicfile.Write(path, 0o666, fn)
 }
 
 // printJSON writes v as indented JSON to the command's stdout.

@@ -59,9 +59,11 @@ import (
 	"strings"
 
 	"github.com/spf13/cobra"
+
+	"handoff/internal/termsafe"
 )
 
-func main() { os.Exit(run(os.Args[1:], terminalOut(os.Stdout), os.Stderr)) }
+func main() { os.Exit(run(os.Args[1:], termsafe.Out(os.Stdout), os.Stderr)) }
 
 // commands holds the constructors of the top-level commands, in registration
 // order; subcommands maps a group name ("items", "labels") to its children.
