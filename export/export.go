@@ -19,6 +19,7 @@ import (
 	"github.com/parquet-go/parquet-go"
 
 	"handoff"
+	"handoff/round"
 	"handoff/store"
 )
 
@@ -161,6 +162,29 @@ func writeCSV(w io.Writer, rows []Row, classes []string) error {
 		if err := cw.Write(SafeCells(rec)); err != nil {
 			return err
 		}
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
+// WriteBatch writes a next batch for people in format csv (one row per
+// item: item, reason, score, kind, text, path, parent, machine, crowd; the
+// cells made safe to open in a spreadsheet, SafeCells) or jsonl (one
+// round.BatchItem per line).
+func WriteBatch(w io.Writer, format string, b []round.BatchItem) error {
+	if format == "jsonl" {
+		enc := json.NewEncoder(w)
+		for i := range b {
+			if err := enc.Encode(&b[i]); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
+	cw := csv.NewWriter(w)
+	cw.Write([]string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"})
+	for _, x := range b {
+		cw.Write(SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
 	}
 	cw.Flush()
 	return cw.Error()

@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 	"sort"
+	"strings"
 
 	"gonum.org/v1/gonum/stat/distuv"
 
@@ -122,6 +123,32 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 		out = append(out, ps)
 	}
 	return out, nil
+}
+
+// RollupText is a roll-up as `loop rollup` prints it: a line per parent
+// with its answered and all items, each class's share with its interval
+// and, for an ordinal codebook, the mean position.
+func RollupText(ps []ParentShares, classes []string, ordinal bool) string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "%-16s %6s", "parent", "items")
+	for _, k := range classes {
+		fmt.Fprintf(&b, "  %-22s", k)
+	}
+	if ordinal {
+		fmt.Fprintf(&b, "  %-22s", "mean position")
+	}
+	b.WriteString("\n")
+	for _, p := range ps {
+		fmt.Fprintf(&b, "%-16s %3d/%-3d", p.Parent, p.Answered, p.Items)
+		for _, sh := range p.Shares {
+			fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]      ", sh.Value, sh.Lo, sh.Hi)
+		}
+		if p.Position != nil {
+			fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]", p.Position.Value, p.Position.Lo, p.Position.Hi)
+		}
+		b.WriteString("\n")
+	}
+	return b.String()
 }
 
 // ErrNoParents is returned by Rollup when no item has a parent.

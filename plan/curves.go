@@ -5,6 +5,7 @@ import (
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"strings"
 	"sync"
 
 	"handoff/features"
@@ -267,6 +268,34 @@ type Comparison struct {
 	Matched int     `json:"matched"`
 	Ahead   int     `json:"ahead"`
 	Share   float64 `json:"share"`
+}
+
+// Text is the comparison as `loop curves` prints it: the mean test
+// accuracy of both strategies at each budget and the share of budgets
+// where the uncertain strategy is ahead.
+func (c *Comparison) Text() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "test accuracy, mean over %d seeds (consensus as the oracle)\n%8s  %8s  %8s\n", len(c.Seeds), "labels", c.Uncertain.Name, "random")
+	for i, p := range c.Uncertain.Points {
+		fmt.Fprintf(&b, "%8d  %8.3f  %8.3f\n", p.Labels, 1-p.Error, 1-c.Random.Points[i].Error)
+	}
+	fmt.Fprintf(&b, "%s ahead of random at %d of %d budgets (%.0f%%)\n", c.Uncertain.Name, c.Ahead, c.Matched, 100*c.Share)
+	return b.String()
+}
+
+// InReport returns a copy of a verdict report whose learning-curve plot
+// shows the comparison instead: the uncertain strategy's curve solid, the
+// random one dashed, and in place of the fitted curve a note that both
+// are simulated.
+func (c *Comparison) InReport(rep *verdict.Report) *verdict.Report {
+	r := *rep
+	r.Curve = c.Uncertain.Points
+	r.Compare = &verdict.Series{Name: "random (simulated)", Points: c.Random.Points}
+	r.Fit = nil
+	r.FitError = fmt.Sprintf("Simulated by loop curves on the %d seeds %v: the solid curve is %s selection, "+
+		"the dashed one random selection, each the mean test error over the seeds with the consensus as the oracle. "+
+		"%s is ahead at %d of %d budgets (%.0f%%).", len(c.Seeds), c.Seeds, c.Uncertain.Name, strings.ToUpper(c.Uncertain.Name[:1])+c.Uncertain.Name[1:], c.Ahead, c.Matched, 100*c.Share)
+	return &r
 }
 
 // CompareStrategies runs LearningCurve for cfg.Strategy ("" means Entropy)

@@ -9,6 +9,7 @@ package plan
 
 import (
 	"fmt"
+	"strings"
 
 	"handoff/crowd"
 	"handoff/sim"
@@ -89,4 +90,20 @@ func Redundancy(cfg RedundancyConfig) ([]Cell, error) {
 		out = append(out, cells...)
 	}
 	return out, nil
+}
+
+// RedundancyText is a redundancy plan as `loop simulate` prints it: the
+// crowd described, then one line per redundancy and method with the mean
+// accuracy and the lowest and highest seen.
+func RedundancyText(cells []Cell, cfg RedundancyConfig) string {
+	spec := cfg.Spec
+	var b strings.Builder
+	fmt.Fprintf(&b, "consensus accuracy against the simulated truth (mean of %d projects; min–max)\n", max(cfg.Seeds, 1))
+	fmt.Fprintf(&b, "crowd: %.0f%% careful, %.0f%% average, %.0f%% careless, %.0f%% spammers; %d annotators, %d items, %d classes\n",
+		100*spec.Careful, 100*spec.Average, 100*spec.Careless, 100*spec.Spammer, spec.Annotators, spec.Items, spec.Classes)
+	fmt.Fprintf(&b, "%-16s %-12s %-24s %s\n", "labels per item", "labels", "method", "accuracy")
+	for _, c := range cells {
+		fmt.Fprintf(&b, "%-16d %-12d %-24s %.3f (%.3f–%.3f)\n", c.LabelsPerItem, c.Labels, c.Method, c.Accuracy, c.Min, c.Max)
+	}
+	return b.String()
 }

@@ -3,11 +3,9 @@ package main
 import (
 	"errors"
 	"fmt"
-	"strings"
 
 	"github.com/spf13/cobra"
 
-	"handoff/crowd"
 	"handoff/round"
 	"handoff/store"
 )
@@ -17,53 +15,9 @@ func init() {
 	registerStatus("consensus", consensusStatus)
 }
 
-// cleaningFlags binds the cleaning rules' switches to a command's flags.
-type cleaningFlags struct {
-	keepRepeats                  bool
-	noRepeatOffenders            bool
-	repeatItems, repeatTimes     int
-	noGoldScreen                 bool
-	goldMinAccuracy              float64
-	goldMinItems                 int
-	minSeconds                   float64
-	noStraightLining, noCleaning bool
-}
-
-func (f *cleaningFlags) bind(c *cobra.Command) {
-	d := crowd.DefaultRules()
-	fl := c.Flags()
-	fl.BoolVar(&f.keepRepeats, "keep-repeats", false, "keep every label an annotator gave an item (default: the first only)")
-	fl.BoolVar(&f.noRepeatOffenders, "no-repeat-offenders", false, "keep annotators who labelled many items many times")
-	fl.IntVar(&f.repeatItems, "repeat-items", d.RepeatItems, "repeat offenders: more than this many items…")
-	fl.IntVar(&f.repeatTimes, "repeat-times", d.RepeatTimes, "…each labelled more than this many times")
-	fl.BoolVar(&f.noGoldScreen, "no-gold-screen", false, "keep annotators who do badly on gold items")
-	fl.Float64Var(&f.goldMinAccuracy, "gold-min-accuracy", d.GoldMinAccuracy, "gold screening: drop annotators below this accuracy on gold…")
-	fl.IntVar(&f.goldMinItems, "gold-min-items", d.GoldMinItems, "…once they answered at least this many gold items")
-	fl.Float64Var(&f.minSeconds, "min-seconds", 0, "drop labels given in under this many seconds (0: off)")
-	fl.BoolVar(&f.noStraightLining, "no-straight-lining", false, "do not flag annotators who give one class to nearly everything")
-	fl.BoolVar(&f.noCleaning, "no-cleaning", false, "apply no cleaning rule at all")
-}
-
-func (f *cleaningFlags) rules() crowd.Rules {
-	r := crowd.DefaultRules()
-	r.FirstOnly = !f.keepRepeats
-	r.RepeatOffenders = !f.noRepeatOffenders
-	r.RepeatItems, r.RepeatTimes = f.repeatItems, f.repeatTimes
-	r.GoldScreen = !f.noGoldScreen
-	r.GoldMinAccuracy, r.GoldMinItems = f.goldMinAccuracy, f.goldMinItems
-	r.TooFast = f.minSeconds > 0
-	r.MinSeconds = f.minSeconds
-	r.StraightLining = !f.noStraightLining
-	if f.noCleaning {
-		return crowd.Rules{}
-	}
-	return r
-}
-
 func newConsensusCmd() *cobra.Command {
 	var (
-		cfg     = round.DefaultConsensus()
-		clean   cleaningFlags
+		cfg     round.ConsensusConfig // the knobs that are not settings
 		explain bool
 		asJSON  bool
 	)
@@ -85,142 +39,36 @@ the project has them, otherwise against a stratum you name as unbiased with
   loop consensus proj --keep-repeats --no-cleaning --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			switch cfg.Method {
-			case crowd.MethodMajority, crowd.MethodDawidSkene, crowd.MethodOneCoin:
-			default:
-				return usageErrorf("--method %q: want majority, dawid-skene or one-coin", cfg.Method)
-			}
-			if cfg.Reference != "" && cfg.Debias == "" {
-				return usageErrorf("--reference-stratum needs --debias COVARIATE")
-			}
-			cfg.Rules = clean.rules()
-			cfg.NoCleaning = clean.noCleaning
-			s, err := openStore(args[0])
+			over, err := checkedOverrides(cmd)
 			if err != nil {
 				return err
 			}
-			defer s.Close()
-			bar := newProgress(cmd, -1, "combining")
-			rep, err := round.Consensus(s, cfg, source(cmd))
-			bar.Finish()
-			if err != nil {
-				return err
-			}
-			if asJSON {
-				return printJSON(cmd, rep)
-			}
-			outf(cmd, "%s", consensusText(rep, explain))
-			return nil
+			return onStore(cmd, args[0], "combining", func(s *store.Store) error {
+				rc, err := projectConfig(s, over)
+				if err != nil {
+					return err
+				}
+				cc := rc.Consensus
+				if cc.Reference != "" && cc.Debias == "" {
+					return usageErrorf("--reference-stratum needs --debias COVARIATE")
+				}
+				cc.Smoothing, cc.Strata, cc.Uncertain = cfg.Smoothing, cfg.Strata, cfg.Uncertain
+				rep, err := round.Consensus(s, cc, source(cmd))
+				if err != nil {
+					return err
+				}
+				return show(cmd, asJSON, rep, rep.Text(explain))
+			})
 		},
 	}
 	fl := c.Flags()
-	fl.StringVar(&cfg.Method, "method", cfg.Method, "combining method: majority, dawid-skene or one-coin")
 	fl.Float64Var(&cfg.Smoothing, "smoothing", 0, "Dirichlet pseudo-count added to each confusion cell (EM methods)")
-	fl.StringVar(&cfg.Debias, "debias", "", "correct a bias shared by everyone that depends on this covariate")
-	fl.StringVar(&cfg.Reference, "reference-stratum", "", "the covariate value taken as unbiased when there is no gold")
 	fl.IntVar(&cfg.Strata, "strata", 5, "quantile bins for a numeric covariate with many values")
 	fl.Float64Var(&cfg.Uncertain, "uncertain-below", 0.95, "an item whose posterior is below this still needs labels")
-	fl.Uint64Var(&cfg.Seed, "seed", 1, "seed for the tie-break of majority vote")
 	fl.BoolVar(&explain, "explain", false, "list every drop and flag of the cleaning rules")
 	fl.BoolVar(&asJSON, "json", false, "print the full report as JSON")
-	clean.bind(c)
+	bindSettings(c, append(cleaningKeys, "method", "debias", "reference-stratum", "seed")...)
 	return c
-}
-
-func consensusText(r *round.ConsensusReport, explain bool) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "consensus: %s over %d items; %d of %d labels kept after cleaning\n", r.Config.Method, r.Items, r.LabelsKept, r.LabelsIn)
-	if r.Iterations > 0 {
-		conv := "converged"
-		if !r.Converged {
-			conv = "NOT converged (raise the iterations or add smoothing)"
-		}
-		fmt.Fprintf(&b, "  EM: %d iterations, log-likelihood %.3f, %s\n", r.Iterations, r.LogLik, conv)
-	}
-	if r.Ties > 0 {
-		fmt.Fprintf(&b, "  majority ties broken at random (seeded): %d items\n", r.Ties)
-	}
-	fmt.Fprintf(&b, "  gold items: %d\n", r.Gold)
-	fmt.Fprintf(&b, "  items with no labels after cleaning: %d\n", r.NoLabels)
-	fmt.Fprintf(&b, "  items still uncertain (posterior < %.2f): %d — ask for more labels there\n", r.Config.Uncertain, r.Uncertain)
-	b.WriteString("  class shares (prior):")
-	for k, c := range r.Classes {
-		fmt.Fprintf(&b, " %s %.3f", c, r.Prior[k])
-	}
-	b.WriteString("\n")
-	b.WriteString("cleaning rules:\n")
-	for _, s := range r.Rules {
-		state := "off"
-		if s.On {
-			state = "on"
-		}
-		fmt.Fprintf(&b, "  %-16s %-3s dropped %d labels, %d annotators", s.Rule, state, s.Labels, s.Annotators)
-		if s.Note != "" {
-			fmt.Fprintf(&b, " (%s)", s.Note)
-		}
-		b.WriteString("\n")
-	}
-	if explain {
-		if len(r.Drops) == 0 {
-			b.WriteString("  no drops or flags\n")
-		}
-		for _, d := range r.Drops {
-			what := "dropped"
-			if d.Flag {
-				what = "flagged"
-			}
-			where := d.Annotator
-			if d.Item != "" {
-				where += " on " + d.Item
-			}
-			fmt.Fprintf(&b, "  %s %s [%s]: %s\n", what, where, d.Rule, d.Reason)
-		}
-	}
-	if d := r.Debias; d != nil {
-		fmt.Fprintf(&b, "debiasing by %q (%s", d.Covariate, d.Method)
-		if d.Reference != "" {
-			fmt.Fprintf(&b, ", reference stratum %s", d.Reference)
-		}
-		fmt.Fprintf(&b, "); class shares per stratum before → after:\n")
-		for _, s := range d.Strata {
-			fmt.Fprintf(&b, "  %-10s %5d items:", s.Name, s.Items)
-			for k, c := range r.Classes {
-				if s.Items == 0 {
-					continue
-				}
-				fmt.Fprintf(&b, " %s %.2f→%.2f", c, s.Before[k], s.After[k])
-			}
-			b.WriteString("\n")
-		}
-	}
-	var kept, gone []round.AnnotatorReport
-	for _, a := range r.Annotators {
-		if a.Labels > 0 {
-			kept = append(kept, a)
-		} else if a.Dropped > 0 {
-			gone = append(gone, a)
-		}
-	}
-	sortBy(kept, func(a, b round.AnnotatorReport) bool { return a.Reliability < b.Reliability })
-	b.WriteString("annotators (lowest reliability first):\n")
-	show := kept
-	if len(show) > 10 && !explain {
-		show = show[:10]
-	}
-	for _, a := range show {
-		fmt.Fprintf(&b, "  %-20s reliability %.3f  labels %d  dropped %d\n", a.ID, a.Reliability, a.Labels, a.Dropped)
-	}
-	if len(show) < len(kept) {
-		fmt.Fprintf(&b, "  … %d more (--explain or --json lists all)\n", len(kept)-len(show))
-	}
-	if len(gone) > 0 {
-		ids := make([]string, len(gone))
-		for i, a := range gone {
-			ids[i] = a.ID
-		}
-		fmt.Fprintf(&b, "  dropped entirely by the cleaning rules: %s\n", strings.Join(ids, ", "))
-	}
-	return b.String()
 }
 
 func consensusStatus(s *store.Store) (any, string, error) {

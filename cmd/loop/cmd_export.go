@@ -3,7 +3,6 @@ package main
 import (
 	"fmt"
 	"io"
-	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -109,26 +108,7 @@ export.Rollup), the parent's items taken as a sample of its items.`,
 			if asJSON {
 				return printJSON(cmd, ps)
 			}
-			var b strings.Builder
-			fmt.Fprintf(&b, "%-16s %6s", "parent", "items")
-			for _, k := range cb.Keys() {
-				fmt.Fprintf(&b, "  %-22s", k)
-			}
-			if cb.IsOrdinal() {
-				fmt.Fprintf(&b, "  %-22s", "mean position")
-			}
-			b.WriteString("\n")
-			for _, p := range ps {
-				fmt.Fprintf(&b, "%-16s %3d/%-3d", p.Parent, p.Answered, p.Items)
-				for _, sh := range p.Shares {
-					fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]      ", sh.Value, sh.Lo, sh.Hi)
-				}
-				if p.Position != nil {
-					fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]", p.Position.Value, p.Position.Lo, p.Position.Hi)
-				}
-				b.WriteString("\n")
-			}
-			outf(cmd, "%s", b.String())
+			outf(cmd, "%s", export.RollupText(ps, cb.Keys(), cb.IsOrdinal()))
 			return nil
 		},
 	}

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"fmt"
 	"strconv"
 	"strings"
 
@@ -61,15 +60,7 @@ as a guide, and check them against a pilot with gold items.`,
 			if asJSON {
 				return printJSON(cmd, cells)
 			}
-			var b strings.Builder
-			fmt.Fprintf(&b, "consensus accuracy against the simulated truth (mean of %d projects; min–max)\n", max(cfg.Seeds, 1))
-			fmt.Fprintf(&b, "crowd: %.0f%% careful, %.0f%% average, %.0f%% careless, %.0f%% spammers; %d annotators, %d items, %d classes\n",
-				100*spec.Careful, 100*spec.Average, 100*spec.Careless, 100*spec.Spammer, spec.Annotators, spec.Items, spec.Classes)
-			fmt.Fprintf(&b, "%-16s %-12s %-24s %s\n", "labels per item", "labels", "method", "accuracy")
-			for _, c := range cells {
-				fmt.Fprintf(&b, "%-16d %-12d %-24s %.3f (%.3f–%.3f)\n", c.LabelsPerItem, c.Labels, c.Method, c.Accuracy, c.Min, c.Max)
-			}
-			outf(cmd, "%s", b.String())
+			outf(cmd, "%s", plan.RedundancyText(cells, cfg))
 			return nil
 		},
 	}

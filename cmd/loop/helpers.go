@@ -15,7 +15,6 @@ import (
 	"github.com/spf13/cobra"
 	"golang.org/x/term"
 
-	"handoff"
 	"handoff/ingest"
 	"handoff/internal/atomicfile"
 	"handoff/internal/beside"
@@ -45,11 +44,6 @@ func openStore(dir string) (*store.Store, error) {
 	}
 	s.ImportChunk = importChunk
 	return s, nil
-}
-
-// createStore makes a new project in dir with codebook cb.
-func createStore(dir string, cb handoff.Codebook, cmd *cobra.Command) (*store.Store, error) {
-	return store.Create(dir, cb, source(cmd))
 }
 
 // source returns the audit "who/what" string for this run: the command line
@@ -151,6 +145,32 @@ func writeOutput(cmd *cobra.Command, path string, fn func(w io.Writer) error) er
 		return bw.Flush()
 	}
 	return atomicfile.Write(path, 0o666, fn)
+}
+
+// onStore opens the project in dir, runs fn on it, with a spinner named
+// busy ("" for none) while it runs, and closes the project.
+func onStore(cmd *cobra.Command, dir, busy string, fn func(s *store.Store) error) error {
+	s, err := openStore(dir)
+	if err != nil {
+		return err
+	}
+	defer s.Close()
+	if busy == "" {
+		return fn(s)
+	}
+	bar := newProgress(cmd, -1, busy)
+	err = fn(s)
+	bar.Finish()
+	return err
+}
+
+// show prints v as JSON when asJSON, otherwise text.
+func show(cmd *cobra.Command, asJSON bool, v any, text string) error {
+	if asJSON {
+		return printJSON(cmd, v)
+	}
+	outf(cmd, "%s", text)
+	return nil
 }
 
 // printJSON writes v as indented JSON to the command's stdout.
