@@ -6,6 +6,7 @@ package round
 import (
 	"fmt"
 	"sort"
+	"strconv"
 	"strings"
 
 	"handoff/crowd"
@@ -18,11 +19,12 @@ import (
 // reliability (the ten lowest unless explain).
 func (r *ConsensusReport) Text(explain bool) string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "consensus: %s over %d items; %d of %d labels kept after cleaning\n", r.Config.Method, r.Items, r.LabelsKept, r.LabelsIn)
+	fmt.Fprintf(&b, "consensus: %s over %d items; %d of %d labels kept after cleaning\n", r.modelName(), r.Items, r.LabelsKept, r.LabelsIn)
+	b.WriteString(r.modelText())
 	if r.Iterations > 0 {
 		conv := "converged"
 		if !r.Converged {
-			conv = "NOT converged (raise the iterations or add smoothing)"
+			conv = fmt.Sprintf("NOT converged after %d iterations: the posteriors are those of the last iteration; compare with --method one-coin", r.Iterations)
 		}
 		fmt.Fprintf(&b, "  EM: %d iterations, log-likelihood %.3f, %s\n", r.Iterations, r.LogLik, conv)
 	}
@@ -43,7 +45,11 @@ func (r *ConsensusReport) Text(explain bool) string {
 		if s.On {
 			state = "on"
 		}
-		fmt.Fprintf(&b, "  %-16s %-3s dropped %d labels, %d annotators", s.Rule, state, s.Labels, s.Annotators)
+		if s.Flagged > 0 || s.Rule == crowd.RuleStraightLining {
+			fmt.Fprintf(&b, "  %-18s %-3s flagged %d annotators (nothing dropped)", s.Rule, state, s.Flagged)
+		} else {
+			fmt.Fprintf(&b, "  %-18s %-3s dropped %d labels, %d annotators", s.Rule, state, s.Labels, s.Annotators)
+		}
 		if s.Note != "" {
 			fmt.Fprintf(&b, " (%s)", s.Note)
 		}
@@ -108,6 +114,80 @@ func (r *ConsensusReport) Text(explain bool) string {
 			ids[i] = a.ID
 		}
 		fmt.Fprintf(&b, "  dropped entirely by the cleaning rules: %s\n", strings.Join(ids, ", "))
+	}
+	return b.String()
+}
+
+// modelName is the model a consensus used, with "(chosen)" when the method
+// was auto.
+func (r *ConsensusReport) modelName() string {
+	if r.Model == "" {
+		return r.Config.Method
+	}
+	if r.Config.Method == crowd.MethodAuto {
+		return r.Model + " (chosen automatically)"
+	}
+	return r.Model
+}
+
+// modelText says why the model was used, with each candidate's held-out
+// score, and the hierarchical model's estimated prior.
+func (r *ConsensusReport) modelText() string {
+	var b strings.Builder
+	if c := r.Choice; c != nil {
+		fmt.Fprintf(&b, "  why: %s\n", c.Reason)
+		if len(c.Candidates) > 0 {
+			fmt.Fprintf(&b, "  held-out labels: %s scored", thousands(c.HeldOut))
+			if c.SampleItems < r.Items {
+				fmt.Fprintf(&b, " (on a sample of %s items)", thousands(c.SampleItems))
+			}
+			b.WriteString("; mean log-probability of a held-out label, and its difference from hierarchical:\n")
+			for _, m := range c.Candidates {
+				conv := ""
+				if !m.Converged {
+					conv = "  (EM not converged)"
+				}
+				if m.Method == crowd.MethodHierarchical {
+					fmt.Fprintf(&b, "    %-13s %8.4f%s\n", m.Method, m.LogLik, conv)
+				} else {
+					fmt.Fprintf(&b, "    %-13s %8.4f  %+.4f ± %.4f%s\n", m.Method, m.LogLik, m.Diff, m.SE, conv)
+				}
+			}
+		}
+		if c.Warning != "" {
+			fmt.Fprintf(&b, "  warning: %s; plain dawid-skene overfits here\n", c.Warning)
+		}
+	}
+	if h := r.Hier; h != nil {
+		k := len(r.Classes)
+		bt, bc, bv := 0, 0, -1.0
+		for t := 0; t < k; t++ {
+			for c := 0; c < k; c++ {
+				if c != t && h.Pooled[t*k+c] > bv {
+					bt, bc, bv = t, c, h.Pooled[t*k+c]
+				}
+			}
+		}
+		fmt.Fprintf(&b, "  prior (estimated from the labels): row strength %.3g labels, skill spread %.2f (log-odds), largest shared confusion %s → %s %.2f\n",
+			h.Beta, h.SkillSD, r.Classes[bt], r.Classes[bc], bv)
+	}
+	return b.String()
+}
+
+// thousands writes n with commas between groups of three digits.
+func thousands(n int) string {
+	s := strconv.Itoa(n)
+	neg := strings.HasPrefix(s, "-")
+	s = strings.TrimPrefix(s, "-")
+	var b strings.Builder
+	for i, r := range s {
+		if i > 0 && (len(s)-i)%3 == 0 {
+			b.WriteByte(',')
+		}
+		b.WriteRune(r)
+	}
+	if neg {
+		return "-" + b.String()
 	}
 	return b.String()
 }

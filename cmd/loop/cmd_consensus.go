@@ -62,7 +62,7 @@ the project has them, otherwise against a stratum you name as unbiased with
 		},
 	}
 	fl := c.Flags()
-	fl.Float64Var(&cfg.Smoothing, "smoothing", 0, "Dirichlet pseudo-count added to each confusion cell (EM methods)")
+	fl.Float64Var(&cfg.Smoothing, "smoothing", 0, "Dirichlet pseudo-count added to each confusion cell (dawid-skene, one-coin; the class prior only for hierarchical)")
 	fl.IntVar(&cfg.Strata, "strata", 5, "quantile bins for a numeric covariate with many values")
 	fl.Float64Var(&cfg.Uncertain, "uncertain-below", 0.95, "an item whose posterior is below this still needs labels")
 	fl.BoolVar(&explain, "explain", false, "list every drop and flag of the cleaning rules")

@@ -31,7 +31,8 @@ var valueFlags = []settingFlag{
 	{"method", "", "method"}, {"debias", "", "debias"}, {"reference-stratum", "", "reference-stratum"},
 	{"repeat-items", "", "repeat-items"}, {"repeat-times", "", "repeat-times"},
 	{"gold-min-accuracy", "", "gold-min-accuracy"}, {"gold-min-items", "", "gold-min-items"},
-	{"min-seconds", "", "min-seconds"}, {"seed", "", "seed"},
+	{"min-seconds", "", "min-seconds"}, {"drop-spammers", "", "drop-spammers"},
+	{"spammer-below", "", "spammer-below"}, {"spammer-min-labels", "", "spammer-min-labels"}, {"seed", "", "seed"},
 }
 
 // offFlags are switches that turn a setting off.
@@ -143,7 +144,7 @@ func settingUsage(err error) error {
 }
 
 // cleaningKeys are the settings of the cleaning rules.
-var cleaningKeys = []string{"cleaning", "first-only", "repeat-offenders", "repeat-items", "repeat-times", "gold-screen", "gold-min-accuracy", "gold-min-items", "min-seconds", "straight-lining"}
+var cleaningKeys = []string{"cleaning", "first-only", "repeat-offenders", "repeat-items", "repeat-times", "gold-screen", "gold-min-accuracy", "gold-min-items", "min-seconds", "straight-lining", "drop-spammers", "spammer-below", "spammer-min-labels"}
 
 // trainKeys are the settings of the training.
 var trainKeys = []string{"learner", "features", "lambda", "folds", "seed"}
