@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -14,6 +15,58 @@ import (
 type Source struct {
 	Path   string
 	Format Format
+}
+
+// ErrSource is wrapped by the errors of ItemSources and LabelSources that
+// are mistakes in how the files were named (a format that cannot be told
+// or does not fit); a file that cannot be read gives its own error.
+var ErrSource = errors.New("bad input file")
+
+// ItemSources checks item files (or image folders) and their format:
+// format, when not "", applies to all; otherwise each one's is guessed from
+// its name. split says the texts will be split into sentences, which
+// images cannot be.
+func ItemSources(paths []string, format Format, split bool) ([]Source, error) {
+	srcs := make([]Source, 0, len(paths))
+	for _, f := range paths {
+		fi, err := os.Stat(f)
+		if err != nil {
+			return nil, err
+		}
+		ff := format
+		if ff == "" {
+			ff = GuessFormat(f, fi.IsDir())
+		}
+		switch {
+		case ff == "":
+			return nil, fmt.Errorf("%w: cannot tell the format of %s from its name; use --format csv|jsonl|images", ErrSource, f)
+		case ff != CSV && ff != JSONL && ff != Images:
+			return nil, fmt.Errorf("%w: --format %q: want csv, jsonl or images", ErrSource, format)
+		case fi.IsDir() && ff != Images:
+			return nil, fmt.Errorf("%w: %s is a folder; only --format images reads folders", ErrSource, f)
+		case ff == Images && split:
+			return nil, fmt.Errorf("%w: --split applies to text, not images (%s)", ErrSource, f)
+		}
+		srcs = append(srcs, Source{Path: f, Format: ff})
+	}
+	return srcs, nil
+}
+
+// LabelSources checks label or gold files and their format (CSV or JSONL:
+// format, or guessed from each name).
+func LabelSources(paths []string, format Format) ([]Source, error) {
+	srcs := make([]Source, 0, len(paths))
+	for _, f := range paths {
+		ff := format
+		if ff == "" {
+			ff = GuessFormat(f, false)
+		}
+		if ff != CSV && ff != JSONL {
+			return nil, fmt.Errorf("%w: cannot read labels from %s: use a .csv or .jsonl file, or --format csv|jsonl", ErrSource, f)
+		}
+		srcs = append(srcs, Source{Path: f, Format: ff})
+	}
+	return srcs, nil
 }
 
 // Reader is what every record reader of this package offers: the next

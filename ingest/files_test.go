@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"errors"
 	"image"
 	"image/png"
 	"io"
@@ -110,3 +111,47 @@ type closer struct {
 }
 
 func (c closer) Close() error { c.after(); return c.ReadCloser.Close() }
+
+// TestSources: formats are guessed from names or given, and names that
+// cannot be read as asked are refused with ErrSource, naming the file.
+func TestSources(t *testing.T) {
+	dir := t.TempDir()
+	csvFile := filepath.Join(dir, "a.csv")
+	os.WriteFile(csvFile, []byte("id,text\n"), 0o644)
+	odd := filepath.Join(dir, "a.dat")
+	os.WriteFile(odd, []byte("x"), 0o644)
+	items := []struct {
+		name   string
+		paths  []string
+		format Format
+		split  bool
+		want   Format
+		errHas string
+	}{
+		{"guessed csv", []string{csvFile}, "", false, CSV, ""},
+		{"a folder of images", []string{dir}, "", false, Images, ""},
+		{"format given", []string{odd}, JSONL, false, JSONL, ""},
+		{"cannot tell", []string{odd}, "", false, "", "a.dat"},
+		{"folder as csv", []string{dir}, CSV, false, "", "is a folder"},
+		{"split images", []string{dir}, "", true, "", "--split"},
+		{"unknown format", []string{csvFile}, "xlsx", false, "", `"xlsx"`},
+	}
+	for _, c := range items {
+		srcs, err := ItemSources(c.paths, c.format, c.split)
+		switch {
+		case c.errHas == "" && (err != nil || srcs[0].Format != c.want):
+			t.Errorf("%s: %v %v", c.name, srcs, err)
+		case c.errHas != "" && (!errors.Is(err, ErrSource) || !strings.Contains(err.Error(), c.errHas)):
+			t.Errorf("%s: %v, want ErrSource naming %s", c.name, err, c.errHas)
+		}
+	}
+	if _, err := ItemSources([]string{filepath.Join(dir, "missing.csv")}, "", false); err == nil || errors.Is(err, ErrSource) {
+		t.Errorf("a missing file: %v, want its own error", err)
+	}
+	if s, err := LabelSources([]string{csvFile, "b.jsonl"}, ""); err != nil || s[1].Format != JSONL {
+		t.Errorf("label sources %v %v", s, err)
+	}
+	if _, err := LabelSources([]string{odd}, ""); !errors.Is(err, ErrSource) {
+		t.Errorf("labels from a.dat: %v", err)
+	}
+}

@@ -17,6 +17,7 @@ import (
 	"github.com/spf13/pflag"
 
 	"handoff/internal/beside"
+	"handoff/round"
 	"handoff/store"
 )
 
@@ -81,7 +82,7 @@ func forward(args []string, stdout, stderr io.Writer) (code int, ok bool) {
 	if !found && c.Name() == "status" {
 		// A workspace whose projects a server serves: the server runs the
 		// whole status (it opens the other projects itself).
-		if names, err := workspaceProjects(dir); err == nil {
+		if names, err := round.WorkspaceProjects(dir); err == nil {
 			for _, n := range names {
 				if rec, found = beside.ReadRecord(filepath.Join(dir, n)); found {
 					break

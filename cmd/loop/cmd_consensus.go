@@ -1,9 +1,6 @@
 package main
 
 import (
-	"errors"
-	"fmt"
-
 	"github.com/spf13/cobra"
 
 	"handoff/round"
@@ -12,7 +9,6 @@ import (
 
 func init() {
 	register(newConsensusCmd)
-	registerStatus("consensus", consensusStatus)
 }
 
 func newConsensusCmd() *cobra.Command {
@@ -69,21 +65,4 @@ the project has them, otherwise against a stratum you name as unbiased with
 	fl.BoolVar(&asJSON, "json", false, "print the full report as JSON")
 	bindSettings(c, append(cleaningKeys, "method", "debias", "reference-stratum", "seed")...)
 	return c
-}
-
-func consensusStatus(s *store.Store) (any, string, error) {
-	_, r, err := round.StoredConsensus(s)
-	if errors.Is(err, round.ErrNothing) {
-		return nil, "", nil
-	}
-	if err != nil {
-		return nil, "", err
-	}
-	v := map[string]any{
-		"method": r.Config.Method, "items": r.Items, "labels_kept": r.LabelsKept,
-		"no_labels": r.NoLabels, "uncertain": r.Uncertain, "uncertain_below": r.Config.Uncertain,
-	}
-	t := fmt.Sprintf("method %s; %d items still uncertain (posterior < %.2f); %d with no labels after cleaning\n",
-		r.Config.Method, r.Uncertain, r.Config.Uncertain, r.NoLabels)
-	return v, t, nil
 }

@@ -46,7 +46,7 @@ Items with no answer yet have an empty class and source.`,
 			if err != nil {
 				return err
 			}
-			if err := writeOutput(cmd, out, func(w io.Writer) error { return export.Write(w, format, rows, cbKeys(s)) }); err != nil {
+			if err := writeOutput(cmd, out, func(w io.Writer) error { cb := s.Codebook(); return export.Write(w, format, rows, cb.Keys()) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"os"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -64,30 +63,9 @@ The format is guessed from the name (.csv, .jsonl/.ndjson/.json, a folder or
 					}
 				}
 			}
-			srcs := make([]ingest.Source, 0, len(args)-1)
-			for _, f := range args[1:] {
-				fi, err := os.Stat(f)
-				if err != nil {
-					return err
-				}
-				ff := ingest.Format(format)
-				if ff == "" {
-					ff = ingest.GuessFormat(f, fi.IsDir())
-				}
-				switch ff {
-				case ingest.CSV, ingest.JSONL, ingest.Images:
-				case "":
-					return usageErrorf("cannot tell the format of %s from its name; use --format csv|jsonl|images", f)
-				default:
-					return usageErrorf("--format %q: want csv, jsonl or images", format)
-				}
-				if fi.IsDir() && ff != ingest.Images {
-					return usageErrorf("%s is a folder; only --format images reads folders", f)
-				}
-				if ff == ingest.Images && opt.SplitSentences {
-					return usageErrorf("--split applies to text, not images (%s)", f)
-				}
-				srcs = append(srcs, ingest.Source{Path: f, Format: ff})
+			srcs, err := ingest.ItemSources(args[1:], ingest.Format(format), opt.SplitSentences)
+			if err != nil {
+				return sourceUsage(err)
 			}
 			s, err := openStore(args[0])
 			if err != nil {

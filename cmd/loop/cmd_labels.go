@@ -34,16 +34,9 @@ answer; default the file name). Gold for an item that has gold replaces it.`,
   loop labels add proj expert.csv --gold`,
 		Args: cobra.MinimumNArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			srcs := make([]ingest.Source, 0, len(args)-1)
-			for _, f := range args[1:] {
-				ff := ingest.Format(format)
-				if ff == "" {
-					ff = ingest.GuessFormat(f, false)
-				}
-				if ff != ingest.CSV && ff != ingest.JSONL {
-					return usageErrorf("cannot read labels from %s: use a .csv or .jsonl file, or --format csv|jsonl", f)
-				}
-				srcs = append(srcs, ingest.Source{Path: f, Format: ff})
+			srcs, err := ingest.LabelSources(args[1:], ingest.Format(format))
+			if err != nil {
+				return sourceUsage(err)
 			}
 			s, err := openStore(args[0])
 			if err != nil {

@@ -21,7 +21,6 @@ func init() {
 	register(newVerdictCmd)
 	register(newAutolabelCmd)
 	register(newModelCmd)
-	registerStatus("rounds", roundStatus)
 }
 
 func newTrainCmd() *cobra.Command {
@@ -362,13 +361,4 @@ elsewhere (see beam/).`,
 		},
 	})
 	return c
-}
-
-func roundStatus(s *store.Store) (any, string, error) {
-	r, err := round.Latest(s)
-	if err != nil {
-		return nil, "", nil
-	}
-	v := map[string]any{"round": r.Round, "model": r.Model, "decision": r.Verdict.Decision, "held_out": r.HeldOut, "pool": r.Pool}
-	return v, fmt.Sprintf("latest round %d, model %s: %s\n", r.Round, r.Model, r.Verdict.Headline()), nil
 }

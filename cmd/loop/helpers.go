@@ -8,7 +8,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
-	"sort"
+	"strings"
 	"time"
 
 	"github.com/schollz/progressbar/v3"
@@ -18,6 +18,7 @@ import (
 	"handoff/ingest"
 	"handoff/internal/atomicfile"
 	"handoff/internal/beside"
+	"handoff/round"
 	"handoff/store"
 )
 
@@ -134,6 +135,14 @@ func located[T any](err error, f *ingest.Files[T]) error {
 	return err
 }
 
+// sourceUsage makes a badly named input file a usage error (exit 2).
+func sourceUsage(err error) error {
+	if errors.Is(err, ingest.ErrSource) {
+		return usageErrorf("%v", strings.TrimPrefix(err.Error(), ingest.ErrSource.Error()+": "))
+	}
+	return err
+}
+
 // writeOutput writes what fn writes to path, whole or not at all
 // (atomicfile), or to stdout when path is "" or "-".
 func writeOutput(cmd *cobra.Command, path string, fn func(w io.Writer) error) error {
@@ -203,22 +212,11 @@ func infof(cmd *cobra.Command, format string, a ...any) {
 	}
 }
 
-// statusSection adds one section to `loop status`: fn returns a value for
-// the JSON output (under name) and the text lines for the plain output. A
-// section with nothing to say returns (nil, "", nil) and is left out.
-type statusSection struct {
-	name string
-	fn   func(s *store.Store) (jsonValue any, text string, err error)
-}
-
-var statusSections []statusSection
+// statusSections are the sections commands add to `loop status` (after
+// round.Sections).
+var statusSections []round.Section
 
 // registerStatus adds a section to `loop status`. Call it from init.
 func registerStatus(name string, fn func(s *store.Store) (any, string, error)) {
-	statusSections = append(statusSections, statusSection{name, fn})
-}
-
-func sortedStrings(s []string) []string {
-	sort.Strings(s)
-	return s
+	statusSections = append(statusSections, round.Section{Name: name, Fn: fn})
 }

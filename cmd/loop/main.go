@@ -15,6 +15,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -79,7 +80,8 @@ Try it on an invented scenario first: loop demo /tmp/handoff-demo`,
 	for name := range subcommands {
 		names = append(names, name)
 	}
-	for _, name := range sortedStrings(names) {
+	slices.Sort(names)
+	for _, name := range names {
 		g := newGroup(name)
 		groups[name] = g
 		for _, f := range subcommands[name] {
