@@ -287,14 +287,3 @@ func subsetWeights(w []float64, rows []int) []float64 {
 	}
 	return out
 }
-
-// argmax returns the index of the largest entry (the first on ties).
-func argmax(p []float64) int {
-	b := 0
-	for c, v := range p {
-		if v > p[b] {
-			b = c
-		}
-	}
-	return b
-}

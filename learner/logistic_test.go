@@ -3,6 +3,8 @@ package learner
 import (
 	"math"
 	"testing"
+
+	"gonum.org/v1/gonum/floats"
 )
 
 // Source: R 4.2.2, glm(am ~ hp + wt, family = binomial, data = mtcars)
@@ -90,7 +92,7 @@ func TestLogisticMatchesSklearnIris(t *testing.T) {
 	}
 	correct := 0
 	for i, c := range y {
-		if argmax(p[i]) == c {
+		if floats.MaxIdx(p[i]) == c {
 			correct++
 		}
 	}

@@ -11,6 +11,8 @@ import (
 	"os"
 	"slices"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/features"
 )
@@ -147,7 +149,7 @@ func (m *Machine) Label(items []handoff.Item) ([]handoff.MachineLabel, error) {
 	out := make([]handoff.MachineLabel, len(items))
 	for i := range items {
 		row := p[i*K : (i+1)*K]
-		best := argmax(row)
+		best := floats.MaxIdx(row)
 		out[i] = handoff.MachineLabel{Item: items[i].ID, Class: m.Classes[best], Confidence: row[best], Proba: slices.Clone(row), Model: m.Name}
 	}
 	return out, nil

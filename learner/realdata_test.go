@@ -12,6 +12,8 @@ import (
 	"strconv"
 	"testing"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 )
 
@@ -121,7 +123,7 @@ func TestTextAccuracyFloors(t *testing.T) {
 		p := m.PredictProba(vec.Transform(pick(texts, te)))
 		hit := 0
 		for i, r := range te {
-			if argmax(p[i]) == y[r] {
+			if floats.MaxIdx(p[i]) == y[r] {
 				hit++
 			}
 		}
@@ -166,7 +168,7 @@ func TestTextAccuracyFloors(t *testing.T) {
 		q := nb.PredictProba(vec.Transform(pick(texts, te)))
 		hit = 0
 		for i, r := range te {
-			if argmax(q[i]) == y[r] {
+			if floats.MaxIdx(q[i]) == y[r] {
 				hit++
 			}
 		}

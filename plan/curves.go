@@ -8,6 +8,8 @@ import (
 	"strings"
 	"sync"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 	"handoff/learner"
 	"handoff/round"
@@ -151,7 +153,7 @@ func LearningCurve(X features.Matrix, y []int, k int, cfg CurveConfig) ([]verdic
 		p := predictFull(m, present, k, X, test)
 		wrong := 0
 		for a, i := range test {
-			if selector.Argmax(p[a*k:(a+1)*k]) != y[i] {
+			if floats.MaxIdx(p[a*k:(a+1)*k]) != y[i] {
 				wrong++
 			}
 		}

@@ -1,6 +1,8 @@
 package round
 
 import (
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/features"
 	"handoff/learner"
@@ -31,15 +33,10 @@ type LabelledSet struct {
 // labelled items of the kind cfg.Kind ("" means the kind most items have).
 // It returns an error wrapping ErrNothing when no consensus was stored yet.
 func Labelled(st *store.Store, cfg TrainConfig) (*LabelledSet, error) {
-	p, err := load(st)
+	p, _, post, nl, err := withConsensus(st)
 	if err != nil {
 		return nil, err
 	}
-	cs, _, err := StoredConsensus(st)
-	if err != nil {
-		return nil, err
-	}
-	post, nl := posteriorsOf(p, cs)
 	K := len(p.cb.Classes)
 	s := &LabelledSet{K: K, p: p, kind: cfg.Kind, cfg: cfg}
 	if s.kind == "" {
@@ -53,7 +50,7 @@ func Labelled(st *store.Store, cfg TrainConfig) (*LabelledSet, error) {
 		case p.gold[i] >= 0:
 			s.Y = append(s.Y, p.gold[i])
 		case nl[i] > 0:
-			s.Y = append(s.Y, argmax(post[i*K:(i+1)*K]))
+			s.Y = append(s.Y, floats.MaxIdx(post[i*K:(i+1)*K]))
 		default:
 			continue
 		}

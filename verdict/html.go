@@ -373,7 +373,7 @@ figure{margin:1rem 0}
 <table>
 <tr><th>figure</th><th>estimate [interval]</th></tr>
 <tr><th>accuracy</th><td>{{iv .Accuracy}}</td></tr>
-<tr><th>Cohen's kappa</th><td>{{iv .Kappa}}</td></tr>
+<tr><th>Cohen's kappa</th><td>{{if .KappaNote}}{{.KappaNote}}{{else}}{{iv .Kappa}}{{end}}</td></tr>
 <tr><th>macro-F1</th><td>{{iv .MacroF1}}</td></tr>
 </table>
 <table>
