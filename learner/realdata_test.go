@@ -3,8 +3,6 @@ package learner
 import (
 	"bufio"
 	"bytes"
-	"compress/gzip"
-	"encoding/csv"
 	"encoding/json"
 	"image/png"
 	"os"
@@ -15,6 +13,7 @@ import (
 	"gonum.org/v1/gonum/floats"
 
 	"handoff/features"
+	"handoff/internal/fixtures"
 )
 
 // readJSONL reads the text and label fields of a JSON-lines file.
@@ -184,29 +183,10 @@ func TestDigitsImageFeaturesForestCV(t *testing.T) {
 	if testing.Short() {
 		t.Skip("renders and featurises 1,797 images")
 	}
-	f, err := os.Open("../testdata/digits.csv.gz")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	z, err := gzip.NewReader(f)
-	if err != nil {
-		t.Fatal(err)
-	}
-	recs, err := csv.NewReader(z).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	names := make([]string, len(recs))
-	blobs := make([][]byte, len(recs))
-	y := make([]int, len(recs))
-	for i, r := range recs {
-		px := make([]float64, 64)
-		for j := range px {
-			v, _ := strconv.ParseFloat(r[j], 64)
-			px[j] = v / 16
-		}
-		y[i], _ = strconv.Atoi(r[64])
+	pixels, y := fixtures.Digits(t)
+	names := make([]string, len(pixels))
+	blobs := make([][]byte, len(pixels))
+	for i, px := range pixels {
 		var b bytes.Buffer
 		if err := png.Encode(&b, features.RenderGray(px, 8, 8, 16)); err != nil {
 			t.Fatal(err)

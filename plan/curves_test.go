@@ -2,8 +2,6 @@ package plan
 
 import (
 	"bufio"
-	"compress/gzip"
-	"encoding/csv"
 	"encoding/json"
 	"image"
 	"os"
@@ -13,6 +11,7 @@ import (
 	"testing"
 
 	"handoff/features"
+	"handoff/internal/fixtures"
 	"handoff/internal/testproject"
 	"handoff/learner"
 	"handoff/round"
@@ -59,33 +58,9 @@ func curveText(t testing.TB) (features.Matrix, []int, int) {
 // features and standardises them.
 func curveDigits(t testing.TB) (features.Matrix, []int, int) {
 	t.Helper()
-	f, err := os.Open("../testdata/digits.csv.gz")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	z, err := gzip.NewReader(f)
-	if err != nil {
-		t.Fatal(err)
-	}
-	recs, err := csv.NewReader(z).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	imgs := make([]image.Image, len(recs))
-	y := make([]int, len(recs))
-	for i, r := range recs {
-		px := make([]float64, 64)
-		for j := range px {
-			v, err := strconv.ParseFloat(r[j], 64)
-			if err != nil {
-				t.Fatal(err)
-			}
-			px[j] = v / 16
-		}
-		if y[i], err = strconv.Atoi(r[64]); err != nil {
-			t.Fatal(err)
-		}
+	pixels, y := fixtures.Digits(t)
+	imgs := make([]image.Image, len(pixels))
+	for i, px := range pixels {
 		imgs[i] = features.RenderGray(px, 8, 8, 8)
 	}
 	ic := features.DefaultImageConfig()
