@@ -10,8 +10,9 @@
 //
 // The package also holds temperature scaling (Calibrate), the expected
 // calibration error (ECE), splits that keep the items of one parent together
-// (GroupKFold, GroupSplit), k-fold cross-validation (CrossValidate) and model
-// files (Save, Load). It knows nothing of the store, HTTP or flags.
+// (GroupKFold, GroupSplit), k-fold cross-validation (CrossValidate), the
+// Machine (features + model + temperature + class keys) and its model file
+// (WriteMachine, ReadMachine). It knows nothing of the store, HTTP or flags.
 package learner
 
 import (
