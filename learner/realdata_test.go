@@ -61,15 +61,16 @@ func pick[T any](xs []T, rows []int) []T {
 	return out
 }
 
-// Floors from CHECKS.md (our measurement with scikit-learn 1.2.1 as the
-// peer: TF-IDF word 1–2-grams, sublinear tf, min_df 2, LogisticRegression
-// C = 10 on a seeded 80/20 split): pkgdesc.jsonl 0.753, appdesc.jsonl 0.671.
+// Floors measured by us with scikit-learn 1.2.1 (Debian 12) as the
+// peer (TF-IDF word 1–2-grams, sublinear tf, min_df 2, LogisticRegression
+// C = 10 on a seeded 80/20 split): pkgdesc.jsonl 0.753, appdesc.jsonl 0.671
+// (testdata/README.md).
 // Data: Debian 12 package index and AppStream metadata (testdata/README.md).
 // On sets this small the split moves accuracy by ±0.05, so we use the
 // peer's own split: testdata/learner/textsplits.json lists the test ids of
 // scikit-learn's train_test_split(test_size=0.2, random_state=0,
 // stratify=labels) and the peer's accuracy on it (0.7647 and 0.6710). We
-// must reach both the CHECKS.md floor and the peer's figure − 0.005.
+// must reach both the floor and the peer's figure − 0.005.
 func TestTextAccuracyFloors(t *testing.T) {
 	var splits struct {
 		Splits map[string]struct {
@@ -175,7 +176,7 @@ func TestTextAccuracyFloors(t *testing.T) {
 	}
 }
 
-// CHECKS.md: hand-crafted features of the rendered UCI digits (Alpaydin &
+// Our target (common practice, no source): hand-crafted features of the rendered UCI digits (Alpaydin &
 // Kaynak 1998; testdata/digits.csv.gz) must reach 0.90 accuracy in 5-fold
 // cross-validation. Each 8×8 digit is drawn as a 128×128 grey PNG, decoded
 // and featurised by package features, then a forest is cross-validated.

@@ -89,8 +89,8 @@ func seedsUpTo(n int) []uint64 {
 
 // Uncertainty sampling beats random sampling at equal label budgets on
 // most benchmarks (Lewis & Gale 1994, "A sequential algorithm for training
-// text classifiers"; Settles 2009, "Active Learning Literature Survey";
-// CHECKS.md): averaged over seeds, entropy's test accuracy must be above
+// text classifiers", SIGIR; Settles 2009, "Active Learning Literature
+// Survey", UW–Madison TR 1648): averaged over seeds, entropy's test accuracy must be above
 // random's at ≥ 80% of the matched budgets (issue 5's target).
 //
 // FAST VERSION: budgets 100–500 only (initial 50, batches of 50), 10 seeds

@@ -17,8 +17,10 @@ import (
 func near(a, b, tol float64) bool { return math.Abs(a-b) <= tol }
 
 func TestClopperPearsonOutsideValues(t *testing.T) {
-	// Source: /work/shared/CHECKS.md "Clopper–Pearson exact binomial
-	// intervals", computed with scipy 1.10 beta.ppf (two-sided 95%).
+	// Source: Clopper & Pearson (1934) exact intervals computed with scipy
+	// 1.10 beta.ppf, two-sided 95% (copied into testdata/README.md); the
+	// one-sided bound for 0 of 300 is close to the rule of three 3/n
+	// (Hanley & Lippman-Hand 1983).
 	cases := []struct {
 		k, n   int
 		lo, hi float64
