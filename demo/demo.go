@@ -197,7 +197,7 @@ func (r *runner) project(dir string, pr project, src string) (string, error) {
 			}
 		}
 	} else {
-		r.printf("  NOT YET after %d rounds: nothing autolabelled; the crowd keeps labelling\n", res.Round)
+		r.printf("  NOT YET after %d %s: nothing autolabelled; the crowd keeps labelling\n", res.Round, map[bool]string{true: "round", false: "rounds"}[res.Round == 1])
 	}
 	rep, err := round.Verdict(st, round.VerdictConfig{})
 	if err != nil {
