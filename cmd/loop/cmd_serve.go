@@ -58,42 +58,10 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
   loop serve proj --addr 0.0.0.0:8080 --secure-cookies --metrics admin   # behind an HTTPS proxy`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if cfg.Redundancy < 1 {
-				return usageErrorf("--redundancy must be at least 1, not %d", cfg.Redundancy)
-			}
-			if cfg.LeaseTime < time.Second {
-				return usageErrorf("--lease must be at least 1s, not %s", cfg.LeaseTime)
-			}
-			if cfg.PassMark <= 0 || cfg.PassMark > 1 {
-				return usageErrorf("--pass-mark must be in (0, 1], not %g", cfg.PassMark)
-			}
-			if cfg.Rate <= 0 || cfg.Burst < 1 {
-				return usageErrorf("--rate must be > 0 and --burst ≥ 1")
-			}
-			if cfg.Practice < 0 || cfg.Check < 0 || cfg.CheckAttempts < 0 {
-				return usageErrorf("--practice, --check and --check-attempts must be ≥ 0")
-			}
-			if cfg.ChangeWindow < 0 {
-				return usageErrorf("--change-window must be ≥ 0")
-			}
-			switch cfg.Metrics {
-			case "admin", "open", "off":
-			default:
-				return usageErrorf("--metrics %q: use admin, open or off", cfg.Metrics)
-			}
 			// 0 in the flags means none (or no limit); the API's zero means
 			// its default.
-			if cfg.Practice == 0 {
-				cfg.Practice = -1
-			}
-			if cfg.Check == 0 {
-				cfg.Check = -1
-			}
-			if cfg.CheckAttempts == 0 {
-				cfg.CheckAttempts = -1
-			}
-			if cfg.ChangeWindow == 0 {
-				cfg.ChangeWindow = time.Nanosecond // no changes after the answer
+			if err := cfg.FromFlags(); err != nil {
+				return usageErrorf("%v", err)
 			}
 			dir := args[0]
 			s, err := openStore(dir)
