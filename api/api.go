@@ -34,6 +34,11 @@
 //     never a token that verifies (see auth). A revoked token is refused
 //     from the next request on.
 //   - Images are served by item id only; the file path comes from the store.
+//
+// Size: about 4,000 lines, because it is every HTTP route of the service
+// (labelling, board, people, imports, rounds, exports, metrics) with their
+// authentication, rate limits, the work pool and the practice gate; the
+// work is done by the packages below, this package only serves it.
 package api
 
 import (

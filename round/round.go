@@ -14,6 +14,15 @@
 // Every step is deterministic given the store's contents and Config.Seed: the
 // same store and settings give byte-identical stored results, from the
 // command line or from the board.
+//
+// Size: this is the largest package below the CLI (about 4,000 lines)
+// because it is the one place where the steps meet and where the state
+// that carries from round to round lives: the held-out set and its
+// reference standard, the stop set, the learning-curve record, the
+// settings with their keys and ranges, the consensus and training reports
+// and their text forms. Splitting it would spread that state over
+// packages that must then share it; what is not the round (export, roll-up,
+// planning, curve replays) has moved out to export/ and plan/.
 package round
 
 import (

@@ -337,4 +337,3 @@ func (s *Store) grantLeaseNow(l ServiceLease) error {
 	}
 	return s.batch(fn)
 }
-
