@@ -6,6 +6,7 @@ require (
 	github.com/chromedp/cdproto v0.159.0
 	github.com/chromedp/chromedp v0.23.0
 	github.com/clipperhouse/uax29/v2 v2.7.0
+	github.com/google/renameio/v2 v2.0.2
 	github.com/kljensen/snowball v0.10.0
 	github.com/labstack/echo/v4 v4.16.0
 	github.com/parquet-go/parquet-go v0.32.0
