@@ -152,4 +152,3 @@ func TestRollupSharePosition(t *testing.T) {
 		t.Errorf("position = %v, want 3", p)
 	}
 }
-
