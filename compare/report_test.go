@@ -130,8 +130,8 @@ func TestCompareItemsAndParents(t *testing.T) {
 		t.Fatal(err)
 	}
 	h := html.String()
-	if strings.Count(h, "<svg") != 2 || !strings.Contains(h, "45° line") || !strings.Contains(h, "Cohen's kappa") {
-		t.Errorf("html: %d plots; want 2 scatter plots with the 45° line", strings.Count(h, "<svg"))
+	if strings.Count(h, "<svg") != 3 || !strings.Contains(h, "45° line") || !strings.Contains(h, "Cohen's kappa") {
+		t.Errorf("html: %d plots; want 3 scatter plots (one per scale) with the 45° line", strings.Count(h, "<svg"))
 	}
 }
 
