@@ -10,9 +10,14 @@ import (
 // The names of the combining methods, as stored in Result.Method and
 // handoff.Consensus.Method.
 const (
-	MethodMajority    = "majority"
-	MethodDawidSkene  = "dawid-skene"
-	MethodOneCoin     = "one-coin"
+	MethodMajority   = "majority"
+	MethodDawidSkene = "dawid-skene"
+	MethodOneCoin    = "one-coin"
+	// MethodHierarchical is Dawid–Skene with a hierarchical prior (hier.go).
+	MethodHierarchical = "hierarchical"
+	// MethodAuto picks one of the others by held-out label likelihood
+	// (choose.go).
+	MethodAuto        = "auto"
 	defaultMaxIter    = 200
 	defaultTol        = 1e-9
 	float32Threshold  = 1 << 22 // labels from which EM tables are held in float32
@@ -71,6 +76,12 @@ type Result struct {
 	LogLik     float64 // EM: log-likelihood of the labels at the final parameters
 	Iterations int     // EM: number of E+M passes run
 	Converged  bool    // EM: |ΔLogLik| < Tol·max(1, |LogLik|) was reached
+
+	// Hier is the estimated prior of the hierarchical model (nil for the
+	// other methods).
+	Hier *HierPrior
+	// Choice says how MethodAuto chose (nil when a method was forced).
+	Choice *Choice
 }
 
 // Row returns item i's posterior (a view, not a copy).
@@ -112,8 +123,12 @@ func Combine(method string, l *Labels, o Options) (*Result, error) {
 		return DawidSkene(l, o)
 	case MethodOneCoin:
 		return OneCoin(l, o)
+	case MethodHierarchical:
+		return Hierarchical(l, o)
+	case MethodAuto:
+		return Auto(l, o)
 	}
-	return nil, fmt.Errorf("crowd: unknown method %q (want %s, %s or %s)", method, MethodMajority, MethodDawidSkene, MethodOneCoin)
+	return nil, fmt.Errorf("crowd: unknown method %q (want %s, %s, %s, %s or %s)", method, MethodAuto, MethodHierarchical, MethodMajority, MethodDawidSkene, MethodOneCoin)
 }
 
 func newResult(method string, l *Labels, o Options) *Result {
@@ -235,6 +250,13 @@ func Majority(l *Labels, o Options) (*Result, error) {
 // posterior stays finite. The posterior returned is the E-step at the final
 // parameters.
 func DawidSkene(l *Labels, o Options) (*Result, error) { return runEM(MethodDawidSkene, l, o) }
+
+// Hierarchical is Dawid–Skene with the hierarchical prior of hier.go on
+// every annotator's confusion matrix (pooled confusion, shrunk skills, a row
+// strength by empirical Bayes); the M-step is the posterior mean of each row.
+// Options.Smoothing applies to the class prior only. Otherwise as
+// DawidSkene.
+func Hierarchical(l *Labels, o Options) (*Result, error) { return runEM(MethodHierarchical, l, o) }
 
 // OneCoin is Dawid–Skene with one accuracy per annotator: π_a[k][k] = q_a and
 // π_a[k][c] = (1−q_a)/(K−1) for c ≠ k, with the M-step

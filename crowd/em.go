@@ -56,6 +56,9 @@ type emState[F float] struct {
 	counts    [][]F       // per worker, like logT
 	prior     [][]float64 // per worker: Σ_i T_ik
 	ll        []float64   // per worker
+	mu        []float64   // hierarchical: prior means [a][t][c]
+	hier      *HierPrior  // hierarchical: the last M-step's prior
+	steps     int         // M-steps run
 }
 
 func runEM(method string, l *Labels, o Options) (*Result, error) {
@@ -200,16 +203,27 @@ func emRun[F float](method string, l *Labels, o Options) (*Result, error) {
 			nItems++
 		}
 	}
-	// Initial M-step from label shares.
+	// Initial M-step from label shares. The hierarchical model starts from
+	// one-coin EM (warm iterations): from label shares alone, posteriors
+	// are too soft for its skill spread to show (every annotator looks
+	// alike and EM stays there).
+	warm := 0
+	step := method
+	if method == MethodHierarchical {
+		warm, step = min(hierWarm, maxIter-1), MethodOneCoin
+	}
 	s.run(func(wk int) { s.shares(wk); s.accumulate(wk) })
-	s.mstep(method, o.Smoothing, nItems)
+	s.mstep(step, o.Smoothing, nItems)
 	prev := math.Inf(-1)
 	for r.Iterations < maxIter {
 		s.run(func(wk int) { s.estep(wk, nil); s.accumulate(wk) })
 		r.Iterations++
 		ll := s.sumLL()
-		s.mstep(method, o.Smoothing, nItems)
-		if math.Abs(ll-prev) < tol*max(1, math.Abs(ll)) {
+		if r.Iterations > warm {
+			step = method
+		}
+		s.mstep(step, o.Smoothing, nItems)
+		if r.Iterations > warm+1 && math.Abs(ll-prev) < tol*max(1, math.Abs(ll)) {
 			r.Converged = true
 			break
 		}
@@ -218,6 +232,10 @@ func emRun[F float](method string, l *Labels, o Options) (*Result, error) {
 	// Final E-step at the final parameters, writing the posterior.
 	s.run(func(wk int) { s.estep(wk, r.Posterior) })
 	r.LogLik = s.sumLL()
+	if s.hier != nil {
+		s.hier.Skill = append([]float64(nil), s.hier.Skill...)
+		r.Hier = s.hier
+	}
 	for c := 0; c < k; c++ {
 		r.Prior[c] = math.Exp(s.logPrior[c])
 	}
@@ -566,8 +584,18 @@ func (s *emState[F]) mstep(method string, alpha, nItems float64) {
 				cnt[j] += v
 			}
 		}
-		s.mstepRange(method, alpha, a0, a1)
+		if method != MethodHierarchical {
+			s.mstepRange(method, alpha, a0, a1)
+		}
 	})
+	if method == MethodHierarchical {
+		if s.mu == nil {
+			s.mu = make([]float64, s.nA*k*k)
+		}
+		s.hier = hierMstep(s.counts[0][:s.nA*k*k], s.nA, k, p, s.mu, w, s.hier, s.steps)
+		s.steps++
+		s.run(func(wk int) { s.mstepRange(method, alpha, s.nA*wk/w, s.nA*(wk+1)/w) })
+	}
 }
 
 func (s *emState[F]) mstepRange(method string, alpha float64, a0, a1 int) {
@@ -580,6 +608,25 @@ func (s *emState[F]) mstepRange(method string, alpha float64, a0, a1 int) {
 	for a := a0; a < a1; a++ {
 		blk := cnt[a*k*k : (a+1)*k*k]
 		lt := s.logT[a*k*k : (a+1)*k*k]
+		if method == MethodHierarchical {
+			m := s.mu[a*k*k : (a+1)*k*k]
+			b := s.hier.Beta
+			for t := 0; t < k; t++ {
+				var n float64
+				for c := 0; c < k; c++ {
+					n += float64(blk[c*k+t])
+				}
+				for c := 0; c < k; c++ {
+					q := max((float64(blk[c*k+t])+b*m[t*k+c])/(n+b), floor)
+					if fast {
+						lt[c*k+t] = F(logPos(q))
+					} else {
+						lt[c*k+t] = F(math.Log(q))
+					}
+				}
+			}
+			continue
+		}
 		if method == MethodOneCoin {
 			var diag, tot float64
 			for c := 0; c < k; c++ {

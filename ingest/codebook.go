@@ -64,14 +64,58 @@ func ParseCodebook(name string, data []byte) (handoff.Codebook, error) {
 	if err := yaml.Unmarshal(data, &node); err != nil {
 		return cb, yamlError(name, data, err)
 	}
-	if err := cb.Validate(); err != nil {
-		field, msg := splitField(err.Error())
-		return cb, &Error{File: name, Line: lineOf(&node, field), Field: field, Err: errors.New(msg)}
+	// A tree may list every question under "questions", the first one
+	// first: the first moves to the top level, where a one-question codebook
+	// keeps it.
+	shifted := false
+	if strings.TrimSpace(cb.Question) == "" && len(cb.Classes) == 0 && cb.Key == "" && len(cb.Questions) > 0 {
+		f := cb.Questions[0]
+		if f.When != nil {
+			return cb, errf(Location{File: name, Line: lineOf(&node, "questions[0].when")}, "questions[0].when",
+				"the first question is asked of every item and cannot have a condition")
+		}
+		cb.Key, cb.Question, cb.Scale, cb.Classes, cb.Instructions = f.Key, f.Question, f.Scale, f.Classes, f.Instructions
+		cb.Questions = cb.Questions[1:]
+		if cb.Key == "" {
+			return cb, errf(Location{File: name, Line: lineOf(&node, "questions[0]")}, "questions[0].key", "every question of a tree needs a key")
+		}
+		shifted = true
 	}
-	if cb.IsOrdinal() {
+	// field maps a field path of the normalised codebook to the file's.
+	field := func(f string) string {
+		if !shifted {
+			return f
+		}
+		if strings.HasPrefix(f, "questions[") {
+			var i int
+			var rest string
+			if n, _ := fmt.Sscanf(f, "questions[%d]", &i); n == 1 {
+				rest = f[strings.IndexByte(f, ']')+1:]
+				return fmt.Sprintf("questions[%d]%s", i+1, rest)
+			}
+			return f
+		}
+		if f == "" {
+			return f
+		}
+		return "questions[0]." + f
+	}
+	if err := cb.Validate(); err != nil {
+		f, msg := splitField(err.Error())
+		f = field(f)
+		return cb, &Error{File: name, Line: lineOf(&node, f), Field: f, Err: errors.New(msg)}
+	}
+	for q, x := range cb.All() {
+		prefix := ""
+		if q > 0 {
+			prefix = fmt.Sprintf("questions[%d].", q-1)
+		}
+		if x.Scale != handoff.Ordinal {
+			continue
+		}
 		prev, allNum := 0.0, true
-		vals := make([]float64, len(cb.Classes))
-		for i, c := range cb.Classes {
+		vals := make([]float64, len(x.Classes))
+		for i, c := range x.Classes {
 			v, err := strconv.ParseFloat(c.Key, 64)
 			if err != nil {
 				allNum = false
@@ -84,9 +128,9 @@ func ParseCodebook(name string, data []byte) (handoff.Codebook, error) {
 				break
 			}
 			if i > 0 && vals[i] <= prev {
-				field := fmt.Sprintf("classes[%d].key", i)
-				return cb, errf(Location{File: name, Line: lineOf(&node, field)}, field,
-					"ordinal classes must be listed lowest first: %q comes after %q", cb.Classes[i].Key, cb.Classes[i-1].Key)
+				f := field(fmt.Sprintf("%sclasses[%d].key", prefix, i))
+				return cb, errf(Location{File: name, Line: lineOf(&node, f)}, f,
+					"ordinal classes must be listed lowest first: %q comes after %q", x.Classes[i].Key, x.Classes[i-1].Key)
 			}
 			prev = vals[i]
 		}
@@ -131,11 +175,16 @@ func lineAt(data []byte, off int64) int {
 // yamlTags the YAML node kinds.
 var (
 	yamlTypes = map[string]string{
-		"[]handoff.Class":  "a list of classes",
-		"handoff.Class":    "a class (a mapping with key, name and description)",
-		"handoff.Codebook": "a codebook (a mapping with name, question, scale, classes and instructions)",
-		"handoff.Scale":    "nominal or ordinal",
-		"string":           "text",
+		"[]handoff.Class":    "a list of classes",
+		"handoff.Class":      "a class (a mapping with key, name and description)",
+		"handoff.Codebook":   "a codebook (a mapping with name, question, scale, classes and instructions, or questions)",
+		"[]handoff.Question": "a list of questions",
+		"handoff.Question":   "a question (a mapping with key, question, scale, classes, instructions and when)",
+		"*handoff.Condition": "a condition (a mapping with question and in)",
+		"handoff.Condition":  "a condition (a mapping with question and in)",
+		"[]string":           "a list of class keys",
+		"handoff.Scale":      "nominal or ordinal",
+		"string":             "text",
 	}
 	yamlTags = map[string]string{
 		"!!str": "text", "!!seq": "a list", "!!map": "a mapping", "!!int": "a number", "!!float": "a number",
@@ -144,8 +193,10 @@ var (
 	yamlUnmarshal = regexp.MustCompile("^cannot unmarshal (!!\\w+)(?: `([^`]*)`)? into (\\S+)$")
 	yamlUnknown   = regexp.MustCompile(`^field (\S+) not found in type (\S+)$`)
 	knownFields   = map[string]string{
-		"handoff.Class":    "key, name, description",
-		"handoff.Codebook": "name, question, scale, classes, instructions",
+		"handoff.Class":     "key, name, description",
+		"handoff.Codebook":  "name, key, question, scale, classes, instructions, questions",
+		"handoff.Question":  "key, question, scale, classes, instructions, when",
+		"handoff.Condition": "question, in",
 	}
 )
 

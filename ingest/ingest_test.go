@@ -244,7 +244,7 @@ func TestCodebook(t *testing.T) {
 		{"empty key", "question: q\nclasses:\n  - key: a\n  - name: B\n", `cb.yaml:4: field "classes[1].key": empty class key`},
 		{"no question", "classes: [{key: a}, {key: b}]\n", `field "question"`},
 		{"bad scale", "question: q\nscale: interval\nclasses: [{key: a}, {key: b}]\n", `cb.yaml:2: field "scale"`},
-		{"unknown field", "question: q\nclases: [{key: a}, {key: b}]\n", `cb.yaml:2: unknown field "clases" (known fields: name, question, scale, classes, instructions)`},
+		{"unknown field", "question: q\nclases: [{key: a}, {key: b}]\n", `cb.yaml:2: unknown field "clases" (known fields: name, key, question, scale, classes, instructions, questions)`},
 		{"unquoted commas in a flow mapping", "question: q\nclasses:\n  - {key: a, description: oil, foam}\n  - key: b\n", `cb.yaml:3: unknown field "foam" (known fields: key, name, description); in a {…} mapping, put a value holding commas in quotes`},
 		{"a list for text", "question: [a, b]\nclasses: [{key: a}, {key: b}]\n", `cb.yaml:1: expected text, found a list`},
 		{"text for the classes", "question: q\nclasses: abc\n", `cb.yaml:2: expected a list of classes, found text ("abc")`},

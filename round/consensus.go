@@ -15,7 +15,9 @@ import (
 
 // ConsensusConfig says how crowd labels are cleaned and combined.
 type ConsensusConfig struct {
-	// Method is majority, dawid-skene (default) or one-coin.
+	// Method is auto (default: the hierarchical model unless another model
+	// predicts held-out labels clearly better), hierarchical, one-coin,
+	// majority or dawid-skene (plain, no prior).
 	Method string `json:"method"`
 	// Rules are the cleaning rules (crowd.DefaultRules when zero and
 	// NoCleaning is false).
@@ -38,9 +40,10 @@ type ConsensusConfig struct {
 	Seed      uint64  `json:"seed"`
 }
 
-// DefaultConsensus returns Dawid–Skene with the default cleaning rules.
+// DefaultConsensus returns the automatic model choice with the default
+// cleaning rules.
 func DefaultConsensus() ConsensusConfig {
-	return ConsensusConfig{Method: crowd.MethodDawidSkene, Rules: crowd.DefaultRules(), Uncertain: 0.95, Seed: 1}
+	return ConsensusConfig{Method: crowd.MethodAuto, Rules: crowd.DefaultRules(), Uncertain: 0.95, Seed: 1}
 }
 
 // AnnotatorReport is one annotator's reliability after combining.
@@ -49,6 +52,7 @@ type AnnotatorReport struct {
 	Labels      int         `json:"labels"` // labels kept after cleaning
 	Dropped     int         `json:"dropped"`
 	Reliability float64     `json:"reliability"` // expected accuracy under the class prior
+	Spammer     float64     `json:"spammer"`     // spammer score (crowd.SpammerScore): 0 answers ignore the item, 1 perfect
 	Confusion   [][]float64 `json:"confusion"`   // [true class][given class]
 }
 
@@ -83,18 +87,23 @@ type DebiasReport struct {
 // ConsensusReport is what a consensus step did; it is stored beside the
 // consensus (store.Consensus's meta).
 type ConsensusReport struct {
-	Config     ConsensusConfig     `json:"config"`
-	Classes    []string            `json:"classes"`
-	Items      int                 `json:"items"`
-	LabelsIn   int                 `json:"labels_in"`
-	LabelsKept int                 `json:"labels_kept"`
-	NoLabels   int                 `json:"no_labels"` // items with no labels after cleaning and no gold
-	Uncertain  int                 `json:"uncertain"` // items whose posterior is below Config.Uncertain
-	Gold       int                 `json:"gold"`
-	Ties       int                 `json:"ties,omitempty"`
-	LogLik     float64             `json:"log_likelihood,omitempty"`
-	Iterations int                 `json:"iterations,omitempty"`
-	Converged  bool                `json:"converged,omitempty"`
+	Config     ConsensusConfig `json:"config"`
+	Classes    []string        `json:"classes"`
+	Items      int             `json:"items"`
+	LabelsIn   int             `json:"labels_in"`
+	LabelsKept int             `json:"labels_kept"`
+	NoLabels   int             `json:"no_labels"` // items with no labels after cleaning and no gold
+	Uncertain  int             `json:"uncertain"` // items whose posterior is below Config.Uncertain
+	Gold       int             `json:"gold"`
+	Ties       int             `json:"ties,omitempty"`
+	LogLik     float64         `json:"log_likelihood,omitempty"`
+	Iterations int             `json:"iterations,omitempty"`
+	Converged  bool            `json:"converged,omitempty"`
+	// Model is the model used (for method auto: the one chosen); Choice
+	// says why, and Hier holds the hierarchical model's estimated prior.
+	Model      string              `json:"model"`
+	Choice     *crowd.Choice       `json:"choice,omitempty"`
+	Hier       *crowd.HierPrior    `json:"hier,omitempty"`
 	Prior      []float64           `json:"prior"`
 	Rules      []crowd.RuleSummary `json:"rules"`
 	Drops      []DropReport        `json:"drops"`
@@ -151,7 +160,7 @@ func StoredConsensus(st *store.Store) ([]handoff.Consensus, *ConsensusReport, er
 
 func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 	if cfg.Method == "" {
-		cfg.Method = crowd.MethodDawidSkene
+		cfg.Method = crowd.MethodAuto
 	}
 	if cfg.Uncertain <= 0 {
 		cfg.Uncertain = 0.95
@@ -174,16 +183,40 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 	if err != nil {
 		return nil, fmt.Errorf("cleaning: %w", err)
 	}
-	res, err := crowd.Combine(cfg.Method, kept, crowd.Options{Seed: cfg.Seed, Gold: gold, Smoothing: cfg.Smoothing})
+	opts := crowd.Options{Seed: cfg.Seed, Gold: gold, Smoothing: cfg.Smoothing}
+	res, err := crowd.Combine(cfg.Method, kept, opts)
 	if err != nil {
 		return nil, fmt.Errorf("combining with %s: %w", cfg.Method, err)
 	}
+	if rules.Spammers {
+		k2, drops, sum := crowd.DropSpammers(kept, res, rules)
+		cl.Summary = append(cl.Summary, sum)
+		cl.Drops = append(cl.Drops, drops...)
+		if len(drops) > 0 {
+			kept = k2
+			cl.Out = kept.Len()
+			// The choice of model is kept: the spammers are gone, the crowd
+			// is the same.
+			m := res.Method
+			choice := res.Choice
+			if res, err = crowd.Combine(m, kept, opts); err != nil {
+				return nil, fmt.Errorf("combining with %s after the spammer rule: %w", m, err)
+			}
+			res.Choice = choice
+		}
+	}
+	spam := crowd.SpammerScores(res)
 	K := len(p.cb.Classes)
 	rep := &ConsensusReport{
 		Config: cfg, Classes: p.cb.Keys(), Items: len(p.items),
 		LabelsIn: p.labels.Len(), LabelsKept: kept.Len(), NoLabels: res.NoLabels,
 		Ties: res.Ties, LogLik: res.LogLik, Iterations: res.Iterations, Converged: res.Converged,
-		Prior: res.Prior, Rules: cl.Summary,
+		Prior: res.Prior, Rules: cl.Summary, Model: res.Method, Choice: res.Choice,
+	}
+	if res.Hier != nil {
+		h := *res.Hier
+		h.Skill = nil
+		rep.Hier = &h
 	}
 	for _, g := range p.gold {
 		if g >= 0 {
@@ -221,7 +254,7 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 			conf[t] = append([]float64(nil), res.Confusion[(a*K+t)*K:(a*K+t+1)*K]...)
 		}
 		rep.Annotators = append(rep.Annotators, AnnotatorReport{
-			ID: id, Labels: out[a], Dropped: in[a] - out[a], Reliability: res.Reliability[a], Confusion: conf,
+			ID: id, Labels: out[a], Dropped: in[a] - out[a], Reliability: res.Reliability[a], Spammer: spam[a], Confusion: conf,
 		})
 	}
 	post := res.Posterior
@@ -239,7 +272,7 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 	for i, it := range p.items {
 		row := post[i*K : (i+1)*K]
 		best := argmax(row)
-		method := cfg.Method
+		method := res.Method
 		if p.gold[i] >= 0 {
 			method = "gold"
 		}

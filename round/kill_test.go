@@ -60,12 +60,19 @@ func TestKillDuringRound(t *testing.T) {
 		c.Env = append(os.Environ(), "HANDOFF_ROUND_CHILD="+dir)
 		return c
 	}
-	// How long a child takes from start to exit, round included.
-	t0 := time.Now()
-	if out, err := child().CombinedOutput(); err != nil {
-		t.Fatalf("child: %v\n%s", err, out)
+	// How long a child takes from start to exit, round included: the
+	// fastest of three runs (the first is often slowed by a cold cache or a
+	// busy machine, and a too-long estimate lets children finish unkilled).
+	var took time.Duration
+	for r := 0; r < 3; r++ {
+		t0 := time.Now()
+		if out, err := child().CombinedOutput(); err != nil {
+			t.Fatalf("child: %v\n%s", err, out)
+		}
+		if d := time.Since(t0); r == 0 || d < took {
+			took = d
+		}
 	}
-	took := time.Since(t0)
 	rng := rand.New(rand.NewPCG(11, 11))
 	kills, completed := 0, 0
 	for k := 0; k < 12; k++ {

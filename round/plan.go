@@ -12,7 +12,7 @@ import (
 type PlanConfig struct {
 	Spec          sim.CrowdSpec // LabelsPerItem is ignored; see LabelsPerItem below
 	LabelsPerItem []int         // the redundancies to compare
-	Methods       []string      // combining methods (nil: majority, dawid-skene, one-coin)
+	Methods       []string      // combining methods (nil: majority, one-coin, dawid-skene, hierarchical, auto)
 	Seeds         int           // simulated projects per cell (0 means 3)
 	Seed          uint64
 }
@@ -26,6 +26,18 @@ type PlanCell struct {
 	Min           float64 `json:"min"`
 	Max           float64 `json:"max"`
 	Labels        int     `json:"labels"` // labels the design needs: items × labels per item
+	// Chosen lists the models the automatic choice (method auto) used
+	// across the simulated projects.
+	Chosen []string `json:"chosen,omitempty"`
+}
+
+func appendOnce(xs []string, x string) []string {
+	for _, y := range xs {
+		if y == x {
+			return xs
+		}
+	}
+	return append(xs, x)
 }
 
 // Plan simulates the described crowd (sim.CrowdSpec) and reports consensus
@@ -36,7 +48,7 @@ func Plan(cfg PlanConfig) ([]PlanCell, error) {
 		return nil, fmt.Errorf("plan: give at least one number of labels per item")
 	}
 	if cfg.Methods == nil {
-		cfg.Methods = []string{crowd.MethodMajority, crowd.MethodDawidSkene, crowd.MethodOneCoin}
+		cfg.Methods = []string{crowd.MethodMajority, crowd.MethodOneCoin, crowd.MethodDawidSkene, crowd.MethodHierarchical, crowd.MethodAuto}
 	}
 	if cfg.Seeds <= 0 {
 		cfg.Seeds = 3
@@ -54,7 +66,7 @@ func Plan(cfg PlanConfig) ([]PlanCell, error) {
 		}
 		for s := range cfg.Seeds {
 			l := &crowd.Labels{NItems: spec.Items, NAnnotators: spec.Annotators, NClasses: spec.Classes}
-			truth, _, err := spec.Stream(cfg.Seed+uint64(s)*7919, func(item, ann, class int) {
+			truth, people, err := spec.Stream(cfg.Seed+uint64(s)*7919, func(item, ann, class int) {
 				l.Item = append(l.Item, int32(item))
 				l.Annotator = append(l.Annotator, int32(ann))
 				l.Class = append(l.Class, uint8(class))
@@ -62,10 +74,21 @@ func Plan(cfg PlanConfig) ([]PlanCell, error) {
 			if err != nil {
 				return nil, fmt.Errorf("plan: %w", err)
 			}
+			l.NAnnotators = len(people.Annotators) // a sparse crowd has as many as the labels needed
+			if spec.Sparse() {
+				// Resubmitters aside, the default cleaning keeps what a
+				// sparse crowd gives; clean as a project would.
+				if l, _, err = crowd.Clean(l, nil, crowd.DefaultRules()); err != nil {
+					return nil, fmt.Errorf("plan: cleaning: %w", err)
+				}
+			}
 			for m, method := range cfg.Methods {
 				r, err := crowd.Combine(method, l, crowd.Options{Seed: cfg.Seed + uint64(s)})
 				if err != nil {
 					return nil, fmt.Errorf("plan: %s: %w", method, err)
+				}
+				if method == crowd.MethodAuto {
+					cells[m].Chosen = appendOnce(cells[m].Chosen, r.Method)
 				}
 				right := 0
 				for i, c := range r.Class {

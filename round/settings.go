@@ -204,7 +204,7 @@ func fmtFloat(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 
 // Methods are the consensus methods a setting may name, besides the
 // default consensus's own (DefaultConsensus).
-var Methods = []string{crowd.MethodDawidSkene, crowd.MethodMajority, crowd.MethodOneCoin}
+var Methods = []string{crowd.MethodAuto, crowd.MethodHierarchical, crowd.MethodOneCoin, crowd.MethodMajority, crowd.MethodDawidSkene}
 
 // keys lists every setting, in the order `loop config` shows them.
 var keys []*Key
@@ -341,6 +341,11 @@ func init() {
 		num("min-seconds", "drop labels given in under this many seconds (0: off)", "a number ≥ 0",
 			func(c *Config) *float64 { return &c.Consensus.Rules.MinSeconds }, func(x float64) bool { return x >= 0 }),
 		flag("straight-lining", "flag annotators who give one class to nearly everything", func(c *Config) *bool { return &c.Consensus.Rules.StraightLining }, false),
+		flag("drop-spammers", "drop annotators whose answers hardly depend on the item (spammer score below spammer-below)", func(c *Config) *bool { return &c.Consensus.Rules.Spammers }, false),
+		num("spammer-below", "spammer rule: drop annotators whose spammer score is below this…", "a number in (0, 1)",
+			func(c *Config) *float64 { return &c.Consensus.Rules.SpammerBelow }, func(x float64) bool { return x > 0 && x < 1 }),
+		integer("spammer-min-labels", "…once they gave at least this many labels", "an integer ≥ 1",
+			func(c *Config) *int { return &c.Consensus.Rules.SpammerMinLabels }, func(x int) bool { return x >= 1 }),
 		integer("stop-set", "size of the fixed random stop set of the stop rule", "an integer ≥ 1",
 			func(c *Config) *int { return &c.StopSet }, func(x int) bool { return x >= 1 }),
 		seedKey(),

@@ -21,8 +21,23 @@ type CrowdSpec struct {
 	Classes                             int       // number of classes, ≥ 2
 	Prevalence                          []float64 // true class shares (len Classes, summing to 1); nil means uniform
 	Items                               int       // items, ≥ 1
-	Annotators                          int       // annotators, ≥ 1
+	Annotators                          int       // annotators, ≥ 1 (ignored for a sparse crowd)
+
+	// MinLabels and MaxLabels, when MaxLabels > 0, make the crowd sparse,
+	// as real crowds are: people arrive, give between MinLabels and
+	// MaxLabels labels each (log-uniform) and leave (see Stream), so there
+	// are as many people as the labels need. OneClass is then the share of
+	// spammers who always give one class (see StreamConfig).
+	MinLabels, MaxLabels int
+	OneClass             float64
+	// Shared confusions of the crowd, naming classes "c1", "c2", … (see
+	// Shared): everyone but the careful and the spammers answers To for an
+	// item of class From with probability Rate, on top of their own errors.
+	Shared []Shared
 }
+
+// Sparse reports whether the spec describes a sparse crowd (MaxLabels > 0).
+func (s CrowdSpec) Sparse() bool { return s.MaxLabels > 0 }
 
 // Validate checks the spec and says which field is wrong.
 func (s CrowdSpec) Validate() error {
@@ -59,6 +74,30 @@ func (s CrowdSpec) Validate() error {
 	if s.Items < 1 {
 		return fmt.Errorf("sim: crowd spec: items = %d, need at least 1", s.Items)
 	}
+	cb := s.Codebook()
+	for i, sh := range s.Shared {
+		if _, ok := cb.Index(sh.From); !ok {
+			return fmt.Errorf("sim: crowd spec: shared[%d]: class %q is not one of c1 … c%d", i, sh.From, s.Classes)
+		}
+		if _, ok := cb.Index(sh.To); !ok || sh.To == sh.From {
+			return fmt.Errorf("sim: crowd spec: shared[%d]: class %q is not one of c1 … c%d other than %q", i, sh.To, s.Classes, sh.From)
+		}
+		if !(sh.Rate >= 0 && sh.Rate <= 1) {
+			return fmt.Errorf("sim: crowd spec: shared[%d]: rate %v must lie in [0, 1]", i, sh.Rate)
+		}
+	}
+	if s.Sparse() {
+		if s.MinLabels < 1 || s.MaxLabels < s.MinLabels {
+			return fmt.Errorf("sim: crowd spec: labels per annotator %d–%d, need 1 ≤ min ≤ max", s.MinLabels, s.MaxLabels)
+		}
+		if !(s.OneClass >= 0 && s.OneClass <= 1) {
+			return fmt.Errorf("sim: crowd spec: one-class share %v must lie in [0, 1]", s.OneClass)
+		}
+		if s.LabelsPerItem < 1 {
+			return fmt.Errorf("sim: crowd spec: labels per item = %d, need at least 1", s.LabelsPerItem)
+		}
+		return nil
+	}
 	if s.Annotators < 1 {
 		return fmt.Errorf("sim: crowd spec: annotators = %d, need at least 1", s.Annotators)
 	}
@@ -66,6 +105,66 @@ func (s CrowdSpec) Validate() error {
 		return fmt.Errorf("sim: crowd spec: labels per item = %d, need 1 to annotators (%d)", s.LabelsPerItem, s.Annotators)
 	}
 	return nil
+}
+
+// sparseStream is Stream for a sparse crowd: a Stream crowd answers the
+// items in order; the Crowd returned lists the people who came, in order of
+// arrival.
+func (s CrowdSpec) sparseStream(seed uint64, truth []int, fn func(item, annotator, class int)) (*Crowd, error) {
+	oneClass := s.OneClass
+	if oneClass == 0 {
+		oneClass = -1 // StreamConfig: negative means none
+	}
+	st, err := NewStream(StreamConfig{MinLabels: s.MinLabels, MaxLabels: s.MaxLabels, Active: max(15, 3*s.LabelsPerItem),
+		Mix: Mix{Careful: s.Careful, Average: s.Average, Careless: s.Careless, Spammer: s.Spammer}, OneClass: oneClass, Shared: s.Shared}, seed)
+	if err != nil {
+		return nil, err
+	}
+	cb := s.Codebook()
+	tasks := make([]Task, len(truth))
+	for i, t := range truth {
+		tasks[i] = Task{Item: fmt.Sprintf("i%d", i+1), Truth: cb.Classes[t].Key}
+	}
+	ls, err := st.Answer(cb, nil, tasks, s.LabelsPerItem, 0)
+	if err != nil {
+		return nil, err
+	}
+	item := make(map[string]int, len(tasks))
+	for i, t := range tasks {
+		item[t.Item] = i
+	}
+	people := st.People()
+	idx := make(map[string]int, len(people))
+	c := &Crowd{}
+	for _, p := range people {
+		idx[p.ID] = len(c.Annotators)
+		c.Annotators = append(c.Annotators, p.Annotator)
+	}
+	for _, l := range ls {
+		k, _ := cb.Index(l.Class)
+		fn(item[l.Item], idx[l.Annotator], k)
+	}
+	return c, nil
+}
+
+// applyShared mixes the spec's shared confusions into the confusion
+// matrices (K×K, [true][given]) of everyone but the careful and spammers.
+func (s CrowdSpec) applyShared(confs [][]float64, ann []Annotator) {
+	cb := s.Codebook()
+	k := s.Classes
+	for a, m := range confs {
+		if ann[a].Type == Careful || ann[a].Type == Spammer {
+			continue
+		}
+		for _, sh := range s.Shared {
+			f, _ := cb.Index(sh.From)
+			to, _ := cb.Index(sh.To)
+			for c := 0; c < k; c++ {
+				m[f*k+c] *= 1 - sh.Rate
+			}
+			m[f*k+to] += sh.Rate
+		}
+	}
 }
 
 // Codebook returns a nominal codebook with the spec's classes keyed "c1",
@@ -90,11 +189,13 @@ func (s CrowdSpec) Stream(seed uint64, fn func(item, annotator, class int)) (tru
 	if err := s.Validate(); err != nil {
 		return nil, nil, err
 	}
-	crowd, err = NewCrowd(CrowdConfig{
+	if s.Sparse() {
+		// The people are drawn by the sparse stream below.
+		crowd = &Crowd{}
+	} else if crowd, err = NewCrowd(CrowdConfig{
 		Annotators: s.Annotators,
 		Mix:        Mix{Careful: s.Careful, Average: s.Average, Careless: s.Careless, Spammer: s.Spammer},
-	}, seed)
-	if err != nil {
+	}, seed); err != nil {
 		return nil, nil, err
 	}
 	prev := s.Prevalence
@@ -112,9 +213,14 @@ func (s CrowdSpec) Stream(seed uint64, fn func(item, annotator, class int)) (tru
 	}
 	r := newRand(seed, 0x9a1)
 	r.Shuffle(len(truth), func(i, j int) { truth[i], truth[j] = truth[j], truth[i] })
+	if s.Sparse() {
+		crowd, err = s.sparseStream(seed, truth, fn)
+		return truth, crowd, err
+	}
 
 	cb := s.Codebook()
 	confs := crowd.confusions(&cb)
+	s.applyShared(confs, crowd.Annotators)
 	k := s.Classes
 	cum := make([][]float64, len(confs)) // cumulative rows for fast draws
 	for a, m := range confs {

@@ -4,6 +4,7 @@ import (
 	"math"
 	"reflect"
 	"strconv"
+	"strings"
 	"testing"
 )
 
@@ -125,5 +126,56 @@ func TestCrowdSpecStreamMatchesGenerate(t *testing.T) {
 		if p.Truth["i"+strconv.Itoa(i+1)] != p.Codebook.Classes[c].Key {
 			t.Fatalf("item %d: truths differ", i)
 		}
+	}
+}
+
+// A sparse spec: people give MinLabels–MaxLabels labels each (the last to
+// arrive may give fewer: the items ran out), every item gets its labels, and
+// the shared confusion shows in the answers of non-careful people.
+func TestSparseSpec(t *testing.T) {
+	s := CrowdSpec{Careful: 0.3, Average: 0.5, Careless: 0.2, Classes: 3, Items: 3000, LabelsPerItem: 3,
+		MinLabels: 10, MaxLabels: 40, Shared: []Shared{{From: "c1", To: "c2", Rate: 0.4}}}
+	per := map[int]int{}
+	var c1, c1as2 int
+	items := map[int]int{}
+	truth, crowd, err := s.Stream(3, func(item, a, class int) {
+		per[a]++
+		items[item]++
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, _, err = s.Stream(3, func(item, a, class int) {
+		if truth[item] == 0 && crowd.Annotators[a].Type != Careful {
+			c1++
+			if class == 1 {
+				c1as2++
+			}
+		}
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	over := 0
+	for _, n := range per {
+		if n > 40 {
+			over++
+		}
+	}
+	if over > 0 || len(per) < 3000*3/40 {
+		t.Errorf("%d people, %d gave more than 40 labels", len(per), over)
+	}
+	for i := 0; i < s.Items; i++ {
+		if items[i] != 3 {
+			t.Fatalf("item %d has %d labels, want 3", i, items[i])
+		}
+	}
+	if share := float64(c1as2) / float64(c1); share < 0.4 {
+		t.Errorf("c1 answered as c2 by non-careful people %.2f of the time, want ≥ the shared 0.4", share)
+	}
+	bad := s
+	bad.Shared = []Shared{{From: "c1", To: "c7", Rate: 0.3}}
+	if err := bad.Validate(); err == nil || !strings.Contains(err.Error(), "c7") {
+		t.Errorf("a shared confusion naming c7 of 3 classes: %v", err)
 	}
 }

@@ -299,7 +299,11 @@ func runProject(cfg LooksConfig, cb handoff.Codebook, seed uint64) ([]outcome, f
 		if err != nil {
 			return nil, 0, err
 		}
-		res, err := crowd.Combine(cfg.Method, kept, crowd.Options{Seed: seed})
+		method := cfg.Method
+		if method == "" {
+			method = crowd.MethodAuto // the project default, round.DefaultConsensus
+		}
+		res, err := crowd.Combine(method, kept, crowd.Options{Seed: seed})
 		if err != nil {
 			return nil, 0, err
 		}

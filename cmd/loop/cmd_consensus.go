@@ -3,6 +3,8 @@ package main
 import (
 	"errors"
 	"fmt"
+	"slices"
+	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
@@ -27,6 +29,9 @@ type cleaningFlags struct {
 	goldMinItems                 int
 	minSeconds                   float64
 	noStraightLining, noCleaning bool
+	dropSpammers                 bool
+	spammerBelow                 float64
+	spammerMinLabels             int
 }
 
 func (f *cleaningFlags) bind(c *cobra.Command) {
@@ -41,6 +46,9 @@ func (f *cleaningFlags) bind(c *cobra.Command) {
 	fl.IntVar(&f.goldMinItems, "gold-min-items", d.GoldMinItems, "…once they answered at least this many gold items")
 	fl.Float64Var(&f.minSeconds, "min-seconds", 0, "drop labels given in under this many seconds (0: off)")
 	fl.BoolVar(&f.noStraightLining, "no-straight-lining", false, "do not flag annotators who give one class to nearly everything")
+	fl.BoolVar(&f.dropSpammers, "drop-spammers", false, "drop annotators whose answers hardly depend on the item (spammer score below --spammer-below)")
+	fl.Float64Var(&f.spammerBelow, "spammer-below", d.SpammerBelow, "spammer rule: drop annotators whose spammer score is below this…")
+	fl.IntVar(&f.spammerMinLabels, "spammer-min-labels", d.SpammerMinLabels, "…once they gave at least this many labels")
 	fl.BoolVar(&f.noCleaning, "no-cleaning", false, "apply no cleaning rule at all")
 }
 
@@ -54,6 +62,7 @@ func (f *cleaningFlags) rules() crowd.Rules {
 	r.TooFast = f.minSeconds > 0
 	r.MinSeconds = f.minSeconds
 	r.StraightLining = !f.noStraightLining
+	r.Spammers, r.SpammerBelow, r.SpammerMinLabels = f.dropSpammers, f.spammerBelow, f.spammerMinLabels
 	if f.noCleaning {
 		return crowd.Rules{}
 	}
@@ -85,10 +94,11 @@ the project has them, otherwise against a stratum you name as unbiased with
   loop consensus proj --keep-repeats --no-cleaning --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			switch cfg.Method {
-			case crowd.MethodMajority, crowd.MethodDawidSkene, crowd.MethodOneCoin:
-			default:
-				return usageErrorf("--method %q: want majority, dawid-skene or one-coin", cfg.Method)
+			if !slices.Contains(round.Methods, cfg.Method) {
+				return usageErrorf("--method %q: want one of %s", cfg.Method, strings.Join(round.Methods, ", "))
+			}
+			if !(clean.spammerBelow > 0 && clean.spammerBelow < 1) || clean.spammerMinLabels < 1 {
+				return usageErrorf("--spammer-below must be in (0, 1) and --spammer-min-labels ≥ 1")
 			}
 			if cfg.Reference != "" && cfg.Debias == "" {
 				return usageErrorf("--reference-stratum needs --debias COVARIATE")
@@ -114,8 +124,8 @@ the project has them, otherwise against a stratum you name as unbiased with
 		},
 	}
 	fl := c.Flags()
-	fl.StringVar(&cfg.Method, "method", cfg.Method, "combining method: majority, dawid-skene or one-coin")
-	fl.Float64Var(&cfg.Smoothing, "smoothing", 0, "Dirichlet pseudo-count added to each confusion cell (EM methods)")
+	fl.StringVar(&cfg.Method, "method", cfg.Method, "combining model: "+strings.Join(round.Methods, ", ")+" (auto: the hierarchical model unless another predicts held-out labels clearly better)")
+	fl.Float64Var(&cfg.Smoothing, "smoothing", 0, "Dirichlet pseudo-count added to each confusion cell (dawid-skene, one-coin; the class prior only for hierarchical)")
 	fl.StringVar(&cfg.Debias, "debias", "", "correct a bias shared by everyone that depends on this covariate")
 	fl.StringVar(&cfg.Reference, "reference-stratum", "", "the covariate value taken as unbiased when there is no gold")
 	fl.IntVar(&cfg.Strata, "strata", 5, "quantile bins for a numeric covariate with many values")
@@ -129,11 +139,12 @@ the project has them, otherwise against a stratum you name as unbiased with
 
 func consensusText(r *round.ConsensusReport, explain bool) string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "consensus: %s over %d items; %d of %d labels kept after cleaning\n", r.Config.Method, r.Items, r.LabelsKept, r.LabelsIn)
+	fmt.Fprintf(&b, "consensus: %s over %d items; %d of %d labels kept after cleaning\n", modelName(r), r.Items, r.LabelsKept, r.LabelsIn)
+	b.WriteString(modelText(r))
 	if r.Iterations > 0 {
 		conv := "converged"
 		if !r.Converged {
-			conv = "NOT converged (raise the iterations or add smoothing)"
+			conv = fmt.Sprintf("NOT converged after %d iterations: the posteriors are those of the last iteration; compare with --method one-coin", r.Iterations)
 		}
 		fmt.Fprintf(&b, "  EM: %d iterations, log-likelihood %.3f, %s\n", r.Iterations, r.LogLik, conv)
 	}
@@ -154,7 +165,11 @@ func consensusText(r *round.ConsensusReport, explain bool) string {
 		if s.On {
 			state = "on"
 		}
-		fmt.Fprintf(&b, "  %-16s %-3s dropped %d labels, %d annotators", s.Rule, state, s.Labels, s.Annotators)
+		if s.Flagged > 0 || s.Rule == crowd.RuleStraightLining {
+			fmt.Fprintf(&b, "  %-18s %-3s flagged %d annotators (nothing dropped)", s.Rule, state, s.Flagged)
+		} else {
+			fmt.Fprintf(&b, "  %-18s %-3s dropped %d labels, %d annotators", s.Rule, state, s.Labels, s.Annotators)
+		}
 		if s.Note != "" {
 			fmt.Fprintf(&b, " (%s)", s.Note)
 		}
@@ -238,4 +253,78 @@ func consensusStatus(s *store.Store) (any, string, error) {
 	t := fmt.Sprintf("method %s; %d items still uncertain (posterior < %.2f); %d with no labels after cleaning\n",
 		r.Config.Method, r.Uncertain, r.Config.Uncertain, r.NoLabels)
 	return v, t, nil
+}
+
+// modelName is the model a consensus used, with "(chosen)" when the method
+// was auto.
+func modelName(r *round.ConsensusReport) string {
+	if r.Model == "" {
+		return r.Config.Method
+	}
+	if r.Config.Method == crowd.MethodAuto {
+		return r.Model + " (chosen automatically)"
+	}
+	return r.Model
+}
+
+// modelText says why the model was used, with each candidate's held-out
+// score, and the hierarchical model's estimated prior.
+func modelText(r *round.ConsensusReport) string {
+	var b strings.Builder
+	if c := r.Choice; c != nil {
+		fmt.Fprintf(&b, "  why: %s\n", c.Reason)
+		if len(c.Candidates) > 0 {
+			fmt.Fprintf(&b, "  held-out labels: %s scored", thousands(c.HeldOut))
+			if c.SampleItems < r.Items {
+				fmt.Fprintf(&b, " (on a sample of %s items)", thousands(c.SampleItems))
+			}
+			b.WriteString("; mean log-probability of a held-out label, and its difference from hierarchical:\n")
+			for _, m := range c.Candidates {
+				conv := ""
+				if !m.Converged {
+					conv = "  (EM not converged)"
+				}
+				if m.Method == crowd.MethodHierarchical {
+					fmt.Fprintf(&b, "    %-13s %8.4f%s\n", m.Method, m.LogLik, conv)
+				} else {
+					fmt.Fprintf(&b, "    %-13s %8.4f  %+.4f ± %.4f%s\n", m.Method, m.LogLik, m.Diff, m.SE, conv)
+				}
+			}
+		}
+		if c.Warning != "" {
+			fmt.Fprintf(&b, "  warning: %s; plain dawid-skene overfits here\n", c.Warning)
+		}
+	}
+	if h := r.Hier; h != nil {
+		k := len(r.Classes)
+		bt, bc, bv := 0, 0, -1.0
+		for t := 0; t < k; t++ {
+			for c := 0; c < k; c++ {
+				if c != t && h.Pooled[t*k+c] > bv {
+					bt, bc, bv = t, c, h.Pooled[t*k+c]
+				}
+			}
+		}
+		fmt.Fprintf(&b, "  prior (estimated from the labels): row strength %.3g labels, skill spread %.2f (log-odds), largest shared confusion %s → %s %.2f\n",
+			h.Beta, h.SkillSD, r.Classes[bt], r.Classes[bc], bv)
+	}
+	return b.String()
+}
+
+// thousands writes n with commas between groups of three digits.
+func thousands(n int) string {
+	s := strconv.Itoa(n)
+	neg := strings.HasPrefix(s, "-")
+	s = strings.TrimPrefix(s, "-")
+	var b strings.Builder
+	for i, r := range s {
+		if i > 0 && (len(s)-i)%3 == 0 {
+			b.WriteByte(',')
+		}
+		b.WriteRune(r)
+	}
+	if neg {
+		return "-" + b.String()
+	}
+	return b.String()
 }

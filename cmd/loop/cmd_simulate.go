@@ -18,6 +18,8 @@ func newSimulateCmd() *cobra.Command {
 		spec       = sim.CrowdSpec{Careful: 0.3, Average: 0.4, Careless: 0.2, Spammer: 0.1, Classes: 4, Items: 2000, Annotators: 100}
 		lpi        string
 		prevalence string
+		perAnn     string
+		shared     []string
 		cfg        round.PlanConfig
 		asJSON     bool
 	)
@@ -29,10 +31,19 @@ average and careless annotators and of spammers, the classes and their
 prevalence — simulates it, and reports the consensus accuracy of each
 combining method at each number of labels per item, so a team can choose its
 redundancy and budget. The simulated crowds are invented; treat the figures
-as a guide, and check them against a pilot with gold items.`,
+as a guide, and check them against a pilot with gold items.
+
+Real crowds are sparse: people come, give a few dozen labels and leave.
+--labels-per-annotator 10-70 simulates that (each person gives between 10 and
+70 labels, and there are as many people as the labels need; --annotators is
+then ignored), and --shared c1:c2:0.3 adds a confusion most people share
+(everyone but the careful and the spammers answers c2 for a c1 item 30% of
+the time). Plan with the crowd you will really get: the figures of a dense,
+independent crowd are much kinder.`,
 		Example: `  loop simulate
   loop simulate --spammer 0.2 --careful 0.2 --labels-per-item 1,3,5,7,9
-  loop simulate --classes 3 --prevalence 0.7,0.2,0.1 --items 5000 --json`,
+  loop simulate --classes 3 --prevalence 0.7,0.2,0.1 --items 5000 --json
+  loop simulate --labels-per-annotator 10-70 --shared c1:c2:0.3 --one-class 0.4 --classes 10`,
 		Args: cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			for _, f := range strings.Split(lpi, ",") {
@@ -51,6 +62,36 @@ as a guide, and check them against a pilot with gold items.`,
 					spec.Prevalence = append(spec.Prevalence, x)
 				}
 			}
+			if perAnn != "" {
+				lo, hi, ok := strings.Cut(perAnn, "-")
+				if !ok {
+					hi = lo
+				}
+				a, err1 := strconv.Atoi(strings.TrimSpace(lo))
+				b, err2 := strconv.Atoi(strings.TrimSpace(hi))
+				if err1 != nil || err2 != nil || a < 1 || b < a {
+					return usageErrorf("--labels-per-annotator %q: want MIN-MAX (e.g. 10-70) or one whole number ≥ 1", perAnn)
+				}
+				spec.MinLabels, spec.MaxLabels = a, b
+			}
+			for _, sh := range shared {
+				f := strings.Split(sh, ":")
+				if len(f) != 3 {
+					return usageErrorf("--shared %q: want FROM:TO:RATE, e.g. c1:c2:0.3", sh)
+				}
+				rate, err := strconv.ParseFloat(f[2], 64)
+				if err != nil {
+					return usageErrorf("--shared %q: rate %q is not a number", sh, f[2])
+				}
+				spec.Shared = append(spec.Shared, sim.Shared{From: f[0], To: f[1], Rate: rate})
+			}
+			if err := spec.Validate(); err != nil && cfg.LabelsPerItem != nil {
+				probe := spec
+				probe.LabelsPerItem = cfg.LabelsPerItem[0]
+				if err := probe.Validate(); err != nil {
+					return usageErrorf("%v", err)
+				}
+			}
 			cfg.Spec = spec
 			bar := newProgress(cmd, -1, "simulating")
 			cells, err := round.Plan(cfg)
@@ -63,11 +104,25 @@ as a guide, and check them against a pilot with gold items.`,
 			}
 			var b strings.Builder
 			fmt.Fprintf(&b, "consensus accuracy against the simulated truth (mean of %d projects; min–max)\n", max(cfg.Seeds, 1))
-			fmt.Fprintf(&b, "crowd: %.0f%% careful, %.0f%% average, %.0f%% careless, %.0f%% spammers; %d annotators, %d items, %d classes\n",
-				100*spec.Careful, 100*spec.Average, 100*spec.Careless, 100*spec.Spammer, spec.Annotators, spec.Items, spec.Classes)
+			who := fmt.Sprintf("%d annotators", spec.Annotators)
+			if spec.Sparse() {
+				who = fmt.Sprintf("people giving %d–%d labels each", spec.MinLabels, spec.MaxLabels)
+				if spec.OneClass > 0 {
+					who += fmt.Sprintf(", %.0f%% of spammers always one class", 100*spec.OneClass)
+				}
+			}
+			fmt.Fprintf(&b, "crowd: %.0f%% careful, %.0f%% average, %.0f%% careless, %.0f%% spammers; %s; %d items, %d classes\n",
+				100*spec.Careful, 100*spec.Average, 100*spec.Careless, 100*spec.Spammer, who, spec.Items, spec.Classes)
+			for _, sh := range spec.Shared {
+				fmt.Fprintf(&b, "shared confusion: %s answered as %s %.0f%% of the time by all but the careful\n", sh.From, sh.To, 100*sh.Rate)
+			}
 			fmt.Fprintf(&b, "%-16s %-12s %-24s %s\n", "labels per item", "labels", "method", "accuracy")
 			for _, c := range cells {
-				fmt.Fprintf(&b, "%-16d %-12d %-24s %.3f (%.3f–%.3f)\n", c.LabelsPerItem, c.Labels, c.Method, c.Accuracy, c.Min, c.Max)
+				m := c.Method
+				if len(c.Chosen) > 0 {
+					m += " → " + strings.Join(c.Chosen, ", ")
+				}
+				fmt.Fprintf(&b, "%-16d %-12d %-24s %.3f (%.3f–%.3f)\n", c.LabelsPerItem, c.Labels, m, c.Accuracy, c.Min, c.Max)
 			}
 			outf(cmd, "%s", b.String())
 			return nil
@@ -81,7 +136,10 @@ as a guide, and check them against a pilot with gold items.`,
 	fl.IntVar(&spec.Classes, "classes", spec.Classes, "number of classes")
 	fl.StringVar(&prevalence, "prevalence", "", "true class shares, comma-separated (default: equal)")
 	fl.IntVar(&spec.Items, "items", spec.Items, "items per simulated project")
-	fl.IntVar(&spec.Annotators, "annotators", spec.Annotators, "annotators per simulated project")
+	fl.IntVar(&spec.Annotators, "annotators", spec.Annotators, "annotators per simulated project (a dense crowd)")
+	fl.StringVar(&perAnn, "labels-per-annotator", "", "a sparse crowd: each person gives MIN-MAX labels, e.g. 10-70")
+	fl.Float64Var(&spec.OneClass, "one-class", 0, "sparse crowd: share of spammers who always give one class")
+	fl.StringArrayVar(&shared, "shared", nil, "a confusion most people share, FROM:TO:RATE with classes c1, c2, … (repeatable)")
 	fl.StringVar(&lpi, "labels-per-item", "1,3,5,7", "labels per item to compare, comma-separated")
 	fl.IntVar(&cfg.Seeds, "projects", 3, "simulated projects per setting")
 	fl.Uint64Var(&cfg.Seed, "seed", 1, "seed")

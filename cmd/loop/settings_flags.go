@@ -29,7 +29,8 @@ var valueFlags = []settingFlag{
 	{"learner", "", "learner"}, {"features", "", "features"}, {"lambda", "", "lambda"}, {"folds", "", "folds"},
 	{"method", "", "method"}, {"debias", "", "debias"}, {"reference-stratum", "", "reference-stratum"},
 	{"gold-min-accuracy", "", "gold-min-accuracy"}, {"gold-min-items", "", "gold-min-items"},
-	{"min-seconds", "", "min-seconds"}, {"seed", "", "seed"},
+	{"min-seconds", "", "min-seconds"}, {"drop-spammers", "", "drop-spammers"},
+	{"spammer-below", "", "spammer-below"}, {"spammer-min-labels", "", "spammer-min-labels"}, {"seed", "", "seed"},
 }
 
 // offFlags are switches that turn a setting off.

@@ -27,6 +27,7 @@ func main() {
 	grid := flag.String("cp", "", "write Clopper–Pearson bounds over a (k, n) grid to this file")
 	looks := flag.Int("looks", 500, "projects of the repeated-looks simulation (0: skip it)")
 	looksMD := flag.String("looks-md", "", "write the repeated-looks tables (Markdown) to this file")
+	looksOnly := flag.String("looks-method", "", "run the repeated-looks tables of this consensus method only (default: the default and one-coin)")
 	flag.Parse()
 
 	if *grid != "" {
@@ -59,6 +60,9 @@ func main() {
 			maxErr float64
 			method string
 		}{{0.05, ""}, {0.10, ""}, {0.05, crowd.MethodOneCoin}, {0.10, crowd.MethodOneCoin}} {
+			if *looksOnly != "" && c.method != *looksOnly && !(c.method == "" && *looksOnly == "default") {
+				continue
+			}
 			t0 := time.Now()
 			r, err := honest.RunLooks(honest.LooksConfig{Projects: *looks, MaxError: c.maxErr, Level: *level, Seed: *seed, Method: c.method})
 			if err != nil {
