@@ -17,7 +17,7 @@ func (r *Report) WriteText(w io.Writer) error {
 	for _, n := range r.Notes {
 		fmt.Fprintf(&b, "%s\n", n)
 	}
-	if len(r.Comparisons) == 0 {
+	if len(r.Comparisons) == 0 && len(r.Notes) == 0 {
 		b.WriteString("nothing to compare yet\n")
 	}
 	for ci, c := range r.Comparisons {

@@ -121,6 +121,7 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 		itemIDs := tx.Bucket(bItemIDs)
 		ann := newAnnotatorCache(tx, annIDs)
 		open := openWave(tx)
+		later := false
 		seq := labels.Sequence()
 		done := false
 		for n := 0; n < chunk; n++ {
@@ -153,6 +154,7 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 			if r.Wave, err = waveOf(l.Wave, open); err != nil {
 				return false, err
 			}
+			later = later || r.Wave > 1
 			if !l.Time.IsZero() {
 				if y := l.Time.UTC().Year(); y < 1678 || y > 2261 {
 					return false, dataErr("time", "time %s is outside the years 1678–2261 that can be stored", l.Time.Format(time.RFC3339))
@@ -177,6 +179,9 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 			res.Added++
 		}
 		if err := labels.SetSequence(seq); err != nil {
+			return false, err
+		}
+		if err := markWaves(tx, later); err != nil {
 			return false, err
 		}
 		if done {

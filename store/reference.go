@@ -5,6 +5,7 @@ import (
 	"errors"
 	"fmt"
 	"sort"
+	"time"
 
 	bolt "go.etcd.io/bbolt"
 
@@ -29,10 +30,13 @@ var ErrReferenceExists = errors.New("a reference of that name exists")
 //
 // References are kept apart from gold and from everything a round reads
 // (Snapshot does not include them): they never screen, clean, train or
-// decide anything.
+// decide anything. A zero Added is set to now.
 func (s *Store) PutReference(ref handoff.Reference, replace bool, source string) error {
 	if err := ref.Validate(s.cb); err != nil {
 		return err
+	}
+	if ref.Added.IsZero() {
+		ref.Added = s.now().UTC().Truncate(time.Second)
 	}
 	return s.write(func(tx *bolt.Tx) error {
 		b, err := tx.CreateBucketIfNotExists(bReferences)

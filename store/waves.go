@@ -153,3 +153,27 @@ func doneInWave(tx *bolt.Tx, v []byte, wave uint16) bool {
 	}
 	return r.Wave == wave
 }
+
+// kWaves marks a project that has (or had) labels of a wave after the
+// first; absent in files written before waves existed, which have none.
+var kWaves = []byte("waves_later")
+
+// markWaves records, when later is set, that labels of a later wave exist.
+func markWaves(tx *bolt.Tx, later bool) error {
+	if !later || tx.Bucket(bMeta).Get(kWaves) != nil {
+		return nil
+	}
+	return tx.Bucket(bMeta).Put(kWaves, []byte{1})
+}
+
+// HasWaves reports, without reading the labels, whether the project may
+// have labels of more than one wave: a wave was opened, or labels of a wave
+// after the first were imported.
+func (s *Store) HasWaves() (bool, error) {
+	has := false
+	err := s.db.View(func(tx *bolt.Tx) error {
+		has = openWave(tx) > 1 || tx.Bucket(bMeta).Get(kWaves) != nil
+		return nil
+	})
+	return has, err
+}
