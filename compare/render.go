@@ -143,7 +143,7 @@ func scatterOf(c Comparison) ([]template.HTML, error) {
 		if len(ps) > 1 {
 			what = "class shares"
 		}
-		svg, err := Scatter(pts, fmt.Sprintf("%s per parent: %s vs %s", what, c.B, c.A), c.A, c.B, k.lo, k.hi)
+		svg, err := Scatter(pts, what+" per parent", c.A, c.B, k.lo, k.hi)
 		if err != nil {
 			return nil, err
 		}

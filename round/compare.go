@@ -250,7 +250,9 @@ func (c *comparer) againstReference(ref handoff.Reference, side []int, kind, nam
 	cmp.ItemsNote = "the reference scores parents, not items"
 	byQ := map[string][]handoff.ReferenceScore{}
 	var qs []string
+	scored := map[string]bool{}
 	for _, s := range ref.Parents {
+		scored[s.Parent] = true
 		q := s.Question
 		if q == "" {
 			q = handoff.PositionQuestion
@@ -289,6 +291,16 @@ func (c *comparer) againstReference(ref handoff.Reference, side []int, kind, nam
 	if left > 0 {
 		cmp.Notes = append(cmp.Notes, fmt.Sprintf("%d parent scores left out: %s has coded none of the parent's items", left, name))
 	}
+	codedN, allN := 0, 0
+	for i, g := range c.parentOf {
+		if g >= 0 && scored[c.parents[g]] {
+			allN++
+			if side[i] >= 0 {
+				codedN++
+			}
+		}
+	}
+	cmp.Notes = append(cmp.Notes, fmt.Sprintf("%s rolls each parent up over the items it coded: %d of the %d items of the scored parents", name, codedN, allN))
 	return cmp
 }
 

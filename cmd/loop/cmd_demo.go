@@ -190,6 +190,9 @@ func demoProjectRun(cmd *cobra.Command, d *sim.Demo, dir string, pr demoProject,
 	} else {
 		outf(cmd, "  NOT YET after %d rounds: nothing autolabelled; the crowd keeps labelling\n", res.Round)
 	}
+	if err := demoCodings(cmd, st, d, dir, pr, answerRound, src); err != nil {
+		return "", err
+	}
 	rep, err := round.Verdict(st, round.VerdictConfig{})
 	if err != nil {
 		return "", err

@@ -52,14 +52,14 @@ wave; loop compare computes each wave's consensus apart.`,
 				return printJSON(cmd, ws)
 			}
 			var b strings.Builder
-			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', tabwriter.AlignRight)
-			fmt.Fprintln(tw, "wave\tlabels\titems\t\t")
+			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+			fmt.Fprintln(tw, "wave\tlabels\titems\t")
 			for _, w := range ws {
 				mark := ""
 				if w.Open {
 					mark = "open"
 				}
-				fmt.Fprintf(tw, "%d\t%d\t%d\t%s\t\n", w.Wave, w.Labels, w.Items, mark)
+				fmt.Fprintf(tw, "%d\t%d\t%d\t%s\n", w.Wave, w.Labels, w.Items, mark)
 			}
 			tw.Flush()
 			outf(cmd, "%s", b.String())
