@@ -115,11 +115,11 @@ func compareSnapshot(sn *store.Snapshot, refs []handoff.Reference, cfg CompareCo
 		if err != nil {
 			return nil, err
 		}
-		crowdCls, gold := c.crowdClasses(cr)
+		crowdCls, _ := c.crowdClasses(cr)
 		machineCls, machineName, machineNote := c.machineClasses(sn)
 		for _, ref := range refs {
 			cmp := c.againstReference(ref, crowdCls, "reference", crowdName)
-			if gold > 0 {
+			if gold := c.goldIn(ref); gold > 0 {
 				cmp.Notes = append(cmp.Notes, fmt.Sprintf("%d gold items left out: their consensus is the gold answer, not the crowd's", gold))
 			}
 			rep.Comparisons = append(rep.Comparisons, cmp)
@@ -397,13 +397,13 @@ func (c *comparer) betweenWaves(waveOf []uint16, a, b int) (compare.Comparison, 
 		cls[s], _ = c.crowdClasses(cr)
 	}
 	gold := 0
-	for i := range c.p.items {
+	for _, i := range c.labelledIn(waveOf, uint16(a), uint16(b)) {
 		if c.p.gold[i] >= 0 {
 			gold++
 		}
 	}
 	if gold > 0 {
-		cmp.Notes = append(cmp.Notes, fmt.Sprintf("gold items left out (%d): their consensus is the gold answer in every wave", gold))
+		cmp.Notes = append(cmp.Notes, fmt.Sprintf("%d gold items labelled in both waves left out: their consensus is the gold answer in every wave", gold))
 	}
 	c.itemsAndParents(&cmp, cls[0], cls[1])
 	return cmp, nil
@@ -462,4 +462,48 @@ func joinInts(xs []int) string {
 		s[i] = fmt.Sprint(x)
 	}
 	return strings.Join(s, ", ")
+}
+
+// goldIn counts the gold items a reference codes (item labels) or that
+// belong to the parents it scores.
+func (c *comparer) goldIn(ref handoff.Reference) int {
+	n := 0
+	if ref.Kind() == handoff.ReferenceItems {
+		for _, l := range ref.Items {
+			if i, ok := c.p.index[l.Item]; ok && c.p.gold[i] >= 0 {
+				n++
+			}
+		}
+		return n
+	}
+	scored := map[string]bool{}
+	for _, s := range ref.Parents {
+		scored[s.Parent] = true
+	}
+	for i, it := range c.p.items {
+		if c.p.gold[i] >= 0 && scored[it.Parent] {
+			n++
+		}
+	}
+	return n
+}
+
+// labelledIn returns the item positions with labels in both waves a and b.
+func (c *comparer) labelledIn(waveOf []uint16, a, b uint16) []int {
+	in := make([]uint8, len(c.p.items))
+	for j, i := range c.p.labels.Item {
+		switch waveOf[j] {
+		case a:
+			in[i] |= 1
+		case b:
+			in[i] |= 2
+		}
+	}
+	var out []int
+	for i, v := range in {
+		if v == 3 {
+			out = append(out, i)
+		}
+	}
+	return out
 }
