@@ -2,6 +2,7 @@ package api
 
 import (
 	"bytes"
+	"encoding/json"
 	"fmt"
 	"io"
 	"net/http"
@@ -228,5 +229,72 @@ func TestBoardRoundDuringImports(t *testing.T) {
 	}
 	if after, _ := f.st.ItemCount(); after-before < 8*25 {
 		t.Errorf("only %d items imported while the rounds ran: the imports did not overlap them", after-before)
+	}
+}
+
+// TestSettingsBeforeARound: GET /api/v1/settings shows the stored settings
+// a board round uses (admins only) and what it would find new; after a
+// round with nothing new, pending.fresh is false and a second round
+// changes nothing and says why.
+func TestSettingsBeforeARound(t *testing.T) {
+	if testing.Short() {
+		t.Skip("trains a model")
+	}
+	dir := filepath.Join(t.TempDir(), "p")
+	tok := demoProject(t, dir, []round.Override{{Key: "batch", Value: "30"}, {Key: "max-error", Value: "0.07"}, {Key: "held-out-min", Value: "100"}})
+	f := serve(t, dir, tok)
+	annTok, err := AddPerson(f.st, "ann", false, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	f.tokens["ann"] = annTok
+	if r := f.do("GET", "/api/v1/settings", "ann", nil); r.status != http.StatusForbidden {
+		t.Errorf("an annotator read the settings: %d", r.status)
+	}
+	get := func() SettingsReply {
+		t.Helper()
+		r := f.do("GET", "/api/v1/settings", "boss", nil)
+		var s SettingsReply
+		if r.status != http.StatusOK || json.Unmarshal(r.body, &s) != nil {
+			t.Fatalf("settings: %d %s", r.status, r.body)
+		}
+		return s
+	}
+	s := get()
+	want := map[string][2]string{"batch": {"30", "stored"}, "max-error": {"0.07", "stored"}, "confidence": {"0.95", "default"}}
+	seen := 0
+	for _, x := range s.Settings {
+		if w, ok := want[x.Key]; ok {
+			seen++
+			if x.Value != w[0] || x.Source != w[1] || x.Range == "" || x.Doc == "" {
+				t.Errorf("setting %+v, want value %s from %s with its range and doc", x, w[0], w[1])
+			}
+		}
+	}
+	if seen != len(want) || len(s.Settings) != len(round.Keys()) {
+		t.Errorf("%d settings (%d of the checked ones), want all %d keys", len(s.Settings), seen, len(round.Keys()))
+	}
+	stats, _ := f.st.Stats()
+	if !s.Pending.Fresh || s.Pending.Round != 0 || s.Pending.NewLabels != stats.Labels {
+		t.Errorf("before the first round: pending %+v", s.Pending)
+	}
+	for i, wantUnchanged := range []bool{false, true} {
+		if r := f.do("POST", "/api/v1/rounds", "boss", nil); r.status != http.StatusAccepted {
+			t.Fatalf("round %d: %d %s", i+1, r.status, r.body)
+		}
+		j := f.waitRound()
+		var res RoundSummary
+		if j.State != "done" || json.Unmarshal(j.Result, &res) != nil || res.Unchanged != wantUnchanged {
+			t.Fatalf("round %d: %+v %s", i+1, j, j.Result)
+		}
+		if wantUnchanged && !strings.Contains(res.Headline, "no labels new since the last round") {
+			t.Errorf("an unchanged round says %q", res.Headline)
+		}
+		if s := get(); s.Pending.Fresh || s.Pending.Round != 1 || s.Pending.NewLabels != 0 {
+			t.Errorf("after round %d: pending %+v", i+1, s.Pending)
+		}
+	}
+	if rs, _ := f.st.Rounds(); len(rs) != 1 {
+		t.Errorf("%d rounds stored, want 1: the round with nothing new ran", len(rs))
 	}
 }

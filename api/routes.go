@@ -60,6 +60,7 @@ func (sv *Server) table() []route {
 		{method: "GET", path: "/api/v1/agreement", need: adminOnly, long: true, handler: sv.getAgreement},
 		{method: "GET", path: "/api/v1/annotators", need: adminOnly, long: true, handler: sv.getAnnotators},
 		{method: "GET", path: "/api/v1/unsure", need: adminOnly, handler: sv.getUnsure},
+		{method: "GET", path: "/api/v1/settings", need: adminOnly, handler: sv.getSettings},
 		{method: "POST", path: "/api/v1/rounds", need: adminOnly, changes: true, handler: sv.postRound},
 		{method: "GET", path: "/api/v1/rounds", need: adminOnly, handler: sv.getRounds},
 		{method: "GET", path: "/api/v1/next-batch", need: adminOnly, handler: sv.getNextBatch},

@@ -407,8 +407,11 @@ func ParseShares(v string) (map[selector.Reason]float64, error) {
 	for _, kv := range strings.Split(v, ",") {
 		name, val, ok := strings.Cut(strings.TrimSpace(kv), "=")
 		r := selector.Reason(strings.TrimSpace(name))
-		if !ok || !slices.Contains(selector.Reasons, r) || r == selector.ReasonAudit {
+		if !ok {
 			return nil, fmt.Errorf("%q is not reason=share", kv)
+		}
+		if !slices.Contains(selector.Reasons, r) || r == selector.ReasonAudit {
+			return nil, fmt.Errorf("no reason %q", r)
 		}
 		x, good := parseFloat(val)
 		if !good || x < 0 {

@@ -595,7 +595,11 @@ func decide(r *Report, archive int) Decision {
 	if r.Fit != nil {
 		d.LabelsNeeded = r.Fit.More
 	} else if r.FitError != "" {
-		d.Notes = append(d.Notes, "learning curve: "+r.FitError)
+		note := r.FitError
+		if !strings.HasPrefix(note, "learning curve") {
+			note = "learning curve: " + note
+		}
+		d.Notes = append(d.Notes, note)
 	}
 	d.Go = len(d.HeldBy) == 0
 	return d

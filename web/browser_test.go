@@ -6,6 +6,8 @@ import (
 	"image"
 	"image/color"
 	"image/png"
+	"math"
+	"math/rand/v2"
 	"net/http"
 	"net/http/httptest"
 	"os"
@@ -26,6 +28,7 @@ import (
 	"handoff/round"
 	"handoff/sim"
 	"handoff/store"
+	"handoff/verdict"
 )
 
 // Hostile item texts: shown as text, they must run nothing.
@@ -816,27 +819,212 @@ func commas(n int) string {
 	return s
 }
 
-// TestReport screenshots the verdict's HTML report on its own page at
-// 1366×768 and 390×844: its plots are inline SVG and nothing overflows the
-// phone's width.
+// TestReport shows the verdict's HTML report at 1366×768 and on a phone's
+// 390×844: as the board's API serves it (the demo project, 5 classes) and
+// as `loop verdict --html` writes it for ten classes with long names. At
+// both sizes the page never scrolls sideways (wide tables scroll inside
+// their own box), every plot's text stays inside its plot, and no key
+// overlaps its plot. Screenshots of the whole page and of its top.
 func TestReport(t *testing.T) {
 	p := boardProject(t)
+	file := filepath.Join(t.TempDir(), "report.html")
+	writeTenClassReport(t, file)
 	ctx := browser(t, 1366, 768)
 	setViewport(t, ctx, 1366, 768, false)
 	signIn(t, ctx, p.ts.URL, p.tokens["lead"], "/board")
-	for _, v := range []struct {
-		w, h  int
-		phone bool
-		name  string
-	}{{1366, 768, false, "report-1366.png"}, {390, 844, true, "report-390.png"}} {
-		setViewport(t, ctx, v.w, v.h, v.phone)
-		if err := chromedp.Do(ctx, chromedp.Navigate(p.ts.URL+"/api/v1/verdict/report"), chromedp.WaitReady(chromedp.CSS("body"))); err != nil {
-			t.Fatal(err)
+	for _, src := range []struct{ url, name string }{{p.ts.URL + "/api/v1/verdict/report", "report"}, {"file://" + file, "report-10"}} {
+		for _, v := range []struct {
+			w, h  int
+			phone bool
+		}{{1366, 768, false}, {390, 844, true}} {
+			setViewport(t, ctx, v.w, v.h, v.phone)
+			if err := chromedp.Do(ctx, chromedp.Navigate(src.url), chromedp.WaitReady(chromedp.CSS("body"))); err != nil {
+				t.Fatal(err)
+			}
+			where := fmt.Sprintf("%s at %d×%d", src.name, v.w, v.h)
+			if plots := eval[int](t, ctx, `document.querySelectorAll("figure svg").length`); plots < 3 {
+				t.Errorf("%s: %d plots", where, plots)
+			}
+			if sw, iw := eval[int](t, ctx, `document.documentElement.scrollWidth`), eval[int](t, ctx, `window.innerWidth`); sw > iw {
+				t.Errorf("%s: the page is %d px wide in a %d px viewport: it scrolls sideways", where, sw, iw)
+			}
+			// Text drawn past a plot's edge is cut off.
+			if out := eval[[]string](t, ctx, `[...document.querySelectorAll("figure svg")].flatMap((s) => {
+				const b = s.getBoundingClientRect();
+				return [...s.querySelectorAll("text")].filter((e) => { const r = e.getBoundingClientRect();
+					return r.left < b.left - 0.5 || r.right > b.right + 0.5 || r.top < b.top - 0.5 || r.bottom > b.bottom + 0.5; })
+					.map((e) => { const r = e.getBoundingClientRect(); return s.closest("figure").id + ": " + e.textContent + " " + [r.left - b.left, r.top - b.top, b.right - r.right, b.bottom - r.bottom].map((x) => x.toFixed(1)).join(","); }); })`); len(out) > 0 {
+				t.Errorf("%s: text outside its plot: %v", where, out)
+			}
+			if out := eval[[]string](t, ctx, `[...document.querySelectorAll("figure")].filter((f) => {
+				const k = f.querySelector("ul.key"), s = f.querySelector("svg");
+				if (!k || !s) return false;
+				const a = k.getBoundingClientRect(), b = s.getBoundingClientRect();
+				return a.left < b.right && b.left < a.right && a.top < b.bottom && b.top < a.bottom; }).map((f) => f.id)`); len(out) > 0 {
+				t.Errorf("%s: keys over their plots: %v", where, out)
+			}
+			name := fmt.Sprintf("%s-%d.png", src.name, v.w)
+			screenshot(t, ctx, name)
+			shot(t, ctx, strings.Replace(name, ".png", "-top.png", 1), chromedp.CaptureScreenshot())
 		}
-		if plots := eval[int](t, ctx, `document.querySelectorAll("svg").length`); plots < 3 {
-			t.Errorf("the verdict report has %d plots", plots)
-		}
-		screenshot(t, ctx, v.name)
-		shot(t, ctx, strings.Replace(v.name, ".png", "-top.png", 1), chromedp.CaptureScreenshot())
 	}
+}
+
+// writeTenClassReport writes the HTML report of a verdict on ten classes
+// with long names: a model right with probability equal to its confidence
+// (seeded), 30 annotators, a learning curve.
+func writeTenClassReport(t *testing.T, path string) {
+	t.Helper()
+	classes := []string{"water-quality", "bank-erosion", "wildlife-sighting", "litter-and-dumping", "flooding",
+		"footpath-damage", "invasive-plants", "fishing", "noise-complaint", "something-else"}
+	r := rand.New(rand.NewPCG(3, 9))
+	in := verdict.Input{Classes: classes}
+	for i := 0; i < 1500; i++ {
+		truth := r.IntN(10)
+		c := 0.6 + 0.4*math.Sqrt(r.Float64())
+		pred := truth
+		if r.Float64() > c {
+			pred = (truth + 1 + r.IntN(9)) % 10
+		}
+		pr := make([]float64, 10)
+		for j := range pr {
+			pr[j] = (1 - c) / 9
+		}
+		pr[pred] = c
+		in.Truth = append(in.Truth, truth)
+		in.Proba = append(in.Proba, pr)
+	}
+	for i := 0; i < 3000; i++ {
+		in.Archive = append(in.Archive, 0.6+0.4*math.Sqrt(r.Float64()))
+	}
+	for i := 0; i < 30; i++ {
+		k := 0.3 + 0.6*float64(i)/29
+		in.Annotators = append(in.Annotators, verdict.Annotator{ID: fmt.Sprintf("coder-%02d", i), Kappa: k, Agreement: 0.5 + k/2, Items: 100 + 9*i})
+	}
+	for _, n := range []int{150, 300, 600, 1200, 2400} {
+		in.Curve = append(in.Curve, verdict.CurvePoint{Labels: n, Error: 0.9*math.Pow(float64(n), -0.4) + 0.02})
+	}
+	rep, err := verdict.Compute(in, verdict.Options{Seed: 2, Bootstrap: 200, TargetError: 0.05})
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := os.Create(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	if err := rep.WriteHTML(f, "Verdict on ten classes"); err != nil {
+		t.Fatal(err)
+	}
+}
+
+// TestBoardRunRound: "Run a round" shows the project's stored settings and
+// asks first; with no labels new since the last round it says so and runs
+// nothing; after new labels, confirming runs the round with the stored
+// settings. Screenshots of both answers.
+func TestBoardRunRound(t *testing.T) {
+	p := boardProject(t)
+	if _, err := round.SetSettings(p.st, []round.Override{{Key: "batch", Value: "30"}}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	ctx := browser(t, 1366, 768)
+	setViewport(t, ctx, 1366, 768, false)
+	signIn(t, ctx, p.ts.URL, p.tokens["lead"], "/board")
+
+	// Nothing new since round 1.
+	if err := chromedp.Do(ctx, chromedp.Click("#run-round")); err != nil {
+		t.Fatal(err)
+	}
+	until(t, ctx, `document.getElementById("round-nothing")`)
+	if s := text(ctx, "#round-nothing"); !strings.Contains(s, "no labels are new since round 1") || !strings.Contains(s, "would change nothing") {
+		t.Errorf("with nothing new: %q", s)
+	}
+	if n := eval[int](t, ctx, `document.querySelectorAll("#round-go").length`); n != 0 {
+		t.Error("a round is offered with nothing new")
+	}
+	shot(t, ctx, "board-round-nothing.png", chromedp.CaptureScreenshot())
+	press(t, ctx, kb.Enter) // Close has the focus
+	until(t, ctx, `document.getElementById("round-confirm").hidden && !document.getElementById("run-round").disabled`)
+
+	// New labels: the board asks, showing the stored batch, then runs.
+	items, err := p.st.ItemIDs()
+	if err != nil {
+		t.Fatal(err)
+	}
+	var ls []handoff.Label
+	for i := 0; i < 7; i++ {
+		ls = append(ls, handoff.Label{Item: items[i], Annotator: "late", Class: sim.TopicCodebook().Classes[i%3].Key})
+	}
+	if _, err := p.st.PutLabels(ls, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if err := chromedp.Do(ctx, chromedp.Click("#run-round")); err != nil {
+		t.Fatal(err)
+	}
+	until(t, ctx, `document.getElementById("round-ask")`)
+	ask := text(ctx, "#round-ask")
+	if !strings.Contains(ask, "Run round 2, with 7 labels new since round 1") || !strings.Contains(ask, "stored settings") {
+		t.Errorf("the question: %q", ask)
+	}
+	if s := text(ctx, "#round-settings"); !strings.Contains(s, "batch") || !strings.Contains(s, "30") || !strings.Contains(s, "stored") {
+		t.Errorf("the settings shown: %q", s)
+	}
+	if rs, _ := p.st.Rounds(); len(rs) != 1 {
+		t.Fatalf("a round ran before it was confirmed: %d rounds", len(rs))
+	}
+	shot(t, ctx, "board-round-ask.png", chromedp.CaptureScreenshot())
+	press(t, ctx, kb.Enter) // "Run the round" has the focus
+	until(t, ctx, `document.getElementById("round-status").textContent.startsWith("Round 2 finished")`)
+	r, err := round.Latest(p.st)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if r.Round != 2 || r.Config.Batch != 30 {
+		t.Errorf("the board's round: round %d with batch %d, want round 2 with the stored batch 30", r.Round, r.Config.Batch)
+	}
+}
+
+// TestBoardOrdinal: on an ordinal codebook the agreement card adds
+// Krippendorff's alpha with the ordinal and interval metrics, which a
+// nominal codebook does not show (TestBoard).
+func TestBoardOrdinal(t *testing.T) {
+	cb := handoff.Codebook{Name: "severity", Question: "How bad is it?", Scale: handoff.Ordinal,
+		Classes: []handoff.Class{{Key: "none"}, {Key: "minor"}, {Key: "major"}}}
+	st, err := store.Create(t.TempDir(), cb, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { st.Close() })
+	var items []handoff.Item
+	var labels []handoff.Label
+	day := time.Date(2026, 1, 5, 9, 0, 0, 0, time.UTC)
+	for i := 0; i < 30; i++ {
+		id := fmt.Sprintf("s%02d", i)
+		items = append(items, handoff.Item{ID: id, Kind: handoff.KindText, Text: fmt.Sprintf("Report %d", i)})
+		for a, who := range []string{"ana", "ben", "cy"} {
+			c := i % 3
+			if (i+a)%7 == 0 {
+				c = (c + 1) % 3
+			}
+			labels = append(labels, handoff.Label{Item: id, Annotator: who, Class: cb.Classes[c].Key, Time: day.Add(time.Duration(i%4) * 24 * time.Hour)})
+		}
+	}
+	if _, err := st.PutItems(items, false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := st.PutLabels(labels, "test"); err != nil {
+		t.Fatal(err)
+	}
+	p := serve(t, st, api.Config{}, map[string]bool{"lead": true})
+	ctx := browser(t, 1366, 768)
+	setViewport(t, ctx, 1366, 768, false)
+	signIn(t, ctx, p.ts.URL, p.tokens["lead"], "/board")
+	until(t, ctx, `document.querySelector("#agreement table")`)
+	a := text(ctx, "#agreement")
+	for _, m := range []string{"alpha (nominal)", "alpha (ordinal)", "alpha (interval)"} {
+		if !strings.Contains(a, m) {
+			t.Errorf("the agreement card of an ordinal codebook lacks %s: %q", m, a)
+		}
+	}
+	shot(t, ctx, "board-ordinal-agreement.png", chromedp.Screenshot(chromedp.CSS("#agreement")))
 }

@@ -94,11 +94,26 @@ func agreementText(r *round.AgreementReport) string {
 			fmt.Fprintf(&b, "  %s × %s  %s  (%d items)\n", p.A, p.B, estimate(p.Kappa), p.Kappa.N)
 		}
 	}
-	b.WriteString("each annotator against the leave-one-out majority (Cohen's kappa), lowest first:\n")
-	l := append([]round.AnnotatorKappa(nil), r.LeaveOneOut...)
+	// Annotators with no label left after cleaning have no kappa: they are
+	// listed once, apart, not as a row of "undefined".
+	var l []round.AnnotatorKappa
+	var none []string
+	for _, a := range r.LeaveOneOut {
+		if a.Labels == 0 {
+			none = append(none, a.ID)
+		} else {
+			l = append(l, a)
+		}
+	}
 	sortBy(l, func(a, b round.AnnotatorKappa) bool { return a.Kappa.Value < b.Kappa.Value })
+	if len(l) > 0 {
+		b.WriteString("each annotator against the leave-one-out majority (Cohen's kappa), lowest first:\n")
+	}
 	for _, a := range l {
 		fmt.Fprintf(&b, "  %-20s %s  (%d items)\n", a.ID, estimate(a.Kappa), a.Kappa.N)
+	}
+	if len(none) > 0 {
+		fmt.Fprintf(&b, "not counted, with no label left after the cleaning rules (`loop consensus DIR` says why), %d: %s\n", len(none), strings.Join(none, ", "))
 	}
 	return b.String()
 }

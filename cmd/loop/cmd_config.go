@@ -59,7 +59,7 @@ than half the archive. It stays fixed after that.`,
 				if err != nil {
 					return settingUsage(err)
 				}
-				outf(cmd, "%s\n", strings.Join(changes, "\n"))
+				donef(cmd, "%s\n", strings.Join(changes, "\n"))
 				return nil
 			}
 			_, list, err := round.Settings(s)

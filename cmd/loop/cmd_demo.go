@@ -188,7 +188,7 @@ func demoProjectRun(cmd *cobra.Command, d *sim.Demo, dir string, pr demoProject,
 			}
 		}
 	} else {
-		outf(cmd, "  NOT YET after %d rounds: nothing autolabelled; the crowd keeps labelling\n", res.Round)
+		outf(cmd, "  NOT YET after %d %s: nothing autolabelled; the crowd keeps labelling\n", res.Round, map[bool]string{true: "round", false: "rounds"}[res.Round == 1])
 	}
 	if err := demoCodings(cmd, st, d, dir, pr, answerRound, src); err != nil {
 		return "", err

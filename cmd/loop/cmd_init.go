@@ -41,7 +41,7 @@ quotes when it sits inside {…}.`,
 				return err
 			}
 			defer s.Close()
-			outf(cmd, "created project %s with codebook %q (%d classes)\n", args[0], cb.Name, len(cb.Classes))
+			donef(cmd, "created project %s with codebook %q (%d classes)\n", args[0], cb.Name, len(cb.Classes))
 			return nil
 		},
 	}

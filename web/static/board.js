@@ -1,7 +1,8 @@
 // The project board: counts, labels per day, agreement, the reliability
 // table, who may sign in (add, new token, revoke, grant a check attempt),
 // the latest verdict with its report, the next batch, and the actions (run
-// a round, export). All text from the server goes in with textContent.
+// a round with the stored settings after showing them, export). All text
+// from the server goes in with textContent.
 "use strict";
 
 (() => {
@@ -116,8 +117,10 @@
     const st = $("round-status");
     const btn = $("run-round");
     btn.disabled = j.state === "running";
+    const res = j.result || {};
     if (j.state === "running") st.textContent = "A round is running…";
-    else if (j.state === "done") st.textContent = "The last round finished in " + fmt(j.seconds, 1) + " s.";
+    else if (j.state === "done" && res.unchanged) st.textContent = "No round was run: no labels are new since the last round, so it would have changed nothing.";
+    else if (j.state === "done") st.textContent = "Round " + int(res.round) + " finished in " + fmt(j.seconds, 1) + " s. " + (res.headline || "");
     else if (j.state === "failed") st.textContent = "The last round failed: " + j.error;
     else st.textContent = "";
   }
@@ -398,6 +401,54 @@
     await Promise.all(parts.map((f) => f().catch((e) => console.error(e))));
   }
 
+  // askRound shows the settings the round will use (the project's stored
+  // ones, as `loop round` uses) and asks to confirm; with nothing new since
+  // the last round it says so and offers no round.
+  async function askRound() {
+    const box = $("round-confirm");
+    const btn = $("run-round");
+    btn.disabled = true;
+    let s;
+    try {
+      s = await api("GET", "/api/v1/settings");
+    } catch (e) {
+      $("round-status").textContent = "Could not read the settings: " + e.message;
+      btn.disabled = false;
+      return;
+    }
+    clear(box);
+    box.hidden = false;
+    const close = () => { clear(box); box.hidden = true; btn.disabled = false; btn.focus(); };
+    const p = s.pending;
+    if (!p.fresh) {
+      const cancel = el("button", { type: "button", id: "round-close" }, "Close");
+      cancel.addEventListener("click", close);
+      box.append(el("div", { class: "notice", id: "round-nothing" },
+        el("p", {}, "Nothing to run: no labels are new since round " + int(p.round) + ", which used all " + int(p.labels) +
+          " labels and " + int(p.gold) + " gold answers. A round now would change nothing. Add labels first (the labelling page, an import, or `loop labels add`)."),
+        cancel));
+      cancel.focus();
+      return;
+    }
+    const news = p.round === 0 ? "the first round, on " + int(p.labels) + " labels and " + int(p.gold) + " gold answers" :
+      "round " + int(p.round + 1) + ", with " + int(p.new_labels) + (p.new_labels === 1 ? " label" : " labels") + " new since round " + int(p.round) +
+        (p.gold_changed ? " and a changed number of gold answers (" + int(p.gold) + ")" : "");
+    const stored = s.settings.filter((x) => x.source !== "default");
+    const rows = (list) => table(["setting", "value", "from"], list.map((x) => [el("span", { title: x.doc }, x.key), x.value, x.source]), [false, false, false]);
+    const run = el("button", { type: "button", class: "primary", id: "round-go" }, "Run the round");
+    const cancel = el("button", { type: "button", id: "round-cancel" }, "Cancel");
+    run.addEventListener("click", async () => { clear(box); box.hidden = true; await runRound(); });
+    cancel.addEventListener("click", close);
+    const all = el("details", {}, el("summary", {}, "All " + int(s.settings.length) + " settings"), el("div", { class: "tablewrap" }, rows(s.settings)));
+    box.append(el("div", { class: "notice", id: "round-ask" },
+      el("p", {}, "Run " + news + "? It uses the project's stored settings, the same as `loop round`; change them with `loop config DIR set KEY VALUE`."),
+      stored.length ? el("div", { class: "tablewrap", id: "round-settings" }, rows(stored)) :
+        el("p", { id: "round-settings" }, "Every setting has its built-in default."),
+      all,
+      el("div", { class: "actions" }, run, cancel)));
+    run.focus();
+  }
+
   async function runRound() {
     $("run-round").disabled = true;
     $("round-status").textContent = "Starting a round…";
@@ -421,7 +472,7 @@
 
   document.addEventListener("DOMContentLoaded", async () => {
     $("signout").addEventListener("click", signOut);
-    $("run-round").addEventListener("click", runRound);
+    $("run-round").addEventListener("click", askRound);
     $("add-person").addEventListener("submit", addPerson);
     try {
       const s = await session();

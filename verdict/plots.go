@@ -1,0 +1,500 @@
+package verdict
+
+import (
+	"bytes"
+	"fmt"
+	"html/template"
+	"image/color"
+	"math"
+	"strconv"
+	"strings"
+
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+	"gonum.org/v1/plot/vg/vgsvg"
+)
+
+// Our plain palette: dark ink for axes and text, a deep teal for the
+// machine, a brick red for bounds, an ochre for limits and compared
+// curves, a slate for reference lines, a plum for the chosen threshold.
+// All have a contrast ratio above 4.5:1 on white. Plots draw no legend of
+// their own: each figure's key is HTML beside it (figure.Key), so that no
+// legend ever covers data and the key stays readable on a phone.
+var (
+	ink   = color.RGBA{0x1f, 0x23, 0x28, 0xff}
+	teal  = color.RGBA{0x13, 0x5e, 0x66, 0xff}
+	brick = color.RGBA{0xa3, 0x33, 0x1a, 0xff}
+	slate = color.RGBA{0x5a, 0x63, 0x6e, 0xff}
+	ochre = color.RGBA{0x8a, 0x5a, 0x00, 0xff}
+	plum  = color.RGBA{0x6f, 0x3a, 0x8c, 0xff}
+	// pale is the fill of the reliability diagram's count bars.
+	pale = color.RGBA{0x8f, 0xb9, 0xbd, 0xff}
+)
+
+// Line styles, as the key shows them too (CSS border styles).
+const (
+	solid  = "solid"
+	dashed = "dashed"
+	dotted = "dotted"
+)
+
+func dashesOf(style string) []vg.Length {
+	switch style {
+	case dashed:
+		return []vg.Length{vg.Points(6), vg.Points(3)}
+	case dotted:
+		return []vg.Length{vg.Points(1.5), vg.Points(2.5)}
+	}
+	return nil
+}
+
+// keyEntry is one entry of a figure's key: a name and how it is drawn (a
+// line of the given style, a glyph, or a filled bar).
+type keyEntry struct {
+	Name  string
+	Color color.RGBA
+	Line  string // solid, dashed, dotted, or "" for no line
+	Glyph string // "circle", "square", "bar" or ""
+}
+
+func hex(c color.RGBA) string { return fmt.Sprintf("#%02x%02x%02x", c.R, c.G, c.B) }
+
+// Swatch is the entry's sample, drawn with CSS alone.
+func (k keyEntry) Swatch() template.HTML {
+	var b strings.Builder
+	line := "border-top:2px " + k.Line + " " + hex(k.Color)
+	if k.Line == "" {
+		line = "border-top:2px solid transparent"
+	}
+	fmt.Fprintf(&b, `<span class="swatch" style="%s">`, line)
+	switch k.Glyph {
+	case "circle", "square":
+		fmt.Fprintf(&b, `<span class="mark %s" style="background:%s"></span>`, k.Glyph, hex(k.Color))
+	case "bar":
+		fmt.Fprintf(&b, `<span class="mark bar" style="background:%s"></span>`, hex(k.Color))
+	}
+	b.WriteString("</span>")
+	return template.HTML(b.String()) // built from our own constants and colours
+}
+
+// figure is one plot of the report with its caption and key.
+type figure struct {
+	ID      string
+	Caption string
+	SVG     template.HTML
+	Key     []keyEntry
+}
+
+func newPlot(x, y string) *plot.Plot {
+	p := plot.New()
+	p.X.Label.Text = x
+	p.Y.Label.Text = y
+	for _, a := range []*plot.Axis{&p.X, &p.Y} {
+		a.Color = ink
+		a.Label.TextStyle.Color = ink
+		a.Tick.Label.Color = ink
+		a.Tick.Color = ink
+		// Sans-serif text throughout, from the fonts gonum/plot embeds;
+		// sizes that stay legible when a phone scales the figure down.
+		a.Label.TextStyle.Font.Variant = "Sans"
+		a.Label.TextStyle.Font.Size = vg.Points(12)
+		a.Tick.Label.Font.Variant = "Sans"
+		a.Tick.Label.Font.Size = vg.Points(11)
+	}
+	g := plotter.NewGrid()
+	g.Vertical.Color = color.Gray{0xe4}
+	g.Horizontal.Color = color.Gray{0xe4}
+	p.Add(g)
+	return p
+}
+
+// svgOf renders the plots, stacked top to bottom with the given heights
+// and their data areas aligned left and right, as one inline <svg>
+// element (no XML prologue) that scales with the page.
+func svgOf(w vg.Length, plots []*plot.Plot, heights []vg.Length) (template.HTML, error) {
+	var h vg.Length
+	for _, x := range heights {
+		h += x
+	}
+	c := vgsvg.New(w, h)
+	// A margin, so that no glyph's box touches the figure's edge.
+	const m = vg.Length(4)
+	dc := draw.Crop(draw.New(c), m, -m, m, -m)
+	inner := h - 2*m
+	scaled := make([]vg.Length, len(heights))
+	for i, x := range heights {
+		scaled[i] = x * inner / h
+	}
+	heights, h = scaled, inner
+	canvases := make([]draw.Canvas, len(plots))
+	top := h
+	var left, right vg.Length
+	for i, p := range plots {
+		canvases[i] = draw.Crop(dc, 0, 0, top-heights[i], top-h)
+		top -= heights[i]
+		d := p.DataCanvas(canvases[i])
+		left = max(left, d.Min.X-canvases[i].Min.X)
+		right = max(right, canvases[i].Max.X-d.Max.X)
+	}
+	for i, p := range plots {
+		d := p.DataCanvas(canvases[i])
+		cv := draw.Crop(canvases[i], left-(d.Min.X-canvases[i].Min.X), -(right - (canvases[i].Max.X - d.Max.X)), 0, 0)
+		p.Draw(cv)
+	}
+	var buf bytes.Buffer
+	if _, err := c.WriteTo(&buf); err != nil {
+		return "", err
+	}
+	s := buf.String()
+	if i := strings.Index(s, "<svg"); i >= 0 {
+		s = s[i:]
+	}
+	s = strings.Replace(s, "<svg ", `<svg role="img" aria-hidden="true" style="max-width:100%;height:auto" `, 1)
+	// The text was laid out with Liberation Sans; Arimo and Arial have the
+	// same widths, Helvetica nearly.
+	s = strings.ReplaceAll(s, "font-family:Liberation Sans;", "font-family:'Liberation Sans',Arimo,Arial,Helvetica,sans-serif;")
+	return template.HTML(s), nil // generated by vgsvg, which escapes every text it draws
+}
+
+// line returns a line in the given colour, width and style, with its key
+// entry named name.
+func line(xy plotter.XYs, c color.RGBA, width float64, style, name string) (*plotter.Line, keyEntry, error) {
+	l, err := plotter.NewLine(xy)
+	if err != nil {
+		return nil, keyEntry{}, err
+	}
+	l.Color = c
+	l.Width = vg.Points(width)
+	l.Dashes = dashesOf(style)
+	return l, keyEntry{Name: name, Color: c, Line: style}, nil
+}
+
+func points(xy plotter.XYs, c color.RGBA, shape draw.GlyphDrawer) (*plotter.Scatter, error) {
+	s, err := plotter.NewScatter(xy)
+	if err != nil {
+		return nil, err
+	}
+	s.Color = c
+	s.Radius = vg.Points(3)
+	s.Shape = shape
+	return s, nil
+}
+
+// commas writes n with thousands separators.
+func commas(n int) string {
+	s := strconv.Itoa(n)
+	neg := strings.HasPrefix(s, "-")
+	s = strings.TrimPrefix(s, "-")
+	for i := len(s) - 3; i > 0; i -= 3 {
+		s = s[:i] + "," + s[i:]
+	}
+	if neg {
+		return "−" + s
+	}
+	return s
+}
+
+// countTicks ticks an axis that counts (labels, items): whole numbers only,
+// written with thousands separators.
+type countTicks struct{}
+
+func (countTicks) Ticks(lo, hi float64) []plot.Tick {
+	var out []plot.Tick
+	majors := 0
+	for _, t := range (plot.DefaultTicks{}).Ticks(lo, hi) {
+		if t.Label != "" && t.Value == math.Round(t.Value) {
+			t.Label = commas(int(t.Value))
+			majors++
+		} else {
+			t.Label = ""
+		}
+		out = append(out, t)
+	}
+	if majors >= 2 {
+		return out
+	}
+	// A narrow range: every whole number, or every few.
+	step := math.Max(1, math.Ceil((hi-lo)/4))
+	out = out[:0]
+	for v := math.Ceil(lo/step) * step; v <= hi; v += step {
+		out = append(out, plot.Tick{Value: v, Label: commas(int(v))})
+	}
+	return out
+}
+
+// shareTicks ticks an axis of shares, kappas or probabilities: every label
+// with the same number of decimals.
+type shareTicks struct{}
+
+func (shareTicks) Ticks(lo, hi float64) []plot.Tick {
+	ts := (plot.DefaultTicks{}).Ticks(lo, hi)
+	dec := 0
+	for _, t := range ts {
+		if t.Label == "" {
+			continue
+		}
+		// The fewest decimals that write the value exactly (up to
+		// floating-point noise such as 0.15000000000000002).
+		d := 0
+		for ; d < 6; d++ {
+			p := math.Pow(10, float64(d))
+			if math.Abs(math.Round(t.Value*p)/p-t.Value) < 1e-9*math.Max(1, math.Abs(t.Value)) {
+				break
+			}
+		}
+		dec = max(dec, d)
+	}
+	for i, t := range ts {
+		if t.Label != "" {
+			v := t.Value
+			if math.Abs(v) < 1e-12 {
+				v = 0
+			}
+			ts[i].Label = strconv.FormatFloat(v, 'f', dec, 64)
+		}
+	}
+	return ts
+}
+
+// rankTicks ticks the annotator plot's y axis when there are too many
+// names to write: y = n − rank, labelled by rank (1 = highest kappa).
+type rankTicks struct{ n int }
+
+func (r rankTicks) Ticks(lo, hi float64) []plot.Tick {
+	step := 1
+	for _, s := range []int{1, 2, 5, 10, 20, 50, 100, 200, 500, 1000} {
+		step = s
+		if r.n/s <= 8 {
+			break
+		}
+	}
+	out := []plot.Tick{{Value: float64(r.n - 1), Label: "1"}}
+	for rank := step; rank <= r.n; rank += step {
+		if rank > 1 {
+			out = append(out, plot.Tick{Value: float64(r.n - rank), Label: strconv.Itoa(rank)})
+		}
+	}
+	return out
+}
+
+func (r *Report) plotCurve() (figure, error) {
+	f := figure{ID: "fig-curve", Caption: "Error on the fixed evaluation set against the labels spent, one point per round with new labels."}
+	p := newPlot("labels spent", "error on the evaluation set")
+	p.X.Tick.Marker = countTicks{}
+	p.Y.Tick.Marker = shareTicks{}
+	xy := func(ps []CurvePoint) plotter.XYs {
+		out := make(plotter.XYs, len(ps))
+		for i, q := range ps {
+			out[i] = plotter.XY{X: float64(q.Labels), Y: q.Error}
+		}
+		return out
+	}
+	lo, hi := math.Inf(1), math.Inf(-1)
+	for _, q := range r.Curve {
+		lo, hi = math.Min(lo, float64(q.Labels)), math.Max(hi, float64(q.Labels))
+	}
+	l, s, err := plotter.NewLinePoints(xy(r.Curve))
+	if err != nil {
+		return f, err
+	}
+	l.Color, s.Color, s.Shape = teal, teal, draw.CircleGlyph{}
+	l.Width = vg.Points(1.5)
+	p.Add(l, s)
+	f.Key = append(f.Key, keyEntry{Name: "this project", Color: teal, Line: solid, Glyph: "circle"})
+	if r.Compare != nil && len(r.Compare.Points) > 0 {
+		l2, s2, err := plotter.NewLinePoints(xy(r.Compare.Points))
+		if err != nil {
+			return f, err
+		}
+		l2.Color, s2.Color, s2.Shape = ochre, ochre, draw.BoxGlyph{}
+		l2.Dashes = dashesOf(dashed)
+		p.Add(l2, s2)
+		f.Key = append(f.Key, keyEntry{Name: r.Compare.Name, Color: ochre, Line: dashed, Glyph: "square"})
+		for _, q := range r.Compare.Points {
+			lo, hi = math.Min(lo, float64(q.Labels)), math.Max(hi, float64(q.Labels))
+		}
+	}
+	if fit := r.Fit; fit != nil && fit.Fitted {
+		xmax := math.Max(hi, float64(fit.LabelsAt))
+		var fx plotter.XYs
+		for i := 0; i <= 100; i++ {
+			x := lo + (xmax-lo)*float64(i)/100
+			fx = append(fx, plotter.XY{X: x, Y: fit.Eval(x)})
+		}
+		fl, k, err := line(fx, slate, 1, solid, fmt.Sprintf("fitted inverse power law %.3g·n^−%.3g + %.3g", fit.A, fit.B, fit.C))
+		if err != nil {
+			return f, err
+		}
+		p.Add(fl)
+		f.Key = append(f.Key, k)
+		tl, k, err := line(plotter.XYs{{X: lo, Y: fit.Target}, {X: xmax, Y: fit.Target}}, brick, 1.2, dashed, "target error "+pct(fit.Target))
+		if err != nil {
+			return f, err
+		}
+		p.Add(tl)
+		f.Key = append(f.Key, k)
+	}
+	p.Y.Min = 0
+	f.SVG, err = svgOf(14*vg.Centimeter, []*plot.Plot{p}, []vg.Length{9 * vg.Centimeter})
+	return f, err
+}
+
+func (r *Report) plotRisk() (figure, error) {
+	f := figure{ID: "fig-risk", Caption: "Disagreement with the reference among the held-out items at or above each threshold, against the share of them it covers."}
+	th := r.Threshold
+	p := newPlot("coverage (share of held-out items at or above the threshold)", "disagreement")
+	p.X.Tick.Marker = shareTicks{}
+	p.Y.Tick.Marker = shareTicks{}
+	var risk, upper plotter.XYs
+	top := 3 * th.MaxError
+	for _, q := range r.CoverageRisk {
+		risk = append(risk, plotter.XY{X: q.Coverage, Y: q.Risk})
+		top = math.Max(top, q.Risk)
+		// The bound is drawn where thresholds may be tested; below the
+		// minimum count it is near 1 and says nothing.
+		if q.N >= th.MinCount {
+			upper = append(upper, plotter.XY{X: q.Coverage, Y: q.Upper})
+			top = math.Max(top, q.Upper)
+		}
+	}
+	top = math.Min(1, 1.05*top)
+	lr, k, err := line(risk, teal, 1.5, solid, "observed disagreement")
+	if err != nil {
+		return f, err
+	}
+	p.Add(lr)
+	f.Key = append(f.Key, k)
+	if len(upper) > 0 {
+		lu, k, err := line(upper, brick, 1, solid, fmt.Sprintf("%s upper bound", pct(th.Level)))
+		if err != nil {
+			return f, err
+		}
+		p.Add(lu)
+		f.Key = append(f.Key, k)
+	}
+	lm, k, err := line(plotter.XYs{{X: 0, Y: th.MaxError}, {X: 1, Y: th.MaxError}}, ochre, 1.5, dashed, "max-error "+pct(th.MaxError))
+	if err != nil {
+		return f, err
+	}
+	p.Add(lm)
+	f.Key = append(f.Key, k)
+	if th.Found {
+		lt, k, err := line(plotter.XYs{{X: th.Coverage, Y: 0}, {X: th.Coverage, Y: top}}, plum, 1.8, dotted,
+			fmt.Sprintf("chosen threshold %.3g (covers %s)", th.Threshold, pct(th.Coverage)))
+		if err != nil {
+			return f, err
+		}
+		p.Add(lt)
+		f.Key = append(f.Key, k)
+	}
+	p.X.Min, p.X.Max = 0, 1
+	p.Y.Min, p.Y.Max = 0, top
+	f.SVG, err = svgOf(14*vg.Centimeter, []*plot.Plot{p}, []vg.Length{9 * vg.Centimeter})
+	return f, err
+}
+
+func (r *Report) plotReliability() (figure, error) {
+	f := figure{ID: "fig-reliability", Caption: fmt.Sprintf("Share correct against mean confidence in each of %d equal-width confidence bins (above) and the held-out items in each bin (below); ECE %.3f.",
+		len(r.Calibration.Bins), r.Calibration.ECE)}
+	p := newPlot("mean confidence in bin", "share correct in bin")
+	p.X.Tick.Marker = shareTicks{}
+	p.Y.Tick.Marker = shareTicks{}
+	diag, k, err := line(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 1}}, slate, 1, dashed, "perfect calibration")
+	if err != nil {
+		return f, err
+	}
+	p.Add(diag)
+	f.Key = append(f.Key, k)
+	var xy plotter.XYs
+	most := 0
+	for _, b := range r.Calibration.Bins {
+		if b.N > 0 {
+			xy = append(xy, plotter.XY{X: b.Confidence, Y: b.Accuracy})
+		}
+		most = max(most, b.N)
+	}
+	if len(xy) > 0 {
+		l, s, err := plotter.NewLinePoints(xy)
+		if err != nil {
+			return f, err
+		}
+		l.Color, s.Color, s.Shape = teal, teal, draw.CircleGlyph{}
+		l.Width = vg.Points(1.5)
+		p.Add(l, s)
+		f.Key = append(f.Key, keyEntry{Name: "machine", Color: teal, Line: solid, Glyph: "circle"})
+	}
+	p.X.Min, p.X.Max, p.Y.Min, p.Y.Max = 0, 1, 0, 1
+
+	h := newPlot("", "items in bin")
+	h.X.Tick.Marker = shareTicks{}
+	h.Y.Tick.Marker = countTicks{}
+	for _, b := range r.Calibration.Bins {
+		if b.N == 0 {
+			continue
+		}
+		bar, err := plotter.NewPolygon(plotter.XYs{{X: b.Lo, Y: 0}, {X: b.Hi, Y: 0}, {X: b.Hi, Y: float64(b.N)}, {X: b.Lo, Y: float64(b.N)}})
+		if err != nil {
+			return f, err
+		}
+		bar.Color = pale
+		bar.LineStyle.Color = color.White
+		bar.LineStyle.Width = vg.Points(0.5)
+		h.Add(bar)
+	}
+	f.Key = append(f.Key, keyEntry{Name: "items in bin", Color: pale, Glyph: "bar"})
+	h.X.Min, h.X.Max, h.Y.Min, h.Y.Max = 0, 1, 0, math.Max(1, float64(most))
+	f.SVG, err = svgOf(12*vg.Centimeter, []*plot.Plot{p, h}, []vg.Length{10.5 * vg.Centimeter, 4.5 * vg.Centimeter})
+	return f, err
+}
+
+func (r *Report) plotAnnotators() (figure, error) {
+	c := r.Ceiling
+	f := figure{ID: "fig-annotators", Caption: "Each annotator's Cohen's kappa against the consensus without them, highest at the top, beside the median annotator's and the machine's."}
+	p := newPlot("Cohen's kappa against the leave-one-out consensus", "")
+	p.X.Tick.Marker = shareTicks{}
+	n := len(c.Annotators)
+	var xy plotter.XYs
+	names := make([]string, n)
+	for i, a := range c.Annotators {
+		// Highest kappa at the top.
+		xy = append(xy, plotter.XY{X: a.Kappa, Y: float64(n - 1 - i)})
+		names[n-1-i] = a.ID
+	}
+	s, err := points(xy, teal, draw.CircleGlyph{})
+	if err != nil {
+		return f, err
+	}
+	p.Add(s)
+	f.Key = append(f.Key, keyEntry{Name: "annotator", Color: teal, Glyph: "circle"})
+	vline := func(x float64, col color.RGBA, style, name string) error {
+		l, k, err := line(plotter.XYs{{X: x, Y: -0.5}, {X: x, Y: float64(n) - 0.5}}, col, 1.5, style, name)
+		if err != nil {
+			return err
+		}
+		p.Add(l)
+		f.Key = append(f.Key, k)
+		return nil
+	}
+	if err := vline(c.Median, slate, dashed, fmt.Sprintf("median annotator %.3f", c.Median)); err != nil {
+		return f, err
+	}
+	if err := vline(c.MachineKappa, brick, solid, fmt.Sprintf("machine %.3f", c.MachineKappa)); err != nil {
+		return f, err
+	}
+	if n <= 40 {
+		p.NominalY(names...)
+		p.Y.Label.Text = "annotator (highest kappa at the top)"
+	} else {
+		p.Y.Tick.Marker = rankTicks{n}
+		p.Y.Label.Text = "annotators ranked by kappa (1 = highest)"
+	}
+	// A y axis: the line NominalY leaves out, and the label.
+	p.Y.Width = vg.Points(0.5)
+	p.Y.Min, p.Y.Max = -0.5, float64(n)-0.5
+	p.X.Max = 1
+	h := vg.Length(math.Max(8, math.Min(30, 4+0.45*float64(n)))) * vg.Centimeter
+	f.SVG, err = svgOf(14*vg.Centimeter, []*plot.Plot{p}, []vg.Length{h})
+	return f, err
+}
