@@ -16,11 +16,11 @@ import (
 var codingsTmpl = template.Must(template.New("codings").Parse(`
 <h2>The crowd against independent codings</h2>
 <p>The machine is measured against the crowd's consensus. How good that consensus is shows against codings made apart from it: reference codings by experts or an earlier study (kept apart from gold; never used for training, cleaning or this verdict) and the crowd's own later waves (test–retest). Percentile bootstrap intervals over items (item level) and parents (parent level); <code>loop compare</code> prints the same.</p>
-<table>
+<div class="wide"><table>
 <tr><th>compared</th><th>level</th><th>n</th><th>accuracy</th><th>Cohen's kappa</th><th>Pearson's r</th><th>mean abs. difference</th></tr>
 <tr><th>machine vs crowd consensus (held-out reference standard)</th><td>items</td><td>{{.Held.N}}</td><td>{{.HeldAcc}}</td><td>{{.HeldKappa}}</td><td></td><td></td></tr>
 {{range .Rows}}<tr><th>{{.Name}}</th><td>{{.Level}}</td><td>{{.N}}</td><td>{{.Acc}}</td><td>{{.Kappa}}</td><td>{{.R}}</td><td>{{.MAD}}</td></tr>
-{{end}}</table>
+{{end}}</table></div>
 {{range .Notes}}<p class="muted">{{.}}</p>{{end}}
 <details><summary>Every comparison: confusion matrices, roll-ups and scatter plots</summary>
 {{.Detail}}
