@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 
 	"handoff"
@@ -342,5 +343,52 @@ func TestExpertValidity(t *testing.T) {
 	m := findComparison(t, rep, "machine", "machine", "experts")
 	if m.Items != nil || m.ItemsNote == "" {
 		t.Errorf("machine comparison without a round: %+v", m)
+	}
+}
+
+// Parent scores from an expert who knows each report's true mean position:
+// the crowd's roll-up follows them closely, over every item of the scored
+// parents, and a score for a parent nobody labelled is left out with a
+// note.
+func TestParentScoreReference(t *testing.T) {
+	const parents, perParent = 40, 8
+	sc := newWaveScenario(t, parents, perParent, 8)
+	var ls []handoff.Label
+	for _, l := range sc.wave(t, 1, 0, 88) {
+		if l.Item[:3] != "d39" { // report d39 gets no labels
+			ls = append(ls, l)
+		}
+	}
+	st := sc.store(t, ls)
+	ref := handoff.Reference{Name: "panel"}
+	for g := range parents {
+		sum := 0
+		for j := range perParent {
+			sum += sc.truth[g*perParent+j] + 1
+		}
+		ref.Parents = append(ref.Parents, handoff.ReferenceScore{Parent: fmt.Sprintf("d%02d", g), Value: float64(sum) / perParent})
+	}
+	if err := st.PutReference(ref, false, "test"); err != nil {
+		t.Fatal(err)
+	}
+	rep, err := Compare(st, CompareConfig{Options: compare.Options{Bootstrap: compare.Bootstrap{Reps: 500, Seed: 1}}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	c := findComparison(t, rep, "reference", "crowd consensus", "panel")
+	p := positionOf(t, c)
+	t.Logf("crowd vs true positions: %d parents, r %s, MAD %s; notes %q", p.N, p.Pearson, p.MAD, c.Notes)
+	if p.N != parents-1 || p.Pearson.Value < 0.95 || p.MAD.Value > 0.2 || c.Items != nil {
+		t.Errorf("parents %+v", p)
+	}
+	wantNotes := []string{"1 parent scores left out", fmt.Sprintf("%d of the %d items", (parents-1)*perParent, parents*perParent)}
+	for _, w := range wantNotes {
+		found := false
+		for _, n := range c.Notes {
+			found = found || strings.Contains(n, w)
+		}
+		if !found {
+			t.Errorf("notes %q lack %q", c.Notes, w)
+		}
 	}
 }
