@@ -15,10 +15,12 @@
 //
 // Conventions (as gonum's stat): a weights slice w == nil means all ones;
 // w[i] is how many times pair i counts (a bootstrap resample passes its
-// multiplicities), so every statistic on weights equals the statistic on
-// the data with pair i repeated w[i] times. Mismatched lengths are
-// programmer errors and panic; data for which a figure is undefined return
-// an error that says why.
+// multiplicities; whole numbers for kappa and alpha), so every statistic on
+// weights equals the statistic on the data with pair i repeated w[i] times.
+// Cohen's kappa and Krippendorff's alpha are the module's one copy in
+// package crowd; Pearson's r is gonum's. Mismatched lengths are programmer
+// errors and panic; data for which a figure is undefined return an error
+// that says why.
 package compare
 
 import (
@@ -26,8 +28,11 @@ import (
 	"fmt"
 	"math"
 	"sort"
+	"strings"
 
 	"gonum.org/v1/gonum/stat"
+
+	"handoff/crowd"
 )
 
 // Metric is the difference function of Krippendorff's alpha.
@@ -94,42 +99,51 @@ func Accuracy(x, y []int, w []float64) (float64, error) {
 	return agree / n, nil
 }
 
-// CohenKappa is Cohen's (1960) kappa of two codings over k classes:
+// CohenKappa is Cohen's (1960) kappa of two codings over k classes,
 //
-//	κ = (p_o − p_e) / (1 − p_e),  p_o = Σ_i w_i [x_i = y_i] / W,
-//	p_e = Σ_c (Σ_i w_i [x_i = c] / W)(Σ_i w_i [y_i = c] / W),
+//	κ = (p_o − p_e) / (1 − p_e),
 //
-// with W = Σ_i w_i over the pairs both coded (x_i, y_i ≥ 0). No pair, or
-// p_e = 1 (both sides gave one and the same class throughout), is an error.
-// A class index ≥ k panics.
+// p_o the share of pairs on which they agree and p_e = Σ_c p_xc·p_yc from
+// their class shares, over the pairs both coded (x_i, y_i ≥ 0), each pair
+// counted w_i times. It is the module's one Cohen's kappa,
+// crowd.CohenKappaCounts, on the weighted confusion table: no pair, or p_e =
+// 1 (both sides gave one and the same class throughout), is an error. The
+// weights must be whole numbers (multiplicities); a class index ≥ k panics.
 func CohenKappa(x, y []int, k int, w []float64) (float64, error) {
 	checkLen("CohenKappa", len(x), len(y), w)
-	px := make([]float64, k)
-	py := make([]float64, k)
-	var n, agree float64
+	c := make([][]int, k)
+	for a := range c {
+		c[a] = make([]int, k)
+	}
+	n := 0
 	for i := range x {
-		if x[i] < 0 || y[i] < 0 {
-			continue
-		}
-		wi := weight(w, i)
-		n += wi
-		px[x[i]] += wi
-		py[y[i]] += wi
-		if x[i] == y[i] {
-			agree += wi
+		if x[i] >= 0 && y[i] >= 0 {
+			m := multiplicity(w, i)
+			c[x[i]][y[i]] += m
+			n += m
 		}
 	}
 	if n == 0 {
 		return 0, undefined("no item is coded by both sides")
 	}
-	var pe float64
-	for c := range k {
-		pe += px[c] / n * py[c] / n
-	}
-	if pe >= 1-1e-12 {
+	kp, err := crowd.CohenKappaCounts(c)
+	if err != nil {
 		return 0, undefined("both sides gave one and the same class to every item")
 	}
-	return (agree/n - pe) / (1 - pe), nil
+	return kp.Kappa, nil
+}
+
+// multiplicity is w[i] as a whole number (1 when w is nil); a fractional
+// weight panics.
+func multiplicity(w []float64, i int) int {
+	if w == nil {
+		return 1
+	}
+	m := int(w[i])
+	if float64(m) != w[i] || m < 0 {
+		panic(fmt.Sprintf("compare: weight %v is not a whole number ≥ 0", w[i]))
+	}
+	return m
 }
 
 // Confusion is the confusion matrix of two codings: m[a][b] is the number
@@ -150,116 +164,70 @@ func Confusion(x, y []int, k int) [][]int {
 
 // KrippendorffAlpha is Krippendorff's alpha of reliability data: units[u]
 // holds the values (class indices 0 … k−1) the coders gave unit u; a
-// missing value is simply absent. Units with fewer than two values are not
-// pairable and are left out. With the coincidences
-//
-//	o_ck = Σ_u w_u Σ_{i≠j} [v_ui = c][v_uj = k] / (m_u − 1),
-//
+// missing value is simply absent; unit u counts w_u times (whole numbers).
+// Units with fewer than two values are not pairable and are left out. With
+// the coincidences o_ck = Σ_u Σ_{i≠j} [v_ui = c][v_uj = k] / (m_u − 1),
 // n_c = Σ_k o_ck and n = Σ_c n_c,
 //
 //	α = 1 − D_o/D_e = 1 − (n − 1) Σ_{c,k} o_ck δ²_ck / Σ_{c,k} n_c n_k δ²_ck
 //
-// (Krippendorff 2011). Fewer than two pairable values, or no expected
-// disagreement (every value alike), is an error.
+// (Krippendorff 2011), computed by the module's one alpha,
+// crowd.KrippendorffAlpha, with its nominal or ordinal metric. Fewer than
+// two pairable values, or no expected disagreement (every value alike), is
+// an error.
 func KrippendorffAlpha(units [][]int, k int, m Metric, w []float64) (float64, error) {
 	if w != nil && len(w) != len(units) {
 		panic(fmt.Sprintf("compare: KrippendorffAlpha: %d weights for %d units", len(w), len(units)))
 	}
-	o := make([]float64, k*k)
-	cnt := make([]float64, k)
+	counts := make([]int, 0, len(units)*k)
 	for u, vals := range units {
-		if len(vals) < 2 {
-			continue
-		}
-		wu := weight(w, u)
-		if wu == 0 {
-			continue
-		}
-		clear(cnt)
+		row := make([]int, k)
 		for _, v := range vals {
-			cnt[v]++
+			row[v]++
 		}
-		f := wu / float64(len(vals)-1)
-		for c, a := range cnt {
-			if a == 0 {
-				continue
-			}
-			for d, b := range cnt {
-				if b == 0 {
-					continue
-				}
-				x := a * b
-				if c == d {
-					x -= a
-				}
-				o[c*k+d] += f * x
-			}
+		for range multiplicity(w, u) {
+			counts = append(counts, row...)
 		}
 	}
-	return alphaOf(o, k, m)
+	return alphaOf(counts, k, m)
 }
 
 // alphaPairs is KrippendorffAlpha for two codings (units of two values,
-// pairs with a missing side left out), without building the units.
+// pairs with a missing side left out).
 func alphaPairs(x, y []int, k int, m Metric, w []float64) (float64, error) {
-	o := make([]float64, k*k)
+	counts := make([]int, 0, len(x)*k)
+	row := make([]int, k)
 	for i := range x {
 		if x[i] < 0 || y[i] < 0 {
 			continue
 		}
-		wi := weight(w, i)
-		o[x[i]*k+y[i]] += wi
-		o[y[i]*k+x[i]] += wi
+		clear(row)
+		row[x[i]]++
+		row[y[i]]++
+		for range multiplicity(w, i) {
+			counts = append(counts, row...)
+		}
 	}
-	return alphaOf(o, k, m)
+	return alphaOf(counts, k, m)
 }
 
-// alphaOf is α from a k×k coincidence matrix.
-func alphaOf(o []float64, k int, m Metric) (float64, error) {
-	nc := make([]float64, k)
-	var n float64
-	for c := range k {
-		for d := range k {
-			nc[c] += o[c*k+d]
-		}
-		n += nc[c]
-	}
-	if n < 2 {
-		return 0, undefined("fewer than two pairable values")
-	}
-	delta := func(c, d int) float64 {
-		switch m {
-		case Nominal:
-			if c == d {
-				return 0
-			}
-			return 1
-		case Ordinal:
-			lo, hi := min(c, d), max(c, d)
-			var s float64
-			for g := lo; g <= hi; g++ {
-				s += nc[g]
-			}
-			s -= (nc[lo] + nc[hi]) / 2
-			return s * s
-		}
+func alphaOf(counts []int, k int, m Metric) (float64, error) {
+	metric := crowd.MetricNominal
+	switch m {
+	case Nominal:
+	case Ordinal:
+		metric = crowd.MetricOrdinal
+	default:
 		panic(fmt.Sprintf("compare: unknown metric %q", m))
 	}
-	var do, de float64
-	for c := range k {
-		for d := range k {
-			if c == d {
-				continue
-			}
-			dl := delta(c, d)
-			do += o[c*k+d] * dl
-			de += nc[c] * nc[d] * dl
+	a, err := crowd.KrippendorffAlpha(counts, k, nil, metric)
+	if err != nil {
+		if strings.Contains(err.Error(), "fewer than two") {
+			return 0, undefined("fewer than two pairable values")
 		}
-	}
-	if de <= 0 {
 		return 0, undefined("every value is the same class, so no disagreement is expected")
 	}
-	return 1 - (n-1)*do/de, nil
+	return a, nil
 }
 
 // Pearson is Pearson's product-moment correlation of x and y with weights

@@ -6,6 +6,8 @@ import (
 	"sort"
 	"strings"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/compare"
 	"handoff/crowd"
@@ -194,7 +196,7 @@ func (c *comparer) crowdClasses(cr *consensusResult) ([]int, int) {
 				gold++
 			}
 		case cr.nlabels[i] > 0:
-			cls[i] = argmax(cr.posterior[i*c.K : (i+1)*c.K])
+			cls[i] = floats.MaxIdx(cr.posterior[i*c.K : (i+1)*c.K])
 		}
 	}
 	return cls, gold
@@ -215,7 +217,7 @@ func (c *comparer) machineClasses(sn *store.Snapshot) ([]int, string, string) {
 	for i := range cls {
 		cls[i] = -1
 		if r := sc.row(i); r != nil && len(r) == c.K {
-			cls[i] = argmax(r)
+			cls[i] = floats.MaxIdx(r)
 		}
 	}
 	return cls, fmt.Sprintf("machine (round %d)", sc.Round),

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"io"
 	"strconv"
 	"strings"
 
@@ -73,15 +74,7 @@ consensus is the gold answer). Nothing is written to the project.`,
 				return err
 			}
 			if html != "" {
-				w, done, err := openOutput(cmd, html)
-				if err != nil {
-					return err
-				}
-				err = rep.WriteHTML(w, "Handoff comparisons — "+args[0])
-				if derr := done(err == nil); err == nil {
-					err = derr
-				}
-				if err != nil {
+				if err := writeOutput(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff comparisons — "+args[0]) }); err != nil {
 					return err
 				}
 			}

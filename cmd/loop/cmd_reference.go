@@ -3,6 +3,7 @@ package main
 import (
 	"errors"
 	"fmt"
+	"os"
 	"path/filepath"
 	"strings"
 	"text/tabwriter"
@@ -63,13 +64,12 @@ parent the parent of some item.`,
 				return err
 			}
 			defer s.Close()
-			r, bar, err := progressFile(cmd, path, filepath.Base(path))
+			r, err := os.Open(path)
 			if err != nil {
 				return err
 			}
 			ref, locs, err := ingest.ReadReference(r, path, ff, name, s.Codebook())
 			r.Close()
-			bar.Finish()
 			if err != nil {
 				return err
 			}

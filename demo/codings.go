@@ -1,8 +1,9 @@
-package main
+package demo
 
 import (
 	"encoding/csv"
 	"fmt"
+	"io"
 	"math/rand/v2"
 	"os"
 	"path/filepath"
@@ -10,17 +11,16 @@ import (
 	"sort"
 	"strconv"
 
-	"github.com/spf13/cobra"
-
 	"handoff"
 	"handoff/compare"
 	"handoff/ingest"
+	"handoff/internal/atomicfile"
 	"handoff/round"
 	"handoff/sim"
 	"handoff/store"
 )
 
-// demoCodings gives the demo's reports project what a team brings to show
+// codings gives the demo's reports project what a team brings to show
 // that its crowd can be trusted (loop compare), all invented:
 //
 //   - experts-2019.csv, imported as reference "experts-2019": for 60
@@ -34,7 +34,8 @@ import (
 //     panel's labels for 150 crowd-labelled sentences, 5% of them wrong.
 //
 // The reports project only; other projects are left as they are.
-func demoCodings(cmd *cobra.Command, st *store.Store, d *sim.Demo, dir string, pr demoProject, answerRound *int, src string) error {
+func (r *runner) codings(st *store.Store, dir string, pr project, src string) error {
+	d := r.d
 	if pr.kind != handoff.KindText {
 		return nil
 	}
@@ -120,8 +121,8 @@ func demoCodings(cmd *cobra.Command, st *store.Store, d *sim.Demo, dir string, p
 	if err != nil {
 		return err
 	}
-	ls, err := d.Answer(again, 5, *answerRound)
-	*answerRound++
+	ls, err := d.Answer(again, 5, r.answer)
+	r.answer++
 	if err != nil {
 		return err
 	}
@@ -155,14 +156,14 @@ func demoCodings(cmd *cobra.Command, st *store.Store, d *sim.Demo, dir string, p
 			waves = fmt.Sprintf("wave 1 vs 2: Cohen's kappa %s over %d sentences", c.Items.Kappa, c.Items.N)
 		}
 	}
-	outf(cmd, "  expert coding of %d reports (experts-2019) and a second crowd wave of %d labels on %d of their sentences: %s; %s\n",
+	r.printf("  expert coding of %d reports (experts-2019) and a second crowd wave of %d labels on %d of their sentences: %s; %s\n",
 		len(parents), len(ls), len(again), expert, waves)
 	return nil
 }
 
 // writeCSV writes a small CSV file through a temporary file.
 func writeCSV(path string, header []string, rows [][]string) error {
-	return writeFileAtomic(path, func(f *os.File) error {
+	return atomicfile.Write(path, 0o666, func(f io.Writer) error {
 		w := csv.NewWriter(f)
 		w.Write(header)
 		w.WriteAll(rows)
