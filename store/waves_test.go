@@ -18,11 +18,11 @@ import (
 // label in wave 1, and take labels of a new wave beside the old ones.
 func TestOpensFileWrittenBeforeWaves(t *testing.T) {
 	dir := t.TempDir()
-	b, err := os.ReadFile(filepath.Join("testdata", "before-waves", FileName))
+	b, err := os.ReadFile(filepath.Join("testdata", "before-waves", fileName))
 	if err != nil {
 		t.Fatal(err)
 	}
-	if err := os.WriteFile(filepath.Join(dir, FileName), b, 0o644); err != nil {
+	if err := os.WriteFile(Path(dir), b, 0o644); err != nil {
 		t.Fatal(err)
 	}
 	s, err := Open(dir)
