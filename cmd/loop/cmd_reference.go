@@ -7,6 +7,7 @@ import (
 	"path/filepath"
 	"strings"
 	"text/tabwriter"
+	"time"
 
 	"github.com/spf13/cobra"
 
@@ -153,5 +154,5 @@ func stamp(r handoff.Reference) string {
 	if r.Added.IsZero() {
 		return ""
 	}
-	return r.Added.UTC().Format("2006-01-02 15:04 UTC")
+	return r.Added.UTC().Format(time.RFC3339)
 }
