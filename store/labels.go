@@ -114,11 +114,11 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 				return false, dataErr("item", "unknown item %q (add it with `loop items add` first)", l.Item)
 			}
 			r.Item = uint32(binary.BigEndian.Uint64(k))
-			ci, ok := s.cbIx[l.Class]
-			if !ok {
-				return false, dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
+			c, err := s.classCode(l.Question, l.Class)
+			if err != nil {
+				return false, err
 			}
-			r.Class = uint16(ci)
+			r.Class = c
 			if l.Annotator == "" {
 				return false, dataErr("annotator", "empty annotator id")
 			}
@@ -274,7 +274,9 @@ func (s *Store) EachLabel(fn func(r *LabelRecord) error) error {
 // LabelTable is every label as parallel arrays (column i is label i, in
 // order of arrival), with the names that the numbers stand for. Item[i]
 // indexes ItemIDs, Annotator[i] indexes AnnotatorIDs, Class[i] indexes
-// Classes (codebook order). Time[i] is Unix nanoseconds (0 unknown) and
+// Classes (codebook order) in a one-question codebook; in a question tree
+// it is the stored question<<8 | class (use Question, ClassIn, ForQuestion;
+// Classes are the first question's). Time[i] is Unix nanoseconds (0 unknown) and
 // Seconds[i] the seconds spent (0 unknown); both are nil unless asked for.
 // Memory: 10 bytes per label (22 with times), so 40 million labels take
 // 400 MB (880 MB), plus the id strings.
@@ -288,6 +290,8 @@ type LabelTable struct {
 	Class     []uint16
 	Time      []int64
 	Seconds   []float32
+
+	tree bool // Class holds question<<8 | class (see Question, ClassIn)
 }
 
 // Len returns the number of labels.
@@ -310,7 +314,7 @@ func (s *Store) LabelTable(withTimes bool) (*LabelTable, error) {
 
 // labelTable reads the label table inside tx.
 func (s *Store) labelTable(tx *bolt.Tx, withTimes bool) (*LabelTable, error) {
-	t := &LabelTable{Classes: s.cb.Keys()}
+	t := &LabelTable{Classes: s.cb.Keys(), tree: s.cb.Tree()}
 	t.ItemIDs = itemIDs(tx)
 	as := make([]string, tx.Bucket(bAnnotators).Sequence())
 	if err := tx.Bucket(bAnnotatorIDs).ForEach(func(k, v []byte) error {
@@ -365,10 +369,11 @@ func (s *Store) toLabel(tx *bolt.Tx, r *LabelRecord, items, anns map[uint32]stri
 		an = a.ID
 		anns[r.Annotator] = an
 	}
-	if int(r.Class) >= len(s.cb.Classes) {
-		return handoff.Label{}, errBadLabel
+	q, class, err := s.classOf(r.Class)
+	if err != nil {
+		return handoff.Label{}, err
 	}
-	l := handoff.Label{Item: id, Annotator: an, Class: s.cb.Classes[r.Class].Key, Seconds: r.Seconds}
+	l := handoff.Label{Item: id, Annotator: an, Question: q, Class: class, Seconds: r.Seconds}
 	if r.Time != 0 {
 		l.Time = time.Unix(0, r.Time).UTC()
 	}
