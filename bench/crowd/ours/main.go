@@ -1,6 +1,13 @@
-// Command ours times crowd.DawidSkene on the file written by ../gen and
-// prints one JSON line: seconds per EM iteration, peak RSS, and the accuracy
-// of Dawid–Skene and of majority vote against the generated truth.
+// Command ours times our consensus on the file written by ../gen and prints
+// one JSON line. With -method auto (the default, as in the tool) it first
+// runs crowd.Auto as the tool does (the model choice on a sample of items,
+// then the chosen model to convergence) and times the chosen model alone
+// with the same options: the difference is the time the choice took. Then
+// it times the model used (for auto: the one chosen) per EM iteration: one
+// run of 1 iteration and one of -iters+1 iterations, no early stop; the
+// difference over -iters is the time of an iteration without setup. Also:
+// peak RSS, the accuracy of the model and of majority vote against the
+// generated truth.
 package main
 
 import (
@@ -21,9 +28,11 @@ import (
 
 func main() {
 	in := flag.String("i", "/tmp/crowd-bench.bin", "input file")
-	iters := flag.Int("iters", 10, "EM iterations to run (no early stop)")
+	iters := flag.Int("iters", 10, "EM iterations to time (no early stop)")
+	skip := flag.Int("skip", 10, "EM iterations run before the timed ones (at least the hierarchical model's warm-up)")
 	workers := flag.Int("workers", 0, "EM goroutines (0: the package default)")
-	prof := flag.String("cpuprofile", "", "write a CPU profile of the EM run to this file")
+	prof := flag.String("cpuprofile", "", "write a CPU profile of the timed EM runs to this file")
+	method := flag.String("method", crowd.MethodAuto, "consensus method: auto (the tool's default), hierarchical, dawid-skene, one-coin or majority")
 	flag.Parse()
 	f, err := os.Open(*in)
 	if err != nil {
@@ -54,50 +63,89 @@ func main() {
 		}
 		pprof.StartCPUProfile(pf)
 	}
-	// A one-iteration run first: its time (input checks, sorting the labels
-	// into cache blocks, the initial M-step, one iteration, the final E-step)
-	// subtracted from the full run's leaves the time of the other iterations,
-	// measured the way the peer's is (setup excluded).
-	c1, t1 := cpuSeconds(), time.Now()
-	if _, err := crowd.DawidSkene(l, crowd.Options{MaxIter: 1, Tol: -1, Workers: *workers}); err != nil {
-		fail(err)
+	out := map[string]any{"tool": "ours", "labels": n, "items": ni, "annotators": na, "classes": k,
+		"iterations": *iters, "gomaxprocs": runtime.GOMAXPROCS(0), "method": *method}
+	model := *method
+	if *method == crowd.MethodAuto {
+		opts := crowd.Options{Seed: 1, Workers: *workers}
+		t0 := time.Now()
+		r, err := crowd.Auto(l, opts)
+		if err != nil {
+			fail(err)
+		}
+		all := time.Since(t0).Seconds()
+		model = r.Choice.Chosen
+		runtime.GC()
+		t1 := time.Now()
+		rf, err := crowd.Combine(model, l, opts)
+		if err != nil {
+			fail(err)
+		}
+		fit := time.Since(t1).Seconds()
+		same := 0
+		for i := range r.Class {
+			if r.Class[i] == rf.Class[i] {
+				same++
+			}
+		}
+		out["auto"] = map[string]any{"seconds": all, "seconds_fit": fit, "seconds_choice": all - fit,
+			"chosen": model, "reason": r.Choice.Reason, "candidates": r.Choice.Candidates,
+			"sample_items": r.Choice.SampleItems, "held_out": r.Choice.HeldOut, "warning": r.Choice.Warning,
+			"iterations": r.Iterations, "converged": r.Converged, "accuracy": accuracy(r.Class, truth),
+			"same_classes_as_fit": float64(same) / float64(len(r.Class)), "log_likelihood": r.LogLik}
+		r, rf = nil, nil
+		runtime.GC()
 	}
-	el1, cpuOne := time.Since(t1).Seconds(), cpuSeconds()-c1
-	runtime.GC()
-	cpu0 := cpuSeconds()
-	t0 := time.Now()
-	r, err := crowd.DawidSkene(l, crowd.Options{MaxIter: *iters + 1, Tol: -1, Workers: *workers})
+	out["model"] = model
+	if model != crowd.MethodMajority {
+		// A -skip-iteration run first: its time (input checks, sorting the
+		// labels into cache blocks, the initial M-step, the first
+		// iterations, the final E-step) subtracted from the full run's
+		// leaves the time of the last -iters iterations, measured the way
+		// the peer's are.
+		c1, t1 := cpuSeconds(), time.Now()
+		if _, err := crowd.Combine(model, l, crowd.Options{MaxIter: *skip, Tol: -1, Workers: *workers}); err != nil {
+			fail(err)
+		}
+		el1, cpuOne := time.Since(t1).Seconds(), cpuSeconds()-c1
+		runtime.GC()
+		cpu0 := cpuSeconds()
+		t0 := time.Now()
+		r, err := crowd.Combine(model, l, crowd.Options{MaxIter: *skip + *iters, Tol: -1, Workers: *workers})
+		if err != nil {
+			fail(err)
+		}
+		el := time.Since(t0).Seconds()
+		cpu := cpuSeconds() - cpu0
+		out["skipped"] = *skip
+		out["seconds_total"] = el
+		out["seconds_skip_run"] = el1
+		out["seconds_per_iter"] = (el - el1) / float64(*iters)
+		// Whole call divided by its iterations: the conservative figure.
+		out["seconds_per_iter_with_setup"] = el / float64(r.Iterations)
+		out["cpu_seconds_per_iter"] = (cpu - cpuOne) / float64(*iters)
+		out["log_likelihood"] = r.LogLik
+		out["accuracy_model"] = accuracy(r.Class, truth)
+		if r.Hier != nil {
+			out["hier"] = map[string]any{"beta": r.Hier.Beta, "skill_mean": r.Hier.SkillMean, "skill_sd": r.Hier.SkillSD}
+		}
+		r = nil
+		runtime.GC()
+	}
 	if *prof != "" {
 		pprof.StopCPUProfile()
 	}
-	if err != nil {
-		fail(err)
-	}
-	el := time.Since(t0).Seconds()
-	cpu := cpuSeconds() - cpu0
-	// Whole call divided by its iterations: the conservative figure.
-	perIterAll := el / float64(r.Iterations)
-	perIter := (el - el1) / float64(*iters)
-	cpuPerIter := (cpu - cpuOne) / float64(*iters)
-	accDS := accuracy(r.Class, truth)
-	ll := r.LogLik
-	r = nil
-	runtime.GC()
 	mv, err := crowd.Majority(l, crowd.Options{Seed: 1})
 	if err != nil {
 		fail(err)
 	}
-	accMV := accuracy(mv.Class, truth)
+	out["accuracy_majority"] = accuracy(mv.Class, truth)
 	var ru syscall.Rusage
 	syscall.Getrusage(syscall.RUSAGE_SELF, &ru)
-	json.NewEncoder(os.Stdout).Encode(map[string]any{
-		"tool": "ours", "labels": n, "items": ni, "annotators": na, "classes": k,
-		"iterations": *iters, "seconds_total": el, "seconds_setup_and_one_iter": el1,
-		"seconds_per_iter": perIter, "seconds_per_iter_with_setup": perIterAll,
-		"cpu_seconds_per_iter": cpuPerIter, "log_likelihood": ll,
-		"peak_rss_mb": float64(ru.Maxrss) / 1024, "accuracy_ds": accDS, "accuracy_majority": accMV,
-		"gomaxprocs": runtime.GOMAXPROCS(0),
-	})
+	out["peak_rss_mb"] = float64(ru.Maxrss) / 1024
+	if err := json.NewEncoder(os.Stdout).Encode(out); err != nil {
+		fail(err)
+	}
 }
 
 // cpuSeconds is the user plus system CPU time of the process so far.
