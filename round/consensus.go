@@ -87,6 +87,11 @@ type DebiasReport struct {
 // ConsensusReport is what a consensus step did; it is stored beside the
 // consensus (store.Consensus's meta).
 type ConsensusReport struct {
+	// Question is the question's key in a question tree ("" otherwise);
+	// NotAsked counts the items a follow-up does not apply to (its parent's
+	// consensus is outside its condition), which are not in Items.
+	Question   string          `json:"question,omitempty"`
+	NotAsked   int             `json:"not_asked,omitempty"`
 	Config     ConsensusConfig `json:"config"`
 	Classes    []string        `json:"classes"`
 	Items      int             `json:"items"`

@@ -49,7 +49,18 @@ func load(st *store.Store) (*project, error) {
 
 // projectOf builds the project from a snapshot. Items are in store order;
 // labels reference them by position.
+//
+// In a question tree the project is the first question's (codebook
+// cb.Sub(0), its labels only), so that every step of a round works on the
+// first question exactly as in a one-question project; follow-up questions
+// are combined by QuestionConsensus.
 func projectOf(sn *store.Snapshot) (*project, error) {
+	if sn.Codebook.Tree() {
+		sub := *sn
+		sub.Codebook = sn.Codebook.Sub(0)
+		sub.Labels = sn.Labels.ForQuestion(sn.Codebook, 0)
+		sn = &sub
+	}
 	p := &project{cb: sn.Codebook, items: sn.Items}
 	p.index = make(map[string]int, len(p.items))
 	for i, it := range p.items {
