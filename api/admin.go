@@ -16,6 +16,7 @@ import (
 
 	"handoff"
 	"handoff/crowd"
+	"handoff/export"
 	"handoff/ingest"
 	"handoff/round"
 	"handoff/store"
@@ -564,7 +565,7 @@ func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
 			if t.Seconds[i] != 0 {
 				secs = strconv.FormatFloat(float64(t.Seconds[i]), 'g', -1, 32)
 			}
-			if err := cw.Write(round.SafeCells([]string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], t.Classes[t.Class[i]], when(i), secs})); err != nil {
+			if err := cw.Write(export.SafeCells([]string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], t.Classes[t.Class[i]], when(i), secs})); err != nil {
 				return err
 			}
 		}
@@ -587,7 +588,7 @@ func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
 
 // getExport writes one row per item — final class, source, confidence,
 // consensus posterior, labels, model, round, parent, covariates — in CSV
-// (the default), JSON lines or Parquet (round.Rows, round.WriteRows).
+// (the default), JSON lines or Parquet (export.Rows, export.Write).
 func (sv *Server) getExport(c echo.Context) error {
 	format := c.QueryParam("format")
 	if format == "" {
@@ -597,7 +598,7 @@ func (sv *Server) getExport(c echo.Context) error {
 	if ctype == "" {
 		return jsonError(http.StatusBadRequest, "format=%q: use csv, jsonl or parquet", format)
 	}
-	rows, err := round.Rows(sv.st)
+	rows, err := export.Rows(sv.st)
 	if err != nil {
 		return err
 	}
@@ -606,5 +607,5 @@ func (sv *Server) getExport(c echo.Context) error {
 	w.Header().Set("Content-Disposition", "attachment; filename=export."+format)
 	w.WriteHeader(http.StatusOK)
 	cb := sv.st.Codebook()
-	return round.WriteRows(w, format, rows, cb.Keys())
+	return export.Write(w, format, rows, cb.Keys())
 }

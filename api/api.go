@@ -34,6 +34,11 @@
 //     never a token that verifies (see auth). A revoked token is refused
 //     from the next request on.
 //   - Images are served by item id only; the file path comes from the store.
+//
+// Size: about 4,000 lines, because it is every HTTP route of the service
+// (labelling, board, people, imports, rounds, exports, metrics) with their
+// authentication, rate limits, the work pool and the practice gate; the
+// work is done by the packages below, this package only serves it.
 package api
 
 import (
@@ -110,6 +115,38 @@ type Config struct {
 	Now func() time.Time
 	// Logf, if set, receives one line per server event (not per request).
 	Logf func(format string, a ...any)
+}
+
+// FromFlags checks the settings as `loop serve`'s flags give them, where 0
+// means none (practice, check) or no limit (check attempts, change window),
+// and turns those zeros into Config's own convention (negative, or the
+// shortest window). It returns an error naming the first flag out of range.
+func (c *Config) FromFlags() error {
+	switch {
+	case c.Redundancy < 1:
+		return fmt.Errorf("--redundancy must be at least 1, not %d", c.Redundancy)
+	case c.LeaseTime < time.Second:
+		return fmt.Errorf("--lease must be at least 1s, not %s", c.LeaseTime)
+	case c.PassMark <= 0 || c.PassMark > 1:
+		return fmt.Errorf("--pass-mark must be in (0, 1], not %g", c.PassMark)
+	case c.Rate <= 0 || c.Burst < 1:
+		return fmt.Errorf("--rate must be > 0 and --burst ≥ 1")
+	case c.Practice < 0 || c.Check < 0 || c.CheckAttempts < 0:
+		return fmt.Errorf("--practice, --check and --check-attempts must be ≥ 0")
+	case c.ChangeWindow < 0:
+		return fmt.Errorf("--change-window must be ≥ 0")
+	case c.Metrics != "admin" && c.Metrics != "open" && c.Metrics != "off":
+		return fmt.Errorf("--metrics %q: use admin, open or off", c.Metrics)
+	}
+	for _, n := range []*int{&c.Practice, &c.Check, &c.CheckAttempts} {
+		if *n == 0 {
+			*n = -1
+		}
+	}
+	if c.ChangeWindow == 0 {
+		c.ChangeWindow = time.Nanosecond // no changes after the answer
+	}
+	return nil
 }
 
 // DefaultGCPercent is the garbage collector's target while the service

@@ -12,9 +12,6 @@ import (
 	"handoff/verdict"
 )
 
-// roundsAvailable says whether this build can run rounds.
-const roundsAvailable = true
-
 // RoundSummary is what a finished round reports to the board. Unchanged
 // is set (and nothing else) when no label was new since the last round, so
 // the round changed nothing.

@@ -22,13 +22,39 @@ type Kappa struct {
 // CohenKappa is Cohen's (1960) kappa of two annotators: x[i] and y[i] are
 // their classes for item i (-1: not labelled); items both labelled count.
 // Po is the share of those items where they agree, Pe = Σ_c px_c·py_c with
-// px, py their class shares. No common item, or Pe = 1 (both gave one and the
-// same class throughout), is an error: κ is undefined.
+// px, py their class shares, and κ = (Po − Pe)/(1 − Pe).
+//
+// Convention (the module's one Cohen's kappa; verdict uses it too): κ is
+// undefined when Pe = 1 — both gave one and the same class throughout, so
+// Po = 1 as well and κ = 0/0 — and that is an error, as is no common item;
+// the caller says "no estimate" and why rather than print a number
+// (scikit-learn's cohen_kappa_score gives NaN there).
 func CohenKappa(x, y []int, k int) (Kappa, error) {
 	if len(x) != len(y) {
 		panic(fmt.Sprintf("crowd: CohenKappa: x has %d items, y %d", len(x), len(y)))
 	}
 	return cohenW(x, y, nil, k)
+}
+
+// CohenKappaCounts is CohenKappa of a square table of counts: c[a][b] items
+// that the first rater put in class a and the second in class b. A table
+// that is not square panics; undefined κ is an error as for CohenKappa.
+func CohenKappaCounts(c [][]int) (Kappa, error) {
+	k := len(c)
+	x, y, w := make([]int, 0, k*k), make([]int, 0, k*k), make([]float64, 0, k*k)
+	n := 0
+	for a := range c {
+		if len(c[a]) != k {
+			panic(fmt.Sprintf("crowd: CohenKappaCounts: row %d has %d cells, want %d", a, len(c[a]), k))
+		}
+		for b, v := range c[a] {
+			x, y, w = append(x, a), append(y, b), append(w, float64(v))
+			n += v
+		}
+	}
+	kp, err := cohenW(x, y, w, k)
+	kp.N = n
+	return kp, err
 }
 
 func cohenW(x, y []int, w []float64, k int) (Kappa, error) {

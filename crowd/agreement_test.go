@@ -7,9 +7,11 @@ import (
 	"testing"
 )
 
-// Source: Fleiss (1971), "Measuring nominal scale agreement among many
-// raters", Psychological Bulletin 76(5):378–382 — the 10 subjects × 14
-// raters × 5 categories example (values in CHECKS.md).
+// Source: the formula of Fleiss (1971), "Measuring nominal scale agreement
+// among many raters", Psychological Bulletin 76(5):378–382, on the widely
+// reproduced 10 subjects × 14 raters × 5 categories worked example
+// (Wikipedia, "Fleiss' kappa"): P̄ = 0.378, P̄e = 0.2128, κ = 0.210
+// (copied into testdata/README.md).
 func TestFleiss1971(t *testing.T) {
 	rows := "0 0 0 0 14 / 0 2 6 4 2 / 0 0 3 5 6 / 0 3 9 2 0 / 2 2 8 1 1 / 7 7 0 0 0 / 3 2 6 3 0 / 2 5 3 2 2 / 6 5 2 1 0 / 0 2 2 3 7"
 	var counts []int
@@ -60,7 +62,8 @@ func TestFleiss1971(t *testing.T) {
 }
 
 // Source: Krippendorff (2011), "Computing Krippendorff's Alpha-Reliability",
-// the 4 coders × 12 units example with missing values (values in CHECKS.md).
+// the 4 coders × 12 units example with missing values: α nominal 0.743,
+// ordinal 0.815, interval 0.849, ratio 0.797 (copied into testdata/README.md).
 func TestKrippendorff2011(t *testing.T) {
 	data := []string{
 		"1 2 3 3 2 1 4 1 2 . . .",

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/floats"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -306,15 +307,9 @@ func fillNoLabels(r *Result, gold []int) {
 	}
 }
 
-func argmax(x []float64) int {
-	b := 0
-	for i, v := range x {
-		if v > x[b] {
-			b = i
-		}
-	}
-	return b
-}
+// argmax is the index of the largest value, the first on ties (gonum's
+// floats.MaxIdx, the one argmax of the module).
+var argmax = floats.MaxIdx
 
 // confusionFromCounts fills r.Confusion and r.Reliability from counts laid
 // out [a][true k][given c] (transposed: [a][given c][true k]).

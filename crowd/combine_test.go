@@ -33,7 +33,8 @@ func loadDS1979(t *testing.T) (*Labels, *Index) {
 	return l, ix
 }
 
-// Source: Dawid & Skene (1979), Table 1 data; expected values from CHECKS.md
+// Source: Dawid & Skene (1979), Table 1 data; expected values from an
+// independent numpy 1.24 implementation of the paper's EM (testdata/README.md)
 // (EM from label shares, repeats kept, |ΔLL| < 1e-12: a relative 5e-15 here).
 func TestDawidSkene1979(t *testing.T) {
 	l, ix := loadDS1979(t)

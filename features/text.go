@@ -1,6 +1,8 @@
 package features
 
 import (
+	"bytes"
+	"encoding/gob"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -731,6 +733,27 @@ func (v *TextVectorizer) UnmarshalJSON(b []byte) error {
 	if err := json.Unmarshal(b, &f); err != nil {
 		return fmt.Errorf("features: reading text vectoriser: %w", err)
 	}
+	return v.load(f)
+}
+
+// GobEncode writes what MarshalJSON writes, as gob (model files).
+func (v *TextVectorizer) GobEncode() ([]byte, error) {
+	var b bytes.Buffer
+	err := gob.NewEncoder(&b).Encode(textFile{v.cfg, v.nDocs, v.vocab, v.idf})
+	return b.Bytes(), err
+}
+
+// GobDecode reads what GobEncode wrote and checks it as UnmarshalJSON does.
+func (v *TextVectorizer) GobDecode(b []byte) error {
+	var f textFile
+	if err := gob.NewDecoder(bytes.NewReader(b)).Decode(&f); err != nil {
+		return fmt.Errorf("features: reading text vectoriser: %w", err)
+	}
+	return v.load(f)
+}
+
+// load checks the stored form of a vectoriser and rebuilds it.
+func (v *TextVectorizer) load(f textFile) error {
 	if err := f.Config.Validate(); err != nil {
 		return err
 	}

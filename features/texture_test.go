@@ -17,7 +17,9 @@ var haralickFig2 = []uint8{
 }
 
 // TestGLCMHaralickFig2 checks the symmetric co-occurrence counts at distance
-// 1 against Haralick et al. (1973) Fig. 2 (values copied in CHECKS.md).
+// 1 against Haralick, Shanmugam & Dinstein (1973), "Textural features for
+// image classification", IEEE Trans. SMC 3(6), Fig. 2 (copied into
+// testdata/README.md).
 func TestGLCMHaralickFig2(t *testing.T) {
 	tests := []struct {
 		angle  string
@@ -51,7 +53,7 @@ func TestGLCMHaralickFig2(t *testing.T) {
 
 // TestGLCMPropsScikitImage checks the properties of the normalised 0° matrix
 // of Haralick's Fig. 2 image against scikit-image 0.19.3 graycoprops
-// (values in CHECKS.md) to 1e-6.
+// (copied into testdata/README.md) to 1e-6.
 func TestGLCMPropsScikitImage(t *testing.T) {
 	s := GLCMProps(GLCM(haralickFig2, 4, 4, 1, 0, 4), 4)
 	for _, c := range []struct {
@@ -133,7 +135,8 @@ func relErr(got, want float64) float64 { return math.Abs(got-want) / math.Abs(wa
 
 // TestHuScikitImageRasters checks φ of the disk, square and rectangle
 // rasters against scikit-image 0.19.3 moments_hu on 201×201 binary images
-// (values in CHECKS.md; analytic φ1: disk 1/(2π), square 1/6 — Hu 1962) to
+// (copied into testdata/README.md; analytic φ1: disk 1/(2π), square 1/6 —
+// Hu 1962, "Visual pattern recognition by moment invariants") to
 // 1e-3 relative.
 func TestHuScikitImageRasters(t *testing.T) {
 	disk := HuMoments(raster(201, 201, func(x, y float64) bool { return (x-100)*(x-100)+(y-100)*(y-100) <= 80*80 }))

@@ -8,7 +8,7 @@ import (
 )
 
 // Source: Manning, Raghavan & Schütze (2008), Introduction to Information
-// Retrieval, Example 13.1 (values in CHECKS.md): multinomial naive Bayes
+// Retrieval, Example 13.1 (copied into testdata/README.md): multinomial naive Bayes
 // with add-one smoothing gives P(c|d5) = 0.6898 for d5 = "Chinese Chinese
 // Chinese Tokyo Japan"; unnormalised P(c)∏P(t|c) = 0.000301214 and
 // 0.000135481 (scikit-learn's exact figures; the book rounds to 0.0003 and

@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 )
 
@@ -30,7 +32,7 @@ func ECE(probs [][]float64, labels []int) float64 {
 	}
 	var cnt, hit, conf [ECEBins]float64
 	for i, p := range probs {
-		c := argmax(p)
+		c := floats.MaxIdx(p)
 		b := int(math.Ceil(p[c]*ECEBins)) - 1
 		b = min(max(b, 0), ECEBins-1)
 		cnt[b]++
@@ -213,7 +215,7 @@ func fitTemperature(base []float64, n, k int, targets [][]float64, weights []flo
 	before := make([][]float64, n)
 	after := make([][]float64, n)
 	for i := range labels {
-		labels[i] = argmax(targets[i])
+		labels[i] = floats.MaxIdx(targets[i])
 		before[i] = base[i*k : (i+1)*k]
 		after[i] = append([]float64(nil), before[i]...)
 		scale(after[i], T)

@@ -3,162 +3,97 @@ package learner
 import (
 	"bufio"
 	"compress/gzip"
-	"crypto/sha256"
-	"encoding/binary"
 	"encoding/gob"
-	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
-	"math"
-	"slices"
 
+	"handoff"
 	"handoff/features"
 )
 
-// FormatVersion is the model-file format this code writes and the newest
-// it reads.
-const FormatVersion = 1
+// FileFormat is the version of the model file this code writes (a
+// Machine on disk, the file `loop model export` writes and the Beam
+// pipeline reads). It reads this format and format 1, the one written
+// before it.
+const FileFormat = 2
 
 // fileMagic opens every model file's header.
 const fileMagic = "handoff-model"
 
-// The learner kinds a File names.
-const (
-	KindBayes    = "bayes"
-	KindLogistic = "logistic"
-	KindForest   = "forest"
-)
-
-// Metrics are the figures stored with a model: k-fold cross-validation
-// (CVResult) and the temperature fit (Calibration). Zero values mean not
-// measured.
-type Metrics struct {
-	Rows       int     `json:"rows"`
-	Folds      int     `json:"folds,omitempty"`
-	CVAccuracy float64 `json:"cv_accuracy,omitempty"`
-	CVMacroF1  float64 `json:"cv_macro_f1,omitempty"`
-	CVECE      float64 `json:"cv_ece,omitempty"`
-	ECEBefore  float64 `json:"ece_before,omitempty"`
-	ECEAfter   float64 `json:"ece_after,omitempty"`
-	// Temperature is the temperature scaling T (1 or 0: none).
-	Temperature float64 `json:"temperature,omitempty"`
-}
-
-// File is a model file: a fitted model with what is needed to use and
-// trust it later.
-//
-// On disk (Save, Load) it is a gzip stream of two gob values: a header
-// {Magic "handoff-model", Format} and then the File. The header is read
-// first, so a file from a newer format is refused before its body is
-// decoded. Exactly one of Bayes, Logistic and Forest is set, as Kind says;
-// each holds its learner configuration (Config) and parameters.
-type File struct {
-	Format int
-	Kind   string
-	// Features is the feature configuration as the caller gives it (for
-	// text, the vectoriser's JSON with its vocabulary; for images, the
-	// feature names and standardisation); it is stored unread.
-	Features json.RawMessage
-	// Classes are the codebook's class keys in the model's class order.
-	Classes []string
-	// Fingerprint is the hex SHA-256 of the training set (see FingerprintData).
-	Fingerprint string
-	Metrics     Metrics
-
-	Bayes    *BayesModel
-	Logistic *LogisticModel
-	Forest   *ForestModel
-	// Temperature ≠ 0 and ≠ 1 wraps the model in temperature scaling.
-	Temperature float64
-}
-
+// fileHeader is the first gob value of a model file, read before the body
+// so that a file of a newer format is refused before anything else is
+// decoded.
 type fileHeader struct {
 	Magic  string
 	Format int
 }
 
-// NewFile packs a fitted model (a *BayesModel, *LogisticModel or
-// *ForestModel, optionally inside a *Calibrated) with its class keys,
-// feature configuration, training-set fingerprint and metrics. It panics
-// if the number of class keys differs from m.Classes() and returns an error
-// for a model type it cannot store.
-func NewFile(m Model, classes []string, feat json.RawMessage, fingerprint string, metrics Metrics) (*File, error) {
-	if len(classes) != m.Classes() {
-		panic(fmt.Sprintf("learner: %d class keys for a model of %d classes", len(classes), m.Classes()))
+// machineFile is the body of a format-2 model file: a Machine, each field
+// once. Exactly one of Bayes, Logistic and Forest is set, as Learner says.
+type machineFile struct {
+	Kind        handoff.Kind
+	Learner     string
+	Classes     []string
+	Present     []int
+	Temperature float64
+	Text        *features.TextVectorizer
+	Image       *features.ImageConfig
+	Scaler      *features.Scaler
+	Fingerprint string
+	Metrics     []byte // JSON, as Machine.Metrics
+	Version     string
+	Threshold   float64
+	Bayes       *BayesModel
+	Logistic    *LogisticModel
+	Forest      *ForestModel
+}
+
+// WriteMachine writes m as a model file: a gzip stream of two gob values,
+// the header {Magic "handoff-model", Format FileFormat} and the machine
+// (machineFile).
+func WriteMachine(w io.Writer, m *Machine) error {
+	if m.Model == nil {
+		return errors.New("learner: the machine has no model")
 	}
-	f := &File{Format: FormatVersion, Features: feat, Classes: slices.Clone(classes), Fingerprint: fingerprint, Metrics: metrics}
-	if c, ok := m.(*Calibrated); ok {
-		f.Temperature = c.Temperature
-		f.Metrics.Temperature = c.Temperature
-		m = c.Base
+	f := machineFile{
+		Kind: m.Kind, Learner: m.Learner, Classes: m.Classes, Present: m.Present, Temperature: m.Temperature,
+		Text: m.Text, Image: m.Image, Scaler: m.Scaler, Fingerprint: m.Fingerprint, Metrics: m.Metrics,
+		Version: m.Name, Threshold: m.Cutoff,
 	}
-	switch b := m.(type) {
+	if f.Temperature == 0 {
+		f.Temperature = 1 // none
+	}
+	base := m.Model
+	if c, ok := base.(*Calibrated); ok {
+		return fmt.Errorf("learner: the machine's model is wrapped in temperature scaling (T = %v); set Machine.Temperature instead", c.Temperature)
+	}
+	switch b := base.(type) {
 	case *BayesModel:
-		f.Kind, f.Bayes = KindBayes, b
+		f.Bayes = b
 	case *LogisticModel:
-		f.Kind, f.Logistic = KindLogistic, b
+		f.Logistic = b
 	case *ForestModel:
-		f.Kind, f.Forest = KindForest, b
+		f.Forest = b
 	default:
-		return nil, fmt.Errorf("learner: cannot store a model of type %T", m)
-	}
-	return f, nil
-}
-
-// Model returns the stored model, wrapped in temperature scaling if the
-// file has a temperature.
-func (f *File) Model() Model {
-	var m Model
-	switch {
-	case f.Bayes != nil:
-		m = f.Bayes
-	case f.Logistic != nil:
-		m = f.Logistic
-	case f.Forest != nil:
-		m = f.Forest
-	default:
-		return nil
-	}
-	if f.Temperature != 0 && f.Temperature != 1 {
-		m = &Calibrated{Base: m, Temperature: f.Temperature}
-	}
-	return m
-}
-
-// Save writes f to w (gzip-compressed gob; see File).
-func Save(w io.Writer, f *File) error {
-	if f.Model() == nil {
-		return errors.New("learner: the model file holds no model")
+		return fmt.Errorf("learner: cannot store a model of type %T", base)
 	}
 	zw := gzip.NewWriter(w)
 	enc := gob.NewEncoder(zw)
-	if err := enc.Encode(fileHeader{Magic: fileMagic, Format: f.Format}); err != nil {
-		return fmt.Errorf("learner: writing model file header: %w", err)
+	if err := enc.Encode(fileHeader{Magic: fileMagic, Format: FileFormat}); err != nil {
+		return fmt.Errorf("learner: writing the model file header: %w", err)
 	}
-	if err := enc.Encode(f); err != nil {
-		return fmt.Errorf("learner: writing model file: %w", err)
+	if err := enc.Encode(&f); err != nil {
+		return fmt.Errorf("learner: writing the model file: %w", err)
 	}
 	return zw.Close()
 }
 
-// ClassMismatchError is returned by Load when a model was trained for a
-// codebook with other class keys.
-type ClassMismatchError struct {
-	Model, Codebook []string
-}
-
-// Error says which class keys the model and the codebook have.
-func (e *ClassMismatchError) Error() string {
-	return fmt.Sprintf("learner: the model was trained for classes %q but the codebook has %q: retrain the model for this codebook", e.Model, e.Codebook)
-}
-
-// Load reads a model file written by Save. If classes is non-nil, the
-// file's class keys must equal it (same keys, same order), or Load returns a
-// *ClassMismatchError. A file of a newer format than FormatVersion, or not a
-// model file at all, is refused with an error saying so.
-func Load(r io.Reader, classes []string) (*File, error) {
+// ReadMachine reads a model file written by WriteMachine, or by an earlier
+// release in format 1. A file of a newer format, or not a model file at
+// all, is refused with an error that says so.
+func ReadMachine(r io.Reader) (*Machine, error) {
 	zr, err := gzip.NewReader(bufio.NewReader(r))
 	if err != nil {
 		return nil, fmt.Errorf("learner: not a model file (not gzip): %w", err)
@@ -168,67 +103,133 @@ func Load(r io.Reader, classes []string) (*File, error) {
 	if err := dec.Decode(&h); err != nil || h.Magic != fileMagic {
 		return nil, errors.New("learner: not a model file (no model header)")
 	}
-	if h.Format > FormatVersion {
-		return nil, fmt.Errorf("learner: model file format %d is newer than this program reads (%d): upgrade the program", h.Format, FormatVersion)
-	}
-	if h.Format < 1 {
+	var m *Machine
+	switch {
+	case h.Format > FileFormat:
+		return nil, fmt.Errorf("learner: model file format %d is newer than this program reads (%d): upgrade loop", h.Format, FileFormat)
+	case h.Format == 1:
+		m, err = readFormat1(dec)
+	case h.Format == FileFormat:
+		var f machineFile
+		if err = dec.Decode(&f); err == nil {
+			m, err = f.machine()
+		}
+	default:
 		return nil, fmt.Errorf("learner: model file format %d is not valid", h.Format)
 	}
-	var f File
-	if err := dec.Decode(&f); err != nil {
-		return nil, fmt.Errorf("learner: reading model file: %w", err)
+	if err != nil {
+		return nil, fmt.Errorf("learner: reading the model file: %w", err)
 	}
-	if f.Model() == nil {
-		return nil, errors.New("learner: the model file holds no model")
-	}
-	if classes != nil && !slices.Equal(classes, f.Classes) {
-		return nil, &ClassMismatchError{Model: f.Classes, Codebook: slices.Clone(classes)}
-	}
-	return &f, nil
+	return m, m.check()
 }
 
-// FingerprintData returns the hex SHA-256 of a training set: the little-endian
-// bytes of Rows, Cols and the number of classes (uint64 each), then per row
-// its entry count (uint64), column indices (int32; 0..Cols−1 for a dense
-// row), values (float64 bits), target probabilities (float64 bits) and
-// weight (float64 bits; 1 when weights == nil). Equal training sets give
-// equal fingerprints; a sparse and a dense copy of one matrix differ only if
-// their stored entries differ.
-func FingerprintData(X features.Matrix, targets [][]float64, weights []float64) string {
-	k := checkShape(X, targets, weights)
-	h := sha256.New()
-	w := bufio.NewWriter(h)
-	var b [8]byte
-	u64 := func(v uint64) {
-		binary.LittleEndian.PutUint64(b[:], v)
-		w.Write(b[:])
+// machine is the Machine a format-2 body describes.
+func (f *machineFile) machine() (*Machine, error) {
+	m := &Machine{
+		Kind: f.Kind, Learner: f.Learner, Classes: f.Classes, Present: f.Present, Temperature: f.Temperature,
+		Text: f.Text, Image: f.Image, Scaler: f.Scaler, Fingerprint: f.Fingerprint, Metrics: json.RawMessage(f.Metrics),
+		Name: f.Version, Cutoff: f.Threshold,
 	}
-	u64(uint64(X.Rows()))
-	u64(uint64(X.Cols()))
-	u64(uint64(k))
-	for i := 0; i < X.Rows(); i++ {
-		idx, val := X.Row(i)
-		u64(uint64(len(val)))
-		for p := range val {
-			j := uint32(p)
-			if idx != nil {
-				j = uint32(idx[p])
-			}
-			binary.LittleEndian.PutUint32(b[:4], j)
-			w.Write(b[:4])
-		}
-		for _, v := range val {
-			u64(math.Float64bits(v))
-		}
-		for _, v := range targets[i] {
-			u64(math.Float64bits(v))
-		}
-		wt := 1.0
-		if weights != nil {
-			wt = weights[i]
-		}
-		u64(math.Float64bits(wt))
+	switch {
+	case f.Bayes != nil:
+		m.Model = f.Bayes
+	case f.Logistic != nil:
+		m.Model = f.Logistic
+	case f.Forest != nil:
+		m.Model = f.Forest
+	default:
+		return nil, errors.New("the model file holds no model")
 	}
-	w.Flush()
-	return hex.EncodeToString(h.Sum(nil))
+	return m, nil
+}
+
+// check refuses a machine whose parts do not fit together.
+func (m *Machine) check() error {
+	if len(m.Classes) < 2 || len(m.Present) != m.Model.Classes() {
+		return fmt.Errorf("learner: the model file is inconsistent: %d codebook classes, %d present, a model of %d classes", len(m.Classes), len(m.Present), m.Model.Classes())
+	}
+	for j, c := range m.Present {
+		if c < 0 || c >= len(m.Classes) || j > 0 && c <= m.Present[j-1] {
+			return fmt.Errorf("learner: the model file is inconsistent: present classes %v for %d codebook classes", m.Present, len(m.Classes))
+		}
+	}
+	if !(m.Temperature > 0) {
+		return fmt.Errorf("learner: the model file's temperature %v is not positive", m.Temperature)
+	}
+	switch m.Kind {
+	case handoff.KindText:
+		if m.Text == nil {
+			return errors.New("learner: the model file has no text vectoriser")
+		}
+	case handoff.KindImage:
+		if m.Image == nil || m.Scaler == nil {
+			return errors.New("learner: the model file has image features but no image configuration or scaler")
+		}
+		if err := m.Image.CheckNames(m.Scaler.Names); err != nil {
+			return err
+		}
+	default:
+		return fmt.Errorf("learner: the model file labels items of kind %q; want text or image", m.Kind)
+	}
+	return nil
+}
+
+// fileV1 is the body of a format-1 model file: the fitted model of the
+// present classes, their keys, the temperature (again in Metrics) and, as
+// JSON in Features, the machine's own fields (machineV1). Gob matches
+// fields by name, so this reads what format 1 wrote.
+type fileV1 struct {
+	Format      int
+	Kind        string
+	Features    json.RawMessage
+	Classes     []string
+	Fingerprint string
+	Bayes       *BayesModel
+	Logistic    *LogisticModel
+	Forest      *ForestModel
+	Temperature float64
+}
+
+// machineV1 is format 1's JSON of the machine's own fields.
+type machineV1 struct {
+	Format    int                      `json:"machine_format"`
+	Kind      handoff.Kind             `json:"kind"`
+	Classes   []string                 `json:"classes"`
+	Present   []int                    `json:"present"`
+	Text      *features.TextVectorizer `json:"text,omitempty"`
+	Image     *features.ImageConfig    `json:"image,omitempty"`
+	Scaler    *features.Scaler         `json:"scaler,omitempty"`
+	Metrics   json.RawMessage          `json:"metrics,omitempty"`
+	Version   string                   `json:"version"`
+	Threshold float64                  `json:"threshold,omitempty"`
+}
+
+// readFormat1 reads the body of a format-1 model file.
+func readFormat1(dec *gob.Decoder) (*Machine, error) {
+	var f fileV1
+	if err := dec.Decode(&f); err != nil {
+		return nil, err
+	}
+	var mf machineV1
+	if err := json.Unmarshal(f.Features, &mf); err != nil {
+		return nil, fmt.Errorf("format 1 feature configuration: %w", err)
+	}
+	if mf.Format != 1 || len(mf.Present) != len(f.Classes) {
+		return nil, errors.New("a format-1 file holding a bare model without its features; it was not written by `loop model export`")
+	}
+	for j, c := range mf.Present {
+		if c < 0 || c >= len(mf.Classes) || mf.Classes[c] != f.Classes[j] {
+			return nil, errors.New("a format-1 file whose class keys do not match its feature configuration")
+		}
+	}
+	T := f.Temperature
+	if T == 0 {
+		T = 1
+	}
+	m2 := machineFile{
+		Kind: mf.Kind, Learner: f.Kind, Classes: mf.Classes, Present: mf.Present, Temperature: T,
+		Text: mf.Text, Image: mf.Image, Scaler: mf.Scaler, Fingerprint: f.Fingerprint, Metrics: mf.Metrics,
+		Version: mf.Version, Threshold: mf.Threshold, Bayes: f.Bayes, Logistic: f.Logistic, Forest: f.Forest,
+	}
+	return m2.machine()
 }

@@ -5,6 +5,8 @@ import (
 	"math/rand/v2"
 	"slices"
 	"testing"
+
+	"gonum.org/v1/gonum/floats"
 )
 
 // twoBlobs returns n points per class around (±1, ±1) with noise.
@@ -41,7 +43,7 @@ func TestForestSeparatesAndIsDeterministic(t *testing.T) {
 		if !slices.Equal(pa[i], pb[i]) {
 			t.Fatalf("row %d: same seed, different forests: %v vs %v", i, pa[i], pb[i])
 		}
-		if argmax(pa[i]) == yt[i] {
+		if floats.MaxIdx(pa[i]) == yt[i] {
 			hit++
 		}
 	}

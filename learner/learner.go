@@ -10,8 +10,13 @@
 //
 // The package also holds temperature scaling (Calibrate), the expected
 // calibration error (ECE), splits that keep the items of one parent together
-// (GroupKFold, GroupSplit), k-fold cross-validation (CrossValidate) and model
-// files (Save, Load). It knows nothing of the store, HTTP or flags.
+// (GroupKFold, GroupSplit), k-fold cross-validation (CrossValidate), the
+// Machine (features + model + temperature + class keys) and its model file
+// (WriteMachine, ReadMachine). It knows nothing of the store, HTTP or flags.
+//
+// Size: about 2,300 lines for three learners (each with its own
+// optimiser or tree growing), calibration, cross-validation and the model
+// file; they share one interface and one file, so they stay together.
 package learner
 
 import (
@@ -286,15 +291,4 @@ func subsetWeights(w []float64, rows []int) []float64 {
 		out[i] = w[r]
 	}
 	return out
-}
-
-// argmax returns the index of the largest entry (the first on ties).
-func argmax(p []float64) int {
-	b := 0
-	for c, v := range p {
-		if v > p[b] {
-			b = c
-		}
-	}
-	return b
 }

@@ -3,10 +3,12 @@ package learner
 import (
 	"math"
 	"testing"
+
+	"gonum.org/v1/gonum/floats"
 )
 
 // Source: R 4.2.2, glm(am ~ hp + wt, family = binomial, data = mtcars)
-// (values in CHECKS.md): intercept 18.86630, hp 0.0362556, wt −8.0834752,
+// (copied into testdata/README.md): intercept 18.86630, hp 0.0362556, wt −8.0834752,
 // log-likelihood −5.029555. Data: testdata/learner/mtcars.csv (Motor Trend
 // 1974, shipped with R as datasets::mtcars).
 func TestLogisticMatchesRGlmMtcars(t *testing.T) {
@@ -50,7 +52,7 @@ func TestLogisticMatchesRGlmMtcars(t *testing.T) {
 }
 
 // Source: scikit-learn 1.2.1 LogisticRegression(C=1.0) (multinomial, lbfgs)
-// on UCI iris (Fisher 1936), values in CHECKS.md. λ = 1/C = 1.
+// on UCI iris (Fisher 1936), values copied into testdata/README.md. λ = 1/C = 1.
 func TestLogisticMatchesSklearnIris(t *testing.T) {
 	recs := readCSV(t, "../testdata/learner/iris.csv")
 	var rows [][]float64
@@ -90,7 +92,7 @@ func TestLogisticMatchesSklearnIris(t *testing.T) {
 	}
 	correct := 0
 	for i, c := range y {
-		if argmax(p[i]) == c {
+		if floats.MaxIdx(p[i]) == c {
 			correct++
 		}
 	}

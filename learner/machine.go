@@ -7,18 +7,14 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io"
 	"os"
 	"slices"
+
+	"gonum.org/v1/gonum/floats"
 
 	"handoff"
 	"handoff/features"
 )
-
-// MachineFormat is the version of the machine part of a model file (the
-// feature configuration a Machine stores in File.Features). A file with a
-// larger version was written by a newer release and is refused.
-const MachineFormat = 1
 
 // Machine is a trained pipeline that labels items: the feature extraction
 // (a fitted text vectoriser, or an image configuration with its scaler), a
@@ -147,56 +143,10 @@ func (m *Machine) Label(items []handoff.Item) ([]handoff.MachineLabel, error) {
 	out := make([]handoff.MachineLabel, len(items))
 	for i := range items {
 		row := p[i*K : (i+1)*K]
-		best := argmax(row)
+		best := floats.MaxIdx(row)
 		out[i] = handoff.MachineLabel{Item: items[i].ID, Class: m.Classes[best], Confidence: row[best], Proba: slices.Clone(row), Model: m.Name}
 	}
 	return out, nil
-}
-
-// machineFeatures is what a machine file carries in File.Features: how
-// items become rows, and the machine's own fields.
-type machineFeatures struct {
-	Format    int                      `json:"machine_format"`
-	Kind      handoff.Kind             `json:"kind"`
-	Classes   []string                 `json:"classes"`
-	Present   []int                    `json:"present"`
-	Text      *features.TextVectorizer `json:"text,omitempty"`
-	Image     *features.ImageConfig    `json:"image,omitempty"`
-	Scaler    *features.Scaler         `json:"scaler,omitempty"`
-	Metrics   json.RawMessage          `json:"metrics,omitempty"`
-	Version   string                   `json:"version"`
-	Threshold float64                  `json:"threshold,omitempty"`
-}
-
-// WriteMachine writes m as a model file (see File and Save): the fitted
-// model with the present classes' keys and its temperature, and, as the
-// file's feature configuration, the vectoriser or image configuration and
-// scaler, the codebook's keys and the machine's version and threshold.
-func WriteMachine(w io.Writer, m *Machine) error {
-	if m.Model == nil {
-		return errors.New("machine has no model")
-	}
-	feat, err := json.Marshal(machineFeatures{
-		Format: MachineFormat, Kind: m.Kind, Classes: m.Classes, Present: m.Present,
-		Text: m.Text, Image: m.Image, Scaler: m.Scaler, Metrics: m.Metrics,
-		Version: m.Name, Threshold: m.Cutoff,
-	})
-	if err != nil {
-		return err
-	}
-	keys := make([]string, len(m.Present))
-	for j, c := range m.Present {
-		keys[j] = m.Classes[c]
-	}
-	model := m.Model
-	if m.Temperature != 0 && m.Temperature != 1 {
-		model = &Calibrated{Base: model, Temperature: m.Temperature}
-	}
-	f, err := NewFile(model, keys, feat, m.Fingerprint, Metrics{Temperature: m.Temperature})
-	if err != nil {
-		return err
-	}
-	return Save(w, f)
 }
 
 // MarshalMachine returns the bytes WriteMachine writes.
@@ -206,54 +156,6 @@ func MarshalMachine(m *Machine) ([]byte, error) {
 		return nil, err
 	}
 	return b.Bytes(), nil
-}
-
-// ReadMachine reads a machine written by WriteMachine (the file `loop model
-// export` writes). A file from a newer format is refused.
-func ReadMachine(r io.Reader) (*Machine, error) {
-	f, err := Load(r, nil)
-	if err != nil {
-		return nil, err
-	}
-	var mf machineFeatures
-	if err := json.Unmarshal(f.Features, &mf); err != nil {
-		return nil, fmt.Errorf("model file's feature configuration: %w", err)
-	}
-	if mf.Format > MachineFormat {
-		return nil, fmt.Errorf("model file's machine format %d is newer than this program understands (%d): upgrade loop", mf.Format, MachineFormat)
-	}
-	if mf.Format < 1 || len(mf.Classes) < 2 || len(mf.Present) != len(f.Classes) {
-		return nil, errors.New("model file holds a bare model without its features; it was not written by `loop model export`")
-	}
-	for j, c := range mf.Present {
-		if c < 0 || c >= len(mf.Classes) || mf.Classes[c] != f.Classes[j] {
-			return nil, errors.New("model file is inconsistent: its class keys do not match its feature configuration")
-		}
-	}
-	m := &Machine{
-		Kind: mf.Kind, Learner: f.Kind, Classes: mf.Classes, Present: mf.Present, Temperature: 1,
-		Text: mf.Text, Image: mf.Image, Scaler: mf.Scaler, Fingerprint: f.Fingerprint,
-		Metrics: mf.Metrics, Name: mf.Version, Cutoff: mf.Threshold,
-	}
-	if f.Temperature != 0 {
-		m.Temperature = f.Temperature
-	}
-	if m.Image != nil {
-		if m.Scaler == nil {
-			return nil, errors.New("model file has image features but no scaler")
-		}
-		if err := m.Image.CheckNames(m.Scaler.Names); err != nil {
-			return nil, err
-		}
-	}
-	m.Model = f.Model()
-	if c, ok := m.Model.(*Calibrated); ok {
-		m.Model = c.Base // ProbaInto applies the temperature itself
-	}
-	if m.Model == nil {
-		return nil, errors.New("model file holds no model")
-	}
-	return m, nil
 }
 
 // LoadMachine reads a machine file from path.

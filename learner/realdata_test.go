@@ -3,8 +3,6 @@ package learner
 import (
 	"bufio"
 	"bytes"
-	"compress/gzip"
-	"encoding/csv"
 	"encoding/json"
 	"image/png"
 	"os"
@@ -12,7 +10,10 @@ import (
 	"strconv"
 	"testing"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
+	"handoff/internal/fixtures"
 )
 
 // readJSONL reads the text and label fields of a JSON-lines file.
@@ -60,15 +61,16 @@ func pick[T any](xs []T, rows []int) []T {
 	return out
 }
 
-// Floors from CHECKS.md (our measurement with scikit-learn 1.2.1 as the
-// peer: TF-IDF word 1–2-grams, sublinear tf, min_df 2, LogisticRegression
-// C = 10 on a seeded 80/20 split): pkgdesc.jsonl 0.753, appdesc.jsonl 0.671.
+// Floors measured by us with scikit-learn 1.2.1 (Debian 12) as the
+// peer (TF-IDF word 1–2-grams, sublinear tf, min_df 2, LogisticRegression
+// C = 10 on a seeded 80/20 split): pkgdesc.jsonl 0.753, appdesc.jsonl 0.671
+// (testdata/README.md).
 // Data: Debian 12 package index and AppStream metadata (testdata/README.md).
 // On sets this small the split moves accuracy by ±0.05, so we use the
 // peer's own split: testdata/learner/textsplits.json lists the test ids of
 // scikit-learn's train_test_split(test_size=0.2, random_state=0,
 // stratify=labels) and the peer's accuracy on it (0.7647 and 0.6710). We
-// must reach both the CHECKS.md floor and the peer's figure − 0.005.
+// must reach both the floor and the peer's figure − 0.005.
 func TestTextAccuracyFloors(t *testing.T) {
 	var splits struct {
 		Splits map[string]struct {
@@ -121,7 +123,7 @@ func TestTextAccuracyFloors(t *testing.T) {
 		p := m.PredictProba(vec.Transform(pick(texts, te)))
 		hit := 0
 		for i, r := range te {
-			if argmax(p[i]) == y[r] {
+			if floats.MaxIdx(p[i]) == y[r] {
 				hit++
 			}
 		}
@@ -166,7 +168,7 @@ func TestTextAccuracyFloors(t *testing.T) {
 		q := nb.PredictProba(vec.Transform(pick(texts, te)))
 		hit = 0
 		for i, r := range te {
-			if argmax(q[i]) == y[r] {
+			if floats.MaxIdx(q[i]) == y[r] {
 				hit++
 			}
 		}
@@ -174,7 +176,7 @@ func TestTextAccuracyFloors(t *testing.T) {
 	}
 }
 
-// CHECKS.md: hand-crafted features of the rendered UCI digits (Alpaydin &
+// Our target (common practice, no source): hand-crafted features of the rendered UCI digits (Alpaydin &
 // Kaynak 1998; testdata/digits.csv.gz) must reach 0.90 accuracy in 5-fold
 // cross-validation. Each 8×8 digit is drawn as a 128×128 grey PNG, decoded
 // and featurised by package features, then a forest is cross-validated.
@@ -182,40 +184,7 @@ func TestDigitsImageFeaturesForestCV(t *testing.T) {
 	if testing.Short() {
 		t.Skip("renders and featurises 1,797 images")
 	}
-	f, err := os.Open("../testdata/digits.csv.gz")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	z, err := gzip.NewReader(f)
-	if err != nil {
-		t.Fatal(err)
-	}
-	recs, err := csv.NewReader(z).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	names := make([]string, len(recs))
-	blobs := make([][]byte, len(recs))
-	y := make([]int, len(recs))
-	for i, r := range recs {
-		px := make([]float64, 64)
-		for j := range px {
-			v, _ := strconv.ParseFloat(r[j], 64)
-			px[j] = v / 16
-		}
-		y[i], _ = strconv.Atoi(r[64])
-		var b bytes.Buffer
-		if err := png.Encode(&b, features.RenderGray(px, 8, 8, 16)); err != nil {
-			t.Fatal(err)
-		}
-		names[i], blobs[i] = "digit"+strconv.Itoa(i)+".png", b.Bytes()
-	}
-	cfg := features.DefaultImageConfig()
-	X, err := cfg.TransformBytes(names, blobs)
-	if err != nil {
-		t.Fatal(err)
-	}
+	X, y := digitImageFeatures(t)
 	res, err := CrossValidate(Forest{Trees: 100, Seed: 1}, X, oneHot(y, 10), nil, nil, 5, 1)
 	if err != nil {
 		t.Fatal(err)
@@ -224,4 +193,24 @@ func TestDigitsImageFeaturesForestCV(t *testing.T) {
 	if res.Accuracy < 0.90 {
 		t.Errorf("5-fold accuracy %.4f below 0.90", res.Accuracy)
 	}
+}
+
+// digitImageFeatures draws each UCI digit (fixtures.Digits) as a 128×128
+// grey PNG, decodes it and computes the default image features.
+func digitImageFeatures(t *testing.T) (*features.Dense, []int) {
+	pixels, y := fixtures.Digits(t)
+	names := make([]string, len(pixels))
+	blobs := make([][]byte, len(pixels))
+	for i, px := range pixels {
+		var b bytes.Buffer
+		if err := png.Encode(&b, features.RenderGray(px, 8, 8, 16)); err != nil {
+			t.Fatal(err)
+		}
+		names[i], blobs[i] = "digit"+strconv.Itoa(i)+".png", b.Bytes()
+	}
+	X, err := features.DefaultImageConfig().TransformBytes(names, blobs)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return X, y
 }

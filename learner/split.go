@@ -5,6 +5,8 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 )
 
@@ -117,8 +119,14 @@ type CVResult struct {
 
 // CrossValidate fits l on k−1 folds of GroupKFold(X.Rows(), groups, k,
 // seed) and scores the held-out fold, k times, and returns the pooled
-// figures. targets, weights and groups follow Fit and GroupKFold. A fold
-// whose training rows lack a class returns Fit's error naming the fold.
+// figures. targets, weights and groups follow Fit and GroupKFold.
+//
+// A fold's model is fitted on the classes its training rows have (target
+// mass above 1e-9): each training row's targets are restricted to those
+// classes and renormalised — spread evenly over them if the row has no
+// mass there — and the model gives probability 0 to the classes it never
+// saw. A fold whose training rows have fewer than two classes is an error
+// naming the fold.
 func CrossValidate(l Learner, X features.Matrix, targets [][]float64, weights []float64, groups []string, k int, seed uint64) (CVResult, error) {
 	nc := checkShape(X, targets, weights)
 	n := X.Rows()
@@ -142,19 +150,58 @@ func CrossValidate(l Learner, X features.Matrix, targets [][]float64, weights []
 				train = append(train, i)
 			}
 		}
-		m, err := l.Fit(Subset(X, train), subsetTargets(targets, train), subsetWeights(weights, train))
+		mass := make([]float64, nc)
+		for _, i := range train {
+			floats.Add(mass, targets[i])
+		}
+		var cls []int
+		for c, m := range mass {
+			if m > 1e-9 {
+				cls = append(cls, c)
+			}
+		}
+		if len(cls) < 2 {
+			return CVResult{}, fmt.Errorf("learner: cross-validation fold %d of %d: its training rows all have one class; label more items of other classes", f+1, k)
+		}
+		tt := make([][]float64, len(train))
+		for a, i := range train {
+			t := make([]float64, len(cls))
+			for b, c := range cls {
+				t[b] = targets[i][c]
+			}
+			sum := 0.0
+			for _, v := range t {
+				sum += v
+			}
+			if sum > 0 {
+				for b := range t {
+					t[b] /= sum
+				}
+			} else {
+				// All of this row's mass is on classes the fold lacks.
+				for b := range t {
+					t[b] = 1 / float64(len(t))
+				}
+			}
+			tt[a] = t
+		}
+		m, err := l.Fit(Subset(X, train), tt, subsetWeights(weights, train))
 		if err != nil {
 			return CVResult{}, fmt.Errorf("learner: cross-validation fold %d of %d: %w", f+1, k, err)
 		}
 		p := m.PredictProba(Subset(X, test))
 		for r, i := range test {
-			proba[i] = p[r]
+			row := make([]float64, nc)
+			for b, c := range cls {
+				row[c] = p[r][b]
+			}
+			proba[i] = row
 		}
 	}
 	labels := make([]int, n)
 	pred := make([]int, n)
 	for i := range labels {
-		labels[i], pred[i] = argmax(targets[i]), argmax(proba[i])
+		labels[i], pred[i] = floats.MaxIdx(targets[i]), floats.MaxIdx(proba[i])
 	}
 	acc, f1 := AccuracyF1(labels, pred, nc)
 	return CVResult{Folds: k, Accuracy: acc, MacroF1: f1, ECE: ECE(proba, labels), Proba: proba}, nil

@@ -3,6 +3,7 @@ package learner
 import (
 	"fmt"
 	"slices"
+	"strings"
 	"testing"
 )
 
@@ -114,4 +115,44 @@ func TestCrossValidateIris(t *testing.T) {
 		t.Errorf("cross-validation: %+v", res)
 	}
 	finiteModel(t, res.Proba)
+}
+
+// TestCrossValidateFoldWithoutAClass: when every row of a class sits in one
+// group, the fold that holds that group out trains without the class; its
+// model gives the class probability 0, and a fold left with one class is
+// an error that names the fold.
+func TestCrossValidateFoldWithoutAClass(t *testing.T) {
+	var rows [][]float64
+	var y []int
+	var groups []string
+	for i := range 30 {
+		c := i % 3
+		if i >= 24 {
+			c = 2
+		}
+		if c == 2 && i < 24 {
+			c = i % 2
+		}
+		rows = append(rows, []float64{float64(c) + 0.1*float64(i%5), float64(i % 7)})
+		y = append(y, c)
+		g := string(rune('a' + i%4))
+		if c == 2 {
+			g = "only-class-2"
+		}
+		groups = append(groups, g)
+	}
+	res, err := CrossValidate(Logistic{Lambda: 1}, dense(rows), oneHot(y, 3), nil, groups, 3, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for i, c := range y {
+		if c == 2 && res.Proba[i][2] != 0 {
+			t.Errorf("row %d of class 2, held out with its whole class: p = %v, want 0 for the unseen class", i, res.Proba[i])
+		}
+	}
+	two := oneHot([]int{0, 0, 0, 0, 1, 1}, 2)
+	_, err = CrossValidate(Logistic{Lambda: 1}, dense([][]float64{{0}, {0}, {0}, {0}, {1}, {1}}), two, nil, []string{"a", "a", "a", "a", "b", "b"}, 2, 1)
+	if err == nil || !strings.Contains(err.Error(), "fold") || !strings.Contains(err.Error(), "one class") {
+		t.Errorf("a fold with one class: %v, want an error naming the fold", err)
+	}
 }

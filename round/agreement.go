@@ -66,15 +66,7 @@ func agreement(p *project, cfg AgreementConfig) (*AgreementReport, error) {
 	if p.labels.Len() == 0 {
 		return nil, fmt.Errorf("%w: the project has no labels; add some with `loop labels add`", ErrNothing)
 	}
-	var gold []int
-	if p.hasG {
-		gold = p.gold
-	}
-	rules := cfg.Rules
-	if cfg.NoCleaning {
-		rules = crowd.Rules{}
-	}
-	kept, _, err := crowd.Clean(p.labels, gold, rules)
+	kept, _, _, err := p.clean(cfg.Rules, cfg.NoCleaning)
 	if err != nil {
 		return nil, fmt.Errorf("cleaning: %w", err)
 	}

@@ -8,6 +8,8 @@ import (
 	"strconv"
 	"strings"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/crowd"
 	"handoff/store"
@@ -176,15 +178,7 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 	if p.labels.Len() == 0 && !p.hasG {
 		return nil, fmt.Errorf("%w: the project has no labels and no gold; add some with `loop labels add`", ErrNothing)
 	}
-	var gold []int
-	if p.hasG {
-		gold = p.gold
-	}
-	rules := cfg.Rules
-	if cfg.NoCleaning {
-		rules = crowd.Rules{}
-	}
-	kept, cl, err := crowd.Clean(p.labels, gold, rules)
+	kept, cl, gold, err := p.clean(cfg.Rules, cfg.NoCleaning)
 	if err != nil {
 		return nil, fmt.Errorf("cleaning: %w", err)
 	}
@@ -193,7 +187,7 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 	if err != nil {
 		return nil, fmt.Errorf("combining with %s: %w", cfg.Method, err)
 	}
-	if rules.Spammers {
+	if rules := cleaningRules(cfg.Rules, cfg.NoCleaning); rules.Spammers {
 		k2, drops, sum := crowd.DropSpammers(kept, res, rules)
 		cl.Summary = append(cl.Summary, sum)
 		cl.Drops = append(cl.Drops, drops...)
@@ -276,7 +270,7 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 	keys := p.cb.Keys()
 	for i, it := range p.items {
 		row := post[i*K : (i+1)*K]
-		best := argmax(row)
+		best := floats.MaxIdx(row)
 		method := res.Method
 		if p.gold[i] >= 0 {
 			method = "gold"
@@ -389,14 +383,4 @@ func sortNumericStrata(s crowd.Strata) crowd.Strata {
 		}
 	}
 	return crowd.Strata{Of: of, Names: names}
-}
-
-func argmax(p []float64) int {
-	b := 0
-	for i, v := range p {
-		if v > p[b] {
-			b = i
-		}
-	}
-	return b
 }

@@ -7,6 +7,8 @@ import (
 	"slices"
 	"strings"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/learner"
 	"handoff/selector"
@@ -179,7 +181,7 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 			return false
 		}
 		row := cr.posterior[i*K : (i+1)*K]
-		return row[argmax(row)] >= rc.Standard.Level || int(cr.nlabels[i]) >= rc.Standard.Cap
+		return row[floats.MaxIdx(row)] >= rc.Standard.Level || int(cr.nlabels[i]) >= rc.Standard.Cap
 	}
 	if c.s.HeldOut == nil {
 		return nil, fmt.Errorf("the rounds' state has no held-out set; run `loop round DIR --force`")
@@ -354,7 +356,7 @@ func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelR
 			continue
 		}
 		rep.Scored++
-		b := argmax(row)
+		b := floats.MaxIdx(row)
 		if row[b] >= th {
 			out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: slices.Clone(row), Model: c.r.Model, Round: c.r.Round})
 		} else {

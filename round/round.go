@@ -14,6 +14,15 @@
 // Every step is deterministic given the store's contents and Config.Seed: the
 // same store and settings give byte-identical stored results, from the
 // command line or from the board.
+//
+// Size: this is the largest package below the CLI (about 4,000 lines)
+// because it is the one place where the steps meet and where the state
+// that carries from round to round lives: the held-out set and its
+// reference standard, the stop set, the learning-curve record, the
+// settings with their keys and ranges, the consensus and training reports
+// and their text forms. Splitting it would spread that state over
+// packages that must then share it; what is not the round (export, roll-up,
+// planning, curve replays) has moved out to export/ and plan/.
 package round
 
 import (
@@ -131,6 +140,47 @@ func projectOf(sn *store.Snapshot) (*project, error) {
 		p.hasG = true
 	}
 	return p, nil
+}
+
+// clean applies the cleaning rules (none when noCleaning) to the project's
+// labels, screening annotators against gold when the project has any, and
+// returns the labels kept, what was dropped, and the gold per item
+// position it used (nil without gold).
+func (p *project) clean(rules crowd.Rules, noCleaning bool) (*crowd.Labels, *crowd.Cleaning, []int, error) {
+	var gold []int
+	if p.hasG {
+		gold = p.gold
+	}
+	kept, cl, err := crowd.Clean(p.labels, gold, cleaningRules(rules, noCleaning))
+	return kept, cl, gold, err
+}
+
+// cleaningRules are the rules, or none when noCleaning.
+func cleaningRules(rules crowd.Rules, noCleaning bool) crowd.Rules {
+	if noCleaning {
+		return crowd.Rules{}
+	}
+	return rules
+}
+
+// withConsensus reads the project and its stored consensus in one read
+// transaction, and lays the consensus out per item position: the posterior
+// (items × classes, row-major) and the labels it counted per item. It
+// returns an error wrapping ErrNothing when no consensus was stored yet.
+func withConsensus(st *store.Store) (*project, *store.Snapshot, []float64, []int, error) {
+	sn, err := st.Snapshot(store.SnapshotOptions{Times: true})
+	if err != nil {
+		return nil, nil, nil, nil, err
+	}
+	p, err := projectOf(sn)
+	if err != nil {
+		return nil, nil, nil, nil, err
+	}
+	if sn.ConsensusMeta == nil {
+		return nil, nil, nil, nil, fmt.Errorf("%w: no consensus yet; run `loop consensus DIR` first", ErrNothing)
+	}
+	post, nl := posteriorsOf(p, sn.Consensus)
+	return p, sn, post, nl, nil
 }
 
 // ErrNothing is returned by a step that has nothing to work on; its message

@@ -5,45 +5,20 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"path/filepath"
 	"reflect"
 	"slices"
 	"strings"
 	"testing"
 
 	"handoff"
+	"handoff/internal/testproject"
 	"handoff/selector"
 	"handoff/sim"
 	"handoff/store"
 )
 
-// smallProject builds a text project from the invented demo scenario (sim/):
-// about 800 sentences, 40% labelled by a simulated crowd at 5 labels each.
-func smallProject(t *testing.T, dir string, seed uint64) (*store.Store, *sim.Demo) {
-	t.Helper()
-	d, err := sim.NewDemo(sim.DemoConfig{
-		Dir:      filepath.Join(dir, "images"),
-		Text:     sim.TextConfig{Reports: 200},
-		Images:   sim.ImageConfig{PerMagnification: 20},
-		Labelled: 0.4,
-	}, seed)
-	if err != nil {
-		t.Fatal(err)
-	}
-	st, err := store.Create(filepath.Join(dir, "p"), sim.TopicCodebook(), "test")
-	if err != nil {
-		t.Fatal(err)
-	}
-	t.Cleanup(func() { st.Close() })
-	items, labels, _ := d.Of(handoff.KindText)
-	if _, err := st.PutItems(items, false, "test"); err != nil {
-		t.Fatal(err)
-	}
-	if _, err := st.PutLabels(labels, "test"); err != nil {
-		t.Fatal(err)
-	}
-	return st, d
-}
+// smallProject is testproject.Small.
+var smallProject = testproject.Small
 
 func TestRunIsReproducible(t *testing.T) {
 	// The same store and seed give byte-identical rounds, models and
@@ -388,27 +363,6 @@ func TestAutolabelNeedsGo(t *testing.T) {
 			t.Fatalf("audit pick %+v", x)
 		}
 	}
-	// Export: machine labels carry their source and model.
-	rows, err := Rows(st)
-	if err != nil {
-		t.Fatal(err)
-	}
-	src := map[string]int{}
-	for _, r := range rows {
-		src[r.Source]++
-		if r.Source == "machine" && (r.Model == "" || r.Round == 0) {
-			t.Fatalf("machine row without provenance: %+v", r)
-		}
-	}
-	if src["machine"] != rep.Labelled || src["crowd"] == 0 {
-		t.Fatalf("export sources %v, want %d machine rows", src, rep.Labelled)
-	}
-	for _, f := range []string{"csv", "jsonl", "parquet"} {
-		var buf bytes.Buffer
-		if err := WriteRows(&buf, f, rows, sim.TopicCodebook().Keys()); err != nil || buf.Len() == 0 {
-			t.Fatalf("export %s: %v", f, err)
-		}
-	}
 }
 
 func TestNothingToDo(t *testing.T) {
@@ -427,58 +381,6 @@ func TestNothingToDo(t *testing.T) {
 		if err := f(); !errors.Is(err, ErrNothing) {
 			t.Errorf("%s on an empty project: %v, want ErrNothing", name, err)
 		}
-	}
-}
-
-func TestRollupIntervals(t *testing.T) {
-	// Parent a: 3 of 4 items class x; parent b: all y. Shares are exact,
-	// intervals are exact binomial ones (scipy 1.10 beta.ppf, two-sided
-	// 95%: 3 of 4 → [0.19412, 0.99369]; 2 of 2 → [0.15811, 1]) and never
-	// collapse to a point.
-	rows := []Row{
-		{Item: "1", Parent: "a", Class: "x"}, {Item: "2", Parent: "a", Class: "x"},
-		{Item: "3", Parent: "a", Class: "x"}, {Item: "4", Parent: "a", Class: "y"},
-		{Item: "5", Parent: "b", Class: "y"}, {Item: "6", Parent: "b", Class: "y"},
-		{Item: "7", Parent: "b"},
-	}
-	ps, err := Rollup(rows, []string{"x", "y"}, true, RollupConfig{Seed: 1})
-	if err != nil {
-		t.Fatal(err)
-	}
-	if len(ps) != 2 || ps[0].Parent != "a" || ps[1].Items != 3 || ps[1].Answered != 2 {
-		t.Fatalf("rollup %+v", ps)
-	}
-	a := ps[0].Shares[0]
-	if math.Abs(a.Value-0.75) > 1e-12 || math.Abs(a.Lo-0.19412) > 1e-4 || math.Abs(a.Hi-0.99369) > 1e-4 {
-		t.Errorf("share of x in a: %+v", a)
-	}
-	if b := ps[1].Shares[1]; b.Value != 1 || math.Abs(b.Lo-0.15811) > 1e-4 || b.Hi != 1 {
-		t.Errorf("share of y in b: %+v", b)
-	}
-	if b := ps[1].Shares[0]; b.Value != 0 || b.Lo != 0 || !(b.Hi > 0.8) {
-		t.Errorf("share of x in b (0 of 2): %+v", b)
-	}
-	if p := ps[0].Position; p == nil || math.Abs(p.Value-1.25) > 1e-12 {
-		t.Errorf("mean position in a: %+v", p)
-	}
-}
-
-func TestPlanRedundancyHelps(t *testing.T) {
-	cells, err := Plan(PlanConfig{
-		Spec:          sim.CrowdSpec{Careful: 0.3, Average: 0.4, Careless: 0.1, Spammer: 0.2, Classes: 3, Items: 600, Annotators: 60},
-		LabelsPerItem: []int{1, 5},
-		Seeds:         2,
-		Seed:          1,
-	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	acc := map[string]float64{}
-	for _, c := range cells {
-		acc[c.Method+"@"+string(rune('0'+c.LabelsPerItem))] = c.Accuracy
-	}
-	if acc["dawid-skene@5"] <= acc["majority@1"] || acc["dawid-skene@5"] < acc["majority@5"] {
-		t.Errorf("plan accuracies %v: more labels and Dawid–Skene should help", acc)
 	}
 }
 

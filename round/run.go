@@ -11,6 +11,8 @@ import (
 	"slices"
 	"sort"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/crowd"
 	"handoff/learner"
@@ -232,7 +234,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 			return false
 		}
 		row := cr.posterior[i*K : (i+1)*K]
-		return row[argmax(row)] >= std.Level || int(cr.nlabels[i]) >= std.Cap
+		return row[floats.MaxIdx(row)] >= std.Level || int(cr.nlabels[i]) >= std.Cap
 	}
 	var rows []int
 	members := 0
@@ -291,7 +293,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 			var stopPred []int
 			for _, id := range s.StopSet {
 				if i, ok := p.index[id]; ok {
-					stopPred = append(stopPred, argmax(proba[i*K:(i+1)*K]))
+					stopPred = append(stopPred, floats.MaxIdx(proba[i*K:(i+1)*K]))
 				}
 			}
 			s.StopPreds = append(s.StopPreds, stopPred)
@@ -299,7 +301,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 		cp := curveRound{Round: s.Round, Labels: p.labels.Len(), Pred: map[string]int{}}
 		for i, it := range p.items {
 			if held.member(it) {
-				cp.Pred[it.ID] = argmax(proba[i*K : (i+1)*K])
+				cp.Pred[it.ID] = floats.MaxIdx(proba[i*K : (i+1)*K])
 			}
 		}
 		s.Curve = append(s.Curve, cp)
@@ -451,7 +453,7 @@ func verdictInput(p *project, cr *consensusResult, s *state, cfg Config, proba f
 			in.Proba = append(in.Proba, slices.Clone(pr))
 		default:
 			row := cr.posterior[i*K : (i+1)*K]
-			c := argmax(row)
+			c := floats.MaxIdx(row)
 			if row[c] >= std.Level || int(cr.nlabels[i]) >= std.Cap {
 				st.Met++
 				ref[it.ID] = c
@@ -658,7 +660,7 @@ func goldCheck(p *project, cfg Config) (*verdict.GoldCounts, error) {
 				continue
 			}
 			row := cr.posterior[i*K : (i+1)*K]
-			b := argmax(row)
+			b := floats.MaxIdx(row)
 			if row[b] < cfg.Standard.Level && int(cr.nlabels[i]) < cfg.Standard.Cap {
 				continue
 			}
@@ -690,7 +692,7 @@ func auditCounts(p *project, cr *consensusResult, s *state, machine map[string]h
 			continue
 		}
 		a.Items++
-		if keys[argmax(cr.posterior[i*K:(i+1)*K])] != m.Class {
+		if keys[floats.MaxIdx(cr.posterior[i*K:(i+1)*K])] != m.Class {
 			a.Errors++
 		}
 	}
@@ -788,10 +790,10 @@ func picksToBatch(p *project, pool selector.Pool, plan selector.Plan, machine ma
 		b := BatchItem{Item: it.ID, Reason: string(pk.Reason), Score: pk.Score, Kind: string(it.Kind), Text: it.Text, Path: it.Path, Parent: it.Parent}
 		switch pk.Reason {
 		case selector.ReasonConflict:
-			b.Machine = keys[argmax(pool.Proba[pk.Item])]
-			b.Crowd = keys[argmax(pool.Consensus[pk.Item])]
+			b.Machine = keys[floats.MaxIdx(pool.Proba[pk.Item])]
+			b.Crowd = keys[floats.MaxIdx(pool.Consensus[pk.Item])]
 		case selector.ReasonSplit:
-			b.Crowd = keys[argmax(pool.Consensus[pk.Item])]
+			b.Crowd = keys[floats.MaxIdx(pool.Consensus[pk.Item])]
 		case selector.ReasonAudit:
 			b.Machine = machine[it.ID].Class
 		}

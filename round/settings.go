@@ -114,6 +114,9 @@ func (c *Config) defaults() {
 	if c.Consensus.Uncertain <= 0 {
 		c.Consensus.Uncertain = 0.95
 	}
+	if c.Consensus.Rules.RepeatTimes <= 0 {
+		c.Consensus.Rules.RepeatTimes = crowd.DefaultRules().RepeatTimes
+	}
 	if c.Train.Lambda <= 0 {
 		c.Train.Lambda = 0.1
 	}
@@ -333,6 +336,10 @@ func init() {
 		flag("cleaning", "apply the cleaning rules at all", func(c *Config) *bool { return &c.Consensus.NoCleaning }, true),
 		flag("first-only", "keep only each annotator's first label on an item", func(c *Config) *bool { return &c.Consensus.Rules.FirstOnly }, false),
 		flag("repeat-offenders", "drop annotators who labelled many items many times", func(c *Config) *bool { return &c.Consensus.Rules.RepeatOffenders }, false),
+		integer("repeat-items", "repeat offenders: more than this many items…", "an integer ≥ 0",
+			func(c *Config) *int { return &c.Consensus.Rules.RepeatItems }, func(x int) bool { return x >= 0 }),
+		integer("repeat-times", "…each labelled more than this many times", "an integer ≥ 1",
+			func(c *Config) *int { return &c.Consensus.Rules.RepeatTimes }, func(x int) bool { return x >= 1 }),
 		flag("gold-screen", "drop annotators who do badly on gold items", func(c *Config) *bool { return &c.Consensus.Rules.GoldScreen }, false),
 		num("gold-min-accuracy", "gold screening: drop annotators below this accuracy on gold…", "a number in [0, 1]",
 			func(c *Config) *float64 { return &c.Consensus.Rules.GoldMinAccuracy }, func(x float64) bool { return x >= 0 && x <= 1 }),
@@ -599,8 +606,9 @@ func given(c *Config) []verdict.Setting {
 }
 
 // Settings returns the project's settings — the defaults with the stored
-// keys applied — and each key with its value and source.
-func Settings(st *store.Store) (Config, []verdict.Setting, error) {
+// keys applied, then over (settings changed for one run, in order) — and
+// each key with its value and source.
+func Settings(st *store.Store, over ...Override) (Config, []verdict.Setting, error) {
 	raw, err := st.State(settingsState)
 	if err != nil && !errors.Is(err, store.ErrNotFound) {
 		return Config{}, nil, err
@@ -609,7 +617,7 @@ func Settings(st *store.Store) (Config, []verdict.Setting, error) {
 	if err != nil {
 		return Config{}, nil, err
 	}
-	return configFrom(m, nil)
+	return configFrom(m, over)
 }
 
 // SetSettings stores the given keys as the project's settings (each checked

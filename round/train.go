@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff"
 	"handoff/features"
 	"handoff/learner"
@@ -76,22 +78,14 @@ type trained struct {
 // Train fits the machine on the stored consensus of every labelled item that
 // is not held out, stores the model and returns its report.
 func Train(st *store.Store, cfg TrainConfig, source string) (*TrainReport, error) {
-	sn, err := st.Snapshot(store.SnapshotOptions{Times: true})
+	p, sn, post, nl, err := withConsensus(st)
 	if err != nil {
 		return nil, err
-	}
-	p, err := projectOf(sn)
-	if err != nil {
-		return nil, err
-	}
-	if sn.ConsensusMeta == nil {
-		return nil, fmt.Errorf("%w: no consensus yet; run `loop consensus DIR` first", ErrNothing)
 	}
 	s, err := decodeState(sn.State[stateName])
 	if err != nil {
 		return nil, err
 	}
-	post, nl := posteriorsOf(p, sn.Consensus)
 	var rows []int
 	for i, it := range p.items {
 		if (nl[i] > 0 || p.gold[i] >= 0) && !s.HeldOut.member(it) {
@@ -247,13 +241,7 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	if len(rows) == 0 {
 		return nil, fmt.Errorf("%w: no labelled %s items to train on; label some items and run `loop consensus` first", ErrNothing, kind)
 	}
-	lname := cfg.Learner
-	if lname == "" {
-		lname = "logistic"
-		if kind == handoff.KindImage {
-			lname = "forest"
-		}
-	}
+	lname := learnerName(cfg.Learner, kind)
 	fit, err := learnerFor(lname, cfg)
 	if err != nil {
 		return nil, err
@@ -327,82 +315,18 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	if folds < 2 {
 		return nil, fmt.Errorf("%w: %d labelled items in one parent group cannot be cross-validated; label items of other parents", ErrNothing, len(rows))
 	}
-	foldRows, err := learner.GroupKFold(len(rows), groups, folds, cfg.Seed)
+	cv, err := learner.CrossValidate(fit, X, sub, nil, groups, folds, cfg.Seed)
 	if err != nil {
 		return nil, fmt.Errorf("cross-validation: %w", err)
 	}
 	kp := len(present)
-	oofRaw := make([]float64, len(rows)*kp)
-	inFold := make([]bool, len(rows))
-	for f, te := range foldRows {
-		clear(inFold)
-		for _, j := range te {
-			inFold[j] = true
-		}
-		var tr []int
-		for j := range rows {
-			if !inFold[j] {
-				tr = append(tr, j)
-			}
-		}
-		// The fold's model is fitted on the classes its training rows have;
-		// it gives probability 0 to the others (it never saw them).
-		fmass := make([]float64, kp)
-		for _, j := range tr {
-			for c, v := range sub[j] {
-				fmass[c] += v
-			}
-		}
-		var fcls []int
-		for c, m := range fmass {
-			if m > 1e-9 {
-				fcls = append(fcls, c)
-			}
-		}
-		if len(fcls) < 2 {
-			return nil, fmt.Errorf("cross-validation fold %d of %d: its training items all have one class; label more items of other classes", f+1, folds)
-		}
-		trT := make([][]float64, len(tr))
-		for a, j := range tr {
-			t := make([]float64, len(fcls))
-			sum := 0.0
-			for b, c := range fcls {
-				t[b] = sub[j][c]
-				sum += t[b]
-			}
-			if sum <= 0 {
-				// All of this row's mass is on classes the fold lacks:
-				// spread it evenly over the fold's classes.
-				for b := range t {
-					t[b] = 1 / float64(len(t))
-				}
-			} else {
-				for b := range t {
-					t[b] /= sum
-				}
-			}
-			trT[a] = t
-		}
-		mod, err := fit.Fit(learner.Subset(X, tr), trT, nil)
-		if err != nil {
-			return nil, fmt.Errorf("cross-validation fold %d of %d: %w", f+1, folds, err)
-		}
-		pr := make([]float64, len(te)*len(fcls))
-		mod.PredictProbaInto(pr, learner.Subset(X, te))
-		for a, j := range te {
-			row := oofRaw[j*kp : (j+1)*kp]
-			clear(row)
-			for b, c := range fcls {
-				row[c] = pr[a*len(fcls)+b]
-			}
-		}
-	}
 	nf := folds
 	truth := make([]int, len(rows))
 	for j := range rows {
-		truth[j] = argmax(sub[j])
+		truth[j] = floats.MaxIdx(sub[j])
 	}
-	raw1 := rowsAt(oofRaw, len(rows), kp, 1)
+	oofRaw := cv.Proba
+	raw1 := tempered(oofRaw, 1)
 	// Calibrate against the consensus class, the answer the verdict
 	// counts agreement with.
 	hard := make([][]float64, len(rows))
@@ -416,13 +340,10 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 		T, cal.ECEAfter = 1, cal.ECEBefore // too few rows to fit a temperature
 	}
 	m.Temperature = T
-	rawT := rowsAt(oofRaw, len(rows), kp, T)
 	before, after := cal.ECEBefore, cal.ECEAfter
-	pred := make([]int, len(rows))
-	for j := range pred {
-		pred[j] = argmax(rawT[j])
-	}
-	acc, f1 := learner.AccuracyF1(truth, pred, kp)
+	// Temperature scaling keeps each row's order, so the cross-validated
+	// accuracy and macro-F1 are the same before and after it.
+	acc, f1 := cv.Accuracy, cv.MacroF1
 	final, err := fit.Fit(X, sub, nil)
 	if err != nil {
 		return nil, fmt.Errorf("training %s: %w", lname, err)
@@ -437,7 +358,7 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 	// Out-of-fold probabilities over all codebook classes, calibrated.
 	oof := make([]float64, len(rows)*K)
 	for j := range rows {
-		row := slices.Clone(oofRaw[j*kp : (j+1)*kp])
+		row := slices.Clone(oofRaw[j])
 		learner.Temper(row, T)
 		for a, c := range present {
 			oof[j*K+c] = row[a]
@@ -452,14 +373,26 @@ func uniqueStrings(xs []string) []string {
 	return slices.Compact(u)
 }
 
-// rowsAt returns the out-of-fold probabilities as rows, tempered by T.
-func rowsAt(raw []float64, n, k int, T float64) [][]float64 {
-	out := make([][]float64, n)
-	for j := range n {
-		out[j] = slices.Clone(raw[j*k : (j+1)*k])
+// tempered returns copies of the rows, tempered by T.
+func tempered(rows [][]float64, T float64) [][]float64 {
+	out := make([][]float64, len(rows))
+	for j, r := range rows {
+		out[j] = slices.Clone(r)
 		learner.Temper(out[j], T)
 	}
 	return out
+}
+
+// learnerName is the learner configured, or by default logistic for text
+// and forest for images.
+func learnerName(name string, kind handoff.Kind) string {
+	switch {
+	case name != "":
+		return name
+	case kind == handoff.KindImage:
+		return "forest"
+	}
+	return "logistic"
 }
 
 // learnerFor returns the configured learner.

@@ -15,6 +15,8 @@ package selector
 import (
 	"fmt"
 	"math"
+
+	"gonum.org/v1/gonum/floats"
 )
 
 // Strategy names an uncertainty score for the model-unsure part of a batch.
@@ -103,17 +105,6 @@ func LeastConfidenceScore(p []float64) float64 {
 	return 1 - m
 }
 
-// Argmax returns the index of the largest entry of p (the first one on ties).
-func Argmax(p []float64) int {
-	best := 0
-	for j, v := range p {
-		if v > p[best] {
-			best = j
-		}
-	}
-	return best
-}
-
 // VoteEntropy returns, for each item, the vote entropy of a committee
 // (Dagan & Engelson 1995; Settles 2009, eq. 2.4):
 //
@@ -152,7 +143,7 @@ func VoteEntropy(committee [][][]float64) ([]float64, error) {
 			if err := checkProba(p); err != nil {
 				return nil, fmt.Errorf("committee member %d, item %d: %w", m, i, err)
 			}
-			votes[Argmax(p)]++
+			votes[floats.MaxIdx(p)]++
 		}
 		h := 0.0
 		for _, v := range votes {

@@ -6,6 +6,8 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 )
 
@@ -291,7 +293,7 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 					if err := checkProba(p); err != nil {
 						return nil, fmt.Errorf("item %d: model probabilities: %w", i, err)
 					}
-					score[i] = p[Argmax(p)]
+					score[i] = p[floats.MaxIdx(p)]
 				}
 			}
 			below = ranked(below, score)
@@ -318,7 +320,7 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 			if err := checkProba(post); err != nil {
 				return nil, fmt.Errorf("item %d: consensus posterior: %w", i, err)
 			}
-			c := Argmax(post)
+			c := floats.MaxIdx(post)
 			top := post[c]
 			if plan.Conflict > 0 && top >= conflictAbove {
 				p := pool.Proba[i]
@@ -331,7 +333,7 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 				if err := checkProba(p); err != nil {
 					return nil, fmt.Errorf("item %d: model probabilities: %w", i, err)
 				}
-				if Argmax(p) != c {
+				if floats.MaxIdx(p) != c {
 					conf[i] = 1 - p[c]
 					cc = append(cc, i)
 				}
@@ -410,7 +412,7 @@ func unsure(pool Pool, plan Plan, st Strategy, taken []bool, want int, ranked fu
 					avg[j] += v
 				}
 			}
-			pred[i] = Argmax(avg)
+			pred[i] = floats.MaxIdx(avg)
 		}
 	} else {
 		if pool.Proba == nil {
@@ -429,7 +431,7 @@ func unsure(pool Pool, plan Plan, st Strategy, taken []bool, want int, ranked fu
 		}
 		for k, i := range cand {
 			score[i] = s[k]
-			pred[i] = Argmax(pool.Proba[i])
+			pred[i] = floats.MaxIdx(pool.Proba[i])
 		}
 	}
 	if plan.Beta > 0 {

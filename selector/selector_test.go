@@ -6,6 +6,8 @@ import (
 	"reflect"
 	"testing"
 
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 )
 
@@ -161,7 +163,7 @@ func TestBalancedQuotas(t *testing.T) {
 	count := func(picks []Pick) [3]int {
 		var k [3]int
 		for _, p := range picks {
-			k[Argmax(proba[p.Item])]++
+			k[floats.MaxIdx(proba[p.Item])]++
 		}
 		return k
 	}
@@ -235,20 +237,20 @@ func TestSelectMixRespectsQuotas(t *testing.T) {
 		c := pool.Consensus[p.Item]
 		switch p.Reason {
 		case ReasonSplit:
-			if c[Argmax(c)] >= 0.8 || pool.Labels[p.Item] >= 5 {
+			if c[floats.MaxIdx(c)] >= 0.8 || pool.Labels[p.Item] >= 5 {
 				t.Errorf("crowd-split pick %d has posterior %v and %d labels", p.Item, c, pool.Labels[p.Item])
 			}
 		case ReasonStandard:
 			// The machine's most confident below-standard items go first.
-			conf := pool.Proba[p.Item][Argmax(pool.Proba[p.Item])]
+			conf := pool.Proba[p.Item][floats.MaxIdx(pool.Proba[p.Item])]
 			for i, st := range pool.State {
-				if st == HeldOutBelow && !seen[i] && pool.Proba[i][Argmax(pool.Proba[i])] > conf {
-					t.Errorf("reference pick %d (confidence %.3f) before item %d (%.3f)", p.Item, conf, i, pool.Proba[i][Argmax(pool.Proba[i])])
+				if st == HeldOutBelow && !seen[i] && pool.Proba[i][floats.MaxIdx(pool.Proba[i])] > conf {
+					t.Errorf("reference pick %d (confidence %.3f) before item %d (%.3f)", p.Item, conf, i, pool.Proba[i][floats.MaxIdx(pool.Proba[i])])
 					break
 				}
 			}
 		case ReasonConflict:
-			if c[Argmax(c)] < 0.9 || Argmax(c) == Argmax(pool.Proba[p.Item]) {
+			if c[floats.MaxIdx(c)] < 0.9 || floats.MaxIdx(c) == floats.MaxIdx(pool.Proba[p.Item]) {
 				t.Errorf("conflict pick %d: consensus %v, model %v", p.Item, c, pool.Proba[p.Item])
 			}
 		}

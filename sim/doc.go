@@ -38,4 +38,9 @@
 // configuration and seed give byte-identical items, images and labels; a
 // different seed gives different ones. Crowd.Answer is deterministic given the
 // seed, the round and the labels already asked for each item.
+//
+// Size: about 2,600 lines, because the invented scenario draws both its
+// texts and its images, and its crowds (careful, careless, spammers, shared
+// confusions, sparse streams) are what the demo, the planning and many tests
+// run on.
 package sim

@@ -8,9 +8,9 @@ import (
 	bolt "go.etcd.io/bbolt"
 )
 
-// DefaultImportChunk is the number of records an import writes per
+// defaultImportChunk is the number of records an import writes per
 // transaction (see Store.ImportChunk).
-const DefaultImportChunk = 50_000
+const defaultImportChunk = 50_000
 
 var (
 	kPending = []byte("pending_import")
@@ -31,7 +31,7 @@ func (s *Store) chunk() int {
 	if s.ImportChunk > 0 {
 		return s.ImportChunk
 	}
-	return DefaultImportChunk
+	return defaultImportChunk
 }
 
 // write runs fn in one write transaction, holding the store's write lock

@@ -19,6 +19,7 @@ type ImportResult struct {
 	Updated int // existing records replaced (items with update set; gold)
 }
 
+// String says in words what the import did: "45 added, 0 updated".
 func (r ImportResult) String() string {
 	return fmt.Sprintf("%d added, %d updated", r.Added, r.Updated)
 }

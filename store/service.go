@@ -75,9 +75,9 @@ type SubmitResult struct {
 // Errors returned by Submit (wrapped, test with errors.Is). Each means
 // nothing was written.
 var (
-	ErrLeaseUnknown    = errors.New("no such lease: fetch the next item again")
-	ErrLeaseExpired    = errors.New("the lease has expired: fetch the next item again")
-	ErrLeaseMismatch   = errors.New("the lease was given for another item or person")
+	errLeaseUnknown    = errors.New("no such lease: fetch the next item again")
+	errLeaseExpired    = errors.New("the lease has expired: fetch the next item again")
+	errLeaseMismatch   = errors.New("the lease was given for another item or person")
 	ErrAlreadyLabelled = errors.New("this person has already labelled this item")
 	ErrKeyReused       = errors.New("the idempotency key was already used for a different label")
 	// ErrNotLatest is returned by ChangeLabel.
@@ -371,7 +371,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 		if sub.Lease != "" && !sub.LeaseChecked {
 			v := leases.Get([]byte(sub.Lease))
 			if v == nil {
-				outcome = fmt.Errorf("lease %q: %w", sub.Lease, ErrLeaseUnknown)
+				outcome = fmt.Errorf("lease %q: %w", sub.Lease, errLeaseUnknown)
 				return nil
 			}
 			var ls ServiceLease
@@ -379,11 +379,11 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 				return fmt.Errorf("store: damaged lease %q: %w", sub.Lease, err)
 			}
 			if ls.Annotator != l.Annotator || ls.Item != l.Item {
-				outcome = fmt.Errorf("lease %q: %w", sub.Lease, ErrLeaseMismatch)
+				outcome = fmt.Errorf("lease %q: %w", sub.Lease, errLeaseMismatch)
 				return nil
 			}
 			if !s.now().Before(ls.Expires) {
-				outcome = fmt.Errorf("lease %q expired at %s: %w", sub.Lease, ls.Expires.Format(time.RFC3339), ErrLeaseExpired)
+				outcome = fmt.Errorf("lease %q expired at %s: %w", sub.Lease, ls.Expires.Format(time.RFC3339), errLeaseExpired)
 				return nil
 			}
 		}
@@ -455,21 +455,11 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 	return res, outcome
 }
 
-// GrantLease stores a lease (group commit, like Submit) and returns once it
-// has committed. A lease with the same id is replaced. Leases are not
-// recorded in the audit trail: they change no data, only who is working on
-// what.
-func (s *Store) GrantLease(l ServiceLease) error {
-	fn, err := grantLease(l)
-	if err != nil {
-		return err
-	}
-	return s.batch(fn)
-}
-
-// GrantLeaseLater stores a lease like GrantLease but does not wait: the
-// write rides along with the next group commit (see ride), so handing out
-// work costs neither a wait nor a commit of its own. after (may be nil)
+// GrantLeaseLater stores a lease (replacing one with the same id) without
+// waiting: the write rides along with the next group commit (see ride), so
+// handing out work costs neither a wait nor a commit of its own. Leases are
+// not recorded in the audit trail: they change no data, only who is working
+// on what. after (may be nil)
 // gets the outcome once that commit has ended (quick, no store writes: see
 // ride); until then a crash may lose the lease.
 func (s *Store) GrantLeaseLater(l ServiceLease, after func(error)) {

@@ -18,10 +18,10 @@ func TestSubmit(t *testing.T) {
 	if _, err := s.PutItems(textItems(3, "i"), false, "test"); err != nil {
 		t.Fatal(err)
 	}
-	if err := s.GrantLease(ServiceLease{ID: "L1", Item: "i000", Annotator: "ann", Expires: now.Add(time.Minute)}); err != nil {
+	if err := s.grantLeaseNow(ServiceLease{ID: "L1", Item: "i000", Annotator: "ann", Expires: now.Add(time.Minute)}); err != nil {
 		t.Fatal(err)
 	}
-	if err := s.GrantLease(ServiceLease{ID: "L2", Item: "i001", Annotator: "ann", Expires: now.Add(-time.Second)}); err != nil {
+	if err := s.grantLeaseNow(ServiceLease{ID: "L2", Item: "i001", Annotator: "ann", Expires: now.Add(-time.Second)}); err != nil {
 		t.Fatal(err)
 	}
 	lab := func(item, class string) handoff.Label {
@@ -54,9 +54,9 @@ func TestSubmit(t *testing.T) {
 	}{
 		{"key reused for another class", Submission{Label: lab("i000", "b"), Key: "k1"}, ErrKeyReused},
 		{"second answer on the item", Submission{Label: lab("i000", "b"), Key: "k2"}, ErrAlreadyLabelled},
-		{"expired lease", Submission{Label: lab("i001", "b"), Key: "k3", Lease: "L2"}, ErrLeaseExpired},
-		{"unknown lease", Submission{Label: lab("i002", "b"), Key: "k4", Lease: "nope"}, ErrLeaseUnknown},
-		{"lease of another item", Submission{Label: lab("i002", "b"), Key: "k5", Lease: "L2"}, ErrLeaseMismatch},
+		{"expired lease", Submission{Label: lab("i001", "b"), Key: "k3", Lease: "L2"}, errLeaseExpired},
+		{"unknown lease", Submission{Label: lab("i002", "b"), Key: "k4", Lease: "nope"}, errLeaseUnknown},
+		{"lease of another item", Submission{Label: lab("i002", "b"), Key: "k5", Lease: "L2"}, errLeaseMismatch},
 	}
 	for _, c := range cases {
 		if _, err := s.Submit(c.sub, "test"); !errors.Is(err, c.want) {
@@ -327,4 +327,13 @@ func TestDeleteTokens(t *testing.T) {
 	if fmt.Sprint(left) != "[t2]" {
 		t.Errorf("tokens left %v", left)
 	}
+}
+
+// grantLeaseNow is GrantLeaseLater that waits for the commit.
+func (s *Store) grantLeaseNow(l ServiceLease) error {
+	fn, err := grantLease(l)
+	if err != nil {
+		return err
+	}
+	return s.batch(fn)
 }

@@ -156,9 +156,10 @@ type RoundWrite struct {
 	Model     []byte
 	// Selection is the round's next batch (nil for none).
 	Selection []byte
-	// State holds named states to replace (see PutState).
+	// State holds named states to replace (read back with State).
 	State map[string][]byte
-	// Machine are machine labels to write (see PutMachineLabels).
+	// Machine are machine labels to write, each replacing any earlier
+	// machine label of its item (items must exist).
 	Machine []handoff.MachineLabel
 	// Action names the change in the audit trail ("" means
 	// "round.commit"); Detail says in words what was done.

@@ -4,7 +4,8 @@
 // The file holds, one bucket each: meta (schema version, codebook), items,
 // labels with indexes by item and by annotator, gold answers, annotators, an
 // append-only audit trail, and the results of later steps (consensus, models,
-// rounds, selections, machine labels, people, tokens, leases).
+// rounds, selections, machine labels, people, tokens) and the service's
+// leases and submissions (service.go).
 //
 // Every write method takes a source string saying who or what made the change
 // (a command line such as "loop items add items.csv", or a request such as
@@ -22,6 +23,11 @@
 // Items and annotators get dense numbers (0, 1, 2, … in order of arrival) that
 // never change; labels refer to them by number, so that all labels can be read
 // as compact arrays (see LabelTable and EachLabel).
+//
+// Size: about 2,800 lines, because it is the one package that touches
+// bbolt: every bucket's encoding, chunked imports with their rollback, the
+// group commit of the service, snapshots and the round commit live here so
+// that no other package needs the file's layout.
 package store
 
 import (
@@ -39,12 +45,12 @@ import (
 	"handoff"
 )
 
-// FileName is the name of the database file inside a project directory.
-const FileName = "handoff.db"
+// fileName is the name of the database file inside a project directory.
+const fileName = "handoff.db"
 
-// SchemaVersion is the layout version this package writes. A file with a
-// higher version is refused by Open (ErrNewerSchema).
-const SchemaVersion = 1
+// schemaVersion is the layout version this package writes. A file with a
+// higher version is refused by Open (errNewerSchema).
+const schemaVersion = 1
 
 // Bucket names and what each holds (callers use the methods, not these).
 var (
@@ -66,7 +72,7 @@ var (
 	bMachineLabels = []byte("machine_labels")  // item id → JSON machine label
 	bPeople        = []byte("people")          // person id → bytes
 	bTokens        = []byte("tokens")          // token (hash) → bytes
-	bLeases        = []byte("leases")          // item id → bytes
+	bLeases        = []byte("leases")          // unused; made and checked so that files stay readable by earlier releases
 )
 
 var allBuckets = [][]byte{bMeta, bItems, bItemIDs, bLabels, bLabelItem, bLabelAnn,
@@ -79,15 +85,15 @@ var (
 	kConsensusMeta = []byte("consensus_meta")
 )
 
-// ErrNoProject is returned by Open when DIR holds no project file.
-var ErrNoProject = errors.New("no project here: run `loop init DIR --codebook FILE` first")
+// errNoProject is returned by Open when DIR holds no project file.
+var errNoProject = errors.New("no project here: run `loop init DIR --codebook FILE` first")
 
-// ErrNewerSchema is returned (wrapped) by Open when the file was written by a
+// errNewerSchema is returned (wrapped) by Open when the file was written by a
 // newer version of loop.
-var ErrNewerSchema = errors.New("project file has a newer schema")
+var errNewerSchema = errors.New("project file has a newer schema")
 
-// ErrExists is returned by Create when DIR already holds a project.
-var ErrExists = errors.New("a project already exists here")
+// errExists is returned by Create when DIR already holds a project.
+var errExists = errors.New("a project already exists here")
 
 // ErrInUse is returned (wrapped) by Open when another process holds the
 // project file open (bbolt's file lock) for longer than Open waits.
@@ -105,6 +111,7 @@ type DataError struct {
 	Err   error
 }
 
+// Error names the field and what is wrong with it.
 func (e *DataError) Error() string {
 	if e.Field == "" {
 		return e.Err.Error()
@@ -112,6 +119,7 @@ func (e *DataError) Error() string {
 	return fmt.Sprintf("field %q: %v", e.Field, e.Err)
 }
 
+// Unwrap returns the underlying error.
 func (e *DataError) Unwrap() error { return e.Err }
 
 func dataErr(field, format string, a ...any) *DataError {
@@ -138,7 +146,7 @@ type Store struct {
 	borrowed bool
 
 	// ImportChunk is the number of records an import writes per
-	// transaction; DefaultImportChunk if ≤ 0.
+	// transaction; defaultImportChunk if ≤ 0.
 	ImportChunk int
 
 	// Now gives the time recorded in the audit trail; time.Now if nil.
@@ -154,10 +162,10 @@ func options() *bolt.Options {
 }
 
 // Path returns the database file path for project directory dir.
-func Path(dir string) string { return filepath.Join(dir, FileName) }
+func Path(dir string) string { return filepath.Join(dir, fileName) }
 
 // Create makes a new project in dir (created if missing) with the given
-// codebook, which must be valid. It fails with ErrExists if dir already has
+// codebook, which must be valid. It fails with errExists if dir already has
 // a project.
 func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
 	if err := cb.Validate(); err != nil {
@@ -171,7 +179,7 @@ func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
 	}
 	p := Path(dir)
 	if _, err := os.Stat(p); err == nil {
-		return nil, fmt.Errorf("%s: %w", p, ErrExists)
+		return nil, fmt.Errorf("%s: %w", p, errExists)
 	}
 	db, err := bolt.Open(p, 0o644, options())
 	if err != nil {
@@ -186,7 +194,7 @@ func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
 		}
 		m := tx.Bucket(bMeta)
 		var v [4]byte
-		binary.BigEndian.PutUint32(v[:], SchemaVersion)
+		binary.BigEndian.PutUint32(v[:], schemaVersion)
 		if err := m.Put(kSchema, v[:]); err != nil {
 			return err
 		}
@@ -208,14 +216,14 @@ func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
 	return s, nil
 }
 
-// Open opens the project in dir. It returns ErrNoProject if there is none,
-// and an error wrapping ErrNewerSchema if the file was written by a newer
+// Open opens the project in dir. It returns errNoProject if there is none,
+// and an error wrapping errNewerSchema if the file was written by a newer
 // loop.
 func Open(dir string) (*Store, error) {
 	p := Path(dir)
 	if _, err := os.Stat(p); err != nil {
 		if errors.Is(err, os.ErrNotExist) {
-			return nil, fmt.Errorf("%s: %w", dir, ErrNoProject)
+			return nil, fmt.Errorf("%s: %w", dir, errNoProject)
 		}
 		return nil, err
 	}
@@ -237,9 +245,9 @@ func Open(dir string) (*Store, error) {
 		if len(v) != 4 {
 			return fmt.Errorf("%s is not a loop project file (no schema version)", p)
 		}
-		if n := binary.BigEndian.Uint32(v); n > SchemaVersion {
+		if n := binary.BigEndian.Uint32(v); n > schemaVersion {
 			return fmt.Errorf("%s: %w (version %d; this loop knows up to %d): upgrade loop to open it",
-				p, ErrNewerSchema, n, SchemaVersion)
+				p, errNewerSchema, n, schemaVersion)
 		}
 		for _, name := range allBuckets {
 			if tx.Bucket(name) == nil {
@@ -296,9 +304,6 @@ func (s *Store) Borrow() *Store {
 	return &Store{db: s.db, dir: s.dir, cb: s.cb, cbIx: s.cbIx, qIx: s.qIx, wmu: s.wmu, borrowed: true,
 		ImportChunk: s.ImportChunk, Now: s.Now}
 }
-
-// Dir returns the project directory.
-func (s *Store) Dir() string { return s.dir }
 
 // Codebook returns the project's codebook.
 func (s *Store) Codebook() handoff.Codebook { return s.cb }

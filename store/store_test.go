@@ -60,8 +60,8 @@ func TestCreateOpenRoundTrip(t *testing.T) {
 		t.Fatal(err)
 	}
 	s.Close()
-	if _, err := Create(dir, testCodebook, "again"); !errors.Is(err, ErrExists) {
-		t.Fatalf("second Create: %v, want ErrExists", err)
+	if _, err := Create(dir, testCodebook, "again"); !errors.Is(err, errExists) {
+		t.Fatalf("second Create: %v, want errExists", err)
 	}
 	s, err = Open(dir)
 	if err != nil {
@@ -78,8 +78,8 @@ func TestCreateOpenRoundTrip(t *testing.T) {
 	if _, _, err := s.Item("nope"); !errors.Is(err, ErrNotFound) {
 		t.Errorf("Item(nope) err = %v", err)
 	}
-	if _, err := Open(t.TempDir()); !errors.Is(err, ErrNoProject) {
-		t.Errorf("Open(empty dir) = %v, want ErrNoProject", err)
+	if _, err := Open(t.TempDir()); !errors.Is(err, errNoProject) {
+		t.Errorf("Open(empty dir) = %v, want errNoProject", err)
 	}
 	if _, err := Create(t.TempDir(), handoff.Codebook{Question: "q", Classes: []handoff.Class{{Key: "x"}}}, "t"); err == nil {
 		t.Error("Create with a one-class codebook succeeded")
@@ -99,7 +99,7 @@ func TestNewerSchemaRefused(t *testing.T) {
 	}
 	err = db.Update(func(tx *bolt.Tx) error {
 		v := make([]byte, 4)
-		binary.BigEndian.PutUint32(v, SchemaVersion+1)
+		binary.BigEndian.PutUint32(v, schemaVersion+1)
 		return tx.Bucket(bMeta).Put(kSchema, v)
 	})
 	db.Close()
@@ -107,10 +107,10 @@ func TestNewerSchemaRefused(t *testing.T) {
 		t.Fatal(err)
 	}
 	_, err = Open(dir)
-	if !errors.Is(err, ErrNewerSchema) {
-		t.Fatalf("Open of a newer schema: %v, want ErrNewerSchema", err)
+	if !errors.Is(err, errNewerSchema) {
+		t.Fatalf("Open of a newer schema: %v, want errNewerSchema", err)
 	}
-	if !strings.Contains(err.Error(), "upgrade loop") || !strings.Contains(err.Error(), fmt.Sprint(SchemaVersion+1)) {
+	if !strings.Contains(err.Error(), "upgrade loop") || !strings.Contains(err.Error(), fmt.Sprint(schemaVersion+1)) {
 		t.Errorf("message %q should say the version and to upgrade loop", err)
 	}
 }
@@ -396,7 +396,7 @@ func TestGoldAnnotatorsAudit(t *testing.T) {
 	}
 }
 
-func TestLaterSteps(t *testing.T) {
+func TestResultsAndPeople(t *testing.T) {
 	s := newStore(t)
 	s.PutItems(textItems(3, "i"), false, "t")
 	cs := []handoff.Consensus{{Item: "i000", Class: "a", Posterior: []float64{0.8, 0.1, 0.1}, Method: "majority", Labels: 3}}
@@ -410,9 +410,6 @@ func TestLaterSteps(t *testing.T) {
 	if err != nil || !reflect.DeepEqual(got, cs) || string(meta) != `{"m":1}` {
 		t.Errorf("Consensus() = %+v %s %v", got, meta, err)
 	}
-	if c, err := s.ConsensusFor("i000"); err != nil || c.Class != "a" {
-		t.Errorf("ConsensusFor = %+v %v", c, err)
-	}
 	if _, _, err := s.LatestModel(); !errors.Is(err, ErrNotFound) {
 		t.Errorf("LatestModel on empty: %v", err)
 	}
@@ -422,14 +419,11 @@ func TestLaterSteps(t *testing.T) {
 	if v, d, _ := s.LatestModel(); v != "v1" || string(d) != "uno" {
 		t.Errorf("LatestModel = %s %s", v, d)
 	}
-	if vs, _ := s.Models(); !reflect.DeepEqual(vs, []string{"v2", "v1"}) {
-		t.Errorf("Models = %v", vs)
-	}
 	if d, _ := s.Model("v2"); string(d) != "two" {
 		t.Errorf("Model(v2) = %s", d)
 	}
-	s.PutRound(2, []byte("r2"), "r")
-	s.PutRound(1, []byte("r1"), "r")
+	s.CommitRound(RoundWrite{Round: 2, Record: []byte("r2")}, "r")
+	s.CommitRound(RoundWrite{Round: 1, Record: []byte("r1")}, "r")
 	if rs, _ := s.Rounds(); len(rs) != 2 || rs[0].N != 1 || string(rs[1].Data) != "r2" {
 		t.Errorf("Rounds = %+v", rs)
 	}
@@ -441,20 +435,16 @@ func TestLaterSteps(t *testing.T) {
 		t.Errorf("Selection(9) = %v", err)
 	}
 	ml := handoff.MachineLabel{Item: "i001", Class: "b", Confidence: 0.9, Model: "v1", Round: 1}
-	if err := s.PutMachineLabels([]handoff.MachineLabel{ml}, "a"); err != nil {
+	if err := s.CommitRound(RoundWrite{Round: 2, Machine: []handoff.MachineLabel{ml}}, "a"); err != nil {
 		t.Fatal(err)
 	}
-	if m, err := s.MachineLabel("i001"); err != nil || m.Confidence != 0.9 {
-		t.Errorf("MachineLabel = %+v %v", m, err)
-	}
-	n := 0
-	s.MachineLabels(func(m handoff.MachineLabel) error { n++; return nil })
-	if n != 1 {
-		t.Errorf("MachineLabels visited %d", n)
+	var got2 []handoff.MachineLabel
+	s.MachineLabels(func(m handoff.MachineLabel) error { got2 = append(got2, m); return nil })
+	if len(got2) != 1 || got2[0].Confidence != 0.9 {
+		t.Errorf("MachineLabels = %+v", got2)
 	}
 	s.PutPerson("ann", []byte("p"), "api")
 	s.PutToken("h1", []byte("tok"), "api")
-	s.PutLease("i000", []byte("lease"), "api")
 	if d, _ := s.Person("ann"); string(d) != "p" {
 		t.Error("Person")
 	}
@@ -465,16 +455,10 @@ func TestLaterSteps(t *testing.T) {
 	if _, err := s.Token("h1"); !errors.Is(err, ErrNotFound) {
 		t.Error("token not deleted")
 	}
-	if d, _ := s.Lease("i000"); string(d) != "lease" {
-		t.Error("Lease")
-	}
-	s.DeleteLease("i000", "api")
-	leases := 0
-	s.Leases(func(string, []byte) error { leases++; return nil })
 	people := 0
 	s.People(func(string, []byte) error { people++; return nil })
-	if leases != 0 || people != 1 {
-		t.Errorf("leases %d people %d", leases, people)
+	if people != 1 {
+		t.Errorf("people %d", people)
 	}
 }
 

@@ -176,7 +176,7 @@ ul.key{list-style:none;display:flex;flex-wrap:wrap;gap:.2rem 1.2rem;padding:0;ma
 <div class="wide"><table>
 <tr><th>figure</th><th>estimate [interval]</th></tr>
 <tr><th>accuracy</th><td>{{iv .Accuracy}}</td></tr>
-<tr><th>Cohen's kappa</th><td>{{iv .Kappa}}</td></tr>
+<tr><th>Cohen's kappa</th><td>{{if .KappaNote}}{{.KappaNote}}{{else}}{{iv .Kappa}}{{end}}</td></tr>
 <tr><th>macro-F1</th><td>{{iv .MacroF1}}</td></tr>
 </table></div>
 <div class="wide"><table>

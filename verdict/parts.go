@@ -4,6 +4,8 @@ import (
 	"fmt"
 	"math"
 	"slices"
+
+	"handoff/crowd"
 )
 
 // Annotator is one person's agreement with the crowd, computed elsewhere
@@ -159,7 +161,14 @@ func Stability(rounds [][]int, k int, threshold float64, window int) StopRule {
 	}
 	s := StopRule{Threshold: threshold, Window: window, Kappas: []float64{}}
 	for r := 1; r < len(rounds); r++ {
-		s.Kappas = append(s.Kappas, Kappa(rounds[r-1], rounds[r], k))
+		kp, err := crowd.CohenKappa(rounds[r-1], rounds[r], k)
+		if err != nil && slices.Equal(rounds[r-1], rounds[r]) {
+			// Identical predictions that all name one class: κ is
+			// undefined (crowd.CohenKappa), but nothing changed between
+			// the rounds, which is what the rule asks.
+			kp.Kappa = 1
+		}
+		s.Kappas = append(s.Kappas, kp.Kappa)
 	}
 	if len(s.Kappas) >= window {
 		s.Stable = true

@@ -21,6 +21,17 @@ func pct(v float64) string {
 	return strings.Replace(fmt.Sprintf("%.1f%%", 100*v), ".0%", "%", 1)
 }
 
+// kappaText is the held-out kappa with its interval, or why it has none.
+func kappaText(a Agreement) string {
+	switch {
+	case strings.HasPrefix(a.KappaNote, "no estimate"):
+		return a.KappaNote
+	case a.KappaNote != "":
+		return fmt.Sprintf("%.3f (%s)", a.Kappa.Est, a.KappaNote)
+	}
+	return iv(a.Kappa)
+}
+
 func iv(v Interval) string { return fmt.Sprintf("%.3f [%.3f, %.3f]", v.Est, v.Lo, v.Hi) }
 
 // ivp formats an interval that may be absent ("no estimate").
@@ -73,7 +84,7 @@ func (r *Report) WriteText(w io.Writer) error {
 	a := r.Agreement
 	if a.N > 0 {
 		p("\nHeld-out agreement, machine vs reference (n = %d; %.0f%% intervals: percentile bootstrap, B = %d, for the first three; exact Clopper–Pearson per class)\n", a.N, 100*a.Level, a.B)
-		p("  accuracy        %s\n  Cohen's kappa   %s\n  macro-F1        %s\n", iv(a.Accuracy), iv(a.Kappa), iv(a.MacroF1))
+		p("  accuracy        %s\n  Cohen's kappa   %s\n  macro-F1        %s\n", iv(a.Accuracy), kappaText(a), iv(a.MacroF1))
 		wid := 5
 		for _, c := range r.Classes {
 			wid = max(wid, len(c))

@@ -7,6 +7,8 @@ import (
 	"slices"
 
 	"gonum.org/v1/gonum/stat/distuv"
+
+	"handoff/crowd"
 )
 
 // ClopperPearson returns the exact two-sided binomial interval (Clopper &
@@ -105,13 +107,18 @@ type ClassScore struct {
 // Accuracy, kappa and macro-F1 have seeded percentile bootstrap intervals;
 // per-class figures and cells exact binomial ones (see Agree).
 type Agreement struct {
-	N        int          `json:"n"`
-	Level    float64      `json:"level"`
-	B        int          `json:"bootstrap"`
-	Accuracy Interval     `json:"accuracy"`
-	Kappa    Interval     `json:"kappa"`
-	MacroF1  Interval     `json:"macro_f1"`
-	Classes  []ClassScore `json:"classes"`
+	N        int      `json:"n"`
+	Level    float64  `json:"level"`
+	B        int      `json:"bootstrap"`
+	Accuracy Interval `json:"accuracy"`
+	Kappa    Interval `json:"kappa"`
+	// KappaNote says why Kappa has no estimate or no interval (Cohen's
+	// kappa is undefined where both sides use one class; see
+	// crowd.CohenKappa); "" when it has both. Resamples where kappa is
+	// undefined are left out of its interval.
+	KappaNote string       `json:"kappa_note,omitempty"`
+	MacroF1   Interval     `json:"macro_f1"`
+	Classes   []ClassScore `json:"classes"`
 	// Confusion[t][p] counts held-out items with reference class t and
 	// machine class p; Cells[t][p] is that count's share of N with its
 	// exact interval.
@@ -135,66 +142,14 @@ func confusion(c [][]int, truth, pred []int, idx []int) {
 	}
 }
 
-// KappaCounts returns Cohen's kappa (Cohen 1960) of a square table of
-// counts c[a][b] (rater A said a, rater B said b):
-//
-//	κ = (p_o − p_e) / (1 − p_e),  p_o = Σ_k c[k][k]/n,  p_e = Σ_k (row_k/n)(col_k/n).
-//
-// When p_e = 1 (both raters used one and the same class throughout) κ is
-// defined as 1, since p_o is then 1 too. It panics on an empty table.
-func KappaCounts(c [][]int) float64 {
-	k := len(c)
-	n := 0
-	row := make([]float64, k)
-	col := make([]float64, k)
-	diag := 0
-	for a := range c {
-		if len(c[a]) != k {
-			panic("verdict: kappa needs a square table")
-		}
-		for b, v := range c[a] {
-			n += v
-			row[a] += float64(v)
-			col[b] += float64(v)
-		}
-		diag += c[a][a]
-	}
-	if n == 0 {
-		panic("verdict: kappa of an empty table")
-	}
-	N := float64(n)
-	po := float64(diag) / N
-	pe := 0.0
-	for j := range row {
-		pe += row[j] / N * col[j] / N
-	}
-	if pe >= 1 {
-		return 1
-	}
-	return (po - pe) / (1 - pe)
-}
-
-// Kappa returns Cohen's kappa between two raters' class indices a and b
-// (each in [0, k)), as KappaCounts. Length mismatch or a class outside
-// [0, k) panics.
-func Kappa(a, b []int, k int) float64 {
-	if len(a) != len(b) {
-		panic(fmt.Sprintf("verdict: kappa of %d and %d answers", len(a), len(b)))
-	}
-	c := make([][]int, k)
-	for i := range c {
-		c[i] = make([]int, k)
-	}
-	confusion(c, a, b, nil)
-	return KappaCounts(c)
-}
-
 // scores computes accuracy, kappa, macro-F1, per-class precision, recall
 // and F1 of a confusion table c[truth][pred]. Conventions (scikit-learn's
 // zero_division=0): precision is 0 for a class never predicted, recall 0 for
 // a class with no support, F1 0 when both are 0; macro-F1 averages F1 over
-// the classes that occur in truth or predictions.
-func scores(c [][]int, prec, rec, f1 []float64) (acc, kappa, macro float64) {
+// the classes that occur in truth or predictions. Cohen's kappa is
+// crowd.CohenKappaCounts; kappaOK is false where it is undefined (machine
+// and reference put every item in one and the same class).
+func scores(c [][]int, prec, rec, f1 []float64) (acc, kappa float64, kappaOK bool, macro float64) {
 	k := len(c)
 	n, diag := 0, 0
 	used := 0
@@ -222,7 +177,8 @@ func scores(c [][]int, prec, rec, f1 []float64) (acc, kappa, macro float64) {
 		}
 	}
 	macro /= float64(used)
-	return float64(diag) / float64(n), KappaCounts(c), macro
+	kp, err := crowd.CohenKappaCounts(c)
+	return float64(diag) / float64(n), kp.Kappa, err == nil, macro
 }
 
 // Agree compares machine classes pred with reference classes truth (each in
@@ -268,7 +224,7 @@ func Agree(truth, pred []int, classes []string, B int, level float64, seed uint6
 	}
 	prec, rec, f1 := make([]float64, k), make([]float64, k), make([]float64, k)
 	confusion(c, truth, pred, nil)
-	acc, kap, mf1 := scores(c, prec, rec, f1)
+	acc, kap, kapOK, mf1 := scores(c, prec, rec, f1)
 	ag := Agreement{N: n, Level: level, B: B, Confusion: make([][]int, k)}
 	for j := range c {
 		ag.Confusion[j] = slices.Clone(c[j])
@@ -279,6 +235,7 @@ func Agree(truth, pred []int, classes []string, B int, level float64, seed uint6
 	for f := range series {
 		series[f] = make([]float64, B)
 	}
+	series[1] = series[1][:0]                   // kappa: only the resamples where it is defined
 	rng := rand.New(rand.NewPCG(seed, 0xb0075)) // seeded
 	idx := make([]int, n)
 	bp, br, bf := make([]float64, k), make([]float64, k), make([]float64, k)
@@ -287,15 +244,27 @@ func Agree(truth, pred []int, classes []string, B int, level float64, seed uint6
 			idx[i] = rng.IntN(n)
 		}
 		confusion(c, truth, pred, idx)
-		a, kp, m := scores(c, bp, br, bf)
-		series[0][b], series[1][b], series[2][b] = a, kp, m
+		a, kp, ok, m := scores(c, bp, br, bf)
+		series[0][b], series[2][b] = a, m
+		if ok {
+			series[1] = append(series[1], kp)
+		}
 	}
 	iv := func(f int, est float64) Interval {
 		s := series[f]
 		slices.Sort(s)
 		return Interval{Est: est, Lo: quantile7(s, (1-level)/2), Hi: quantile7(s, (1+level)/2)}
 	}
-	ag.Accuracy, ag.Kappa, ag.MacroF1 = iv(0, acc), iv(1, kap), iv(2, mf1)
+	ag.Accuracy, ag.MacroF1 = iv(0, acc), iv(2, mf1)
+	switch {
+	case !kapOK:
+		ag.KappaNote = "no estimate: machine and reference put every item in one and the same class, so kappa is 0/0"
+	case len(series[1]) < B/2:
+		ag.Kappa = Interval{Est: kap, Lo: -1, Hi: 1}
+		ag.KappaNote = fmt.Sprintf("no interval: kappa is undefined in %d of %d bootstrap resamples", B-len(series[1]), B)
+	default:
+		ag.Kappa = iv(1, kap)
+	}
 	for j := 0; j < k; j++ {
 		sup, pr := 0, 0
 		for q := 0; q < k; q++ {

@@ -47,6 +47,11 @@
 // "fit" (the learning-curve estimate, null when none), "audit", "stored"
 // (the model of the stored machine labels), "run" (the round's settings) and
 // "settings" (the verdict's). Absent parts are null.
+//
+// Size: about 2,600 lines, half of them the report's text, JSON and HTML
+// forms with their plots; the statistics themselves (stats.go, risk.go,
+// parts.go, curve.go) are small functions, each checked against a published
+// value.
 package verdict
 
 import (

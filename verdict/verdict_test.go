@@ -10,13 +10,17 @@ import (
 	"reflect"
 	"strings"
 	"testing"
+
+	"handoff/crowd"
 )
 
 func near(a, b, tol float64) bool { return math.Abs(a-b) <= tol }
 
 func TestClopperPearsonOutsideValues(t *testing.T) {
-	// Source: /work/shared/CHECKS.md "Clopper–Pearson exact binomial
-	// intervals", computed with scipy 1.10 beta.ppf (two-sided 95%).
+	// Source: Clopper & Pearson (1934) exact intervals computed with scipy
+	// 1.10 beta.ppf, two-sided 95% (copied into testdata/README.md); the
+	// one-sided bound for 0 of 300 is close to the rule of three 3/n
+	// (Hanley & Lippman-Hand 1983).
 	cases := []struct {
 		k, n   int
 		lo, hi float64
@@ -51,28 +55,29 @@ func TestClopperPearsonOutsideValues(t *testing.T) {
 	}
 }
 
+// TestCohenKappaTextbook: the verdict's kappa is crowd's (the module's one
+// Cohen's kappa), checked on the worked example of Wikipedia's "Cohen's
+// kappa" article (50 proposals read by two readers: both yes 20, A yes/B
+// no 5, A no/B yes 10, both no 15 → p_o 0.70, p_e 0.50, κ 0.40), and its
+// convention: κ is undefined when p_e = 1 (both raters use one and the
+// same class), so the held-out agreement says "no estimate" there and the
+// stop rule counts identical predictions as unchanged.
 func TestCohenKappaTextbook(t *testing.T) {
-	// Source: /work/shared/CHECKS.md, Cohen's kappa textbook 2×2 example:
-	// 50 items, both yes 20, A yes/B no 5, A no/B yes 10, both no 15 →
-	// p_o 0.70, p_e 0.50, κ 0.40.
-	if k := KappaCounts([][]int{{20, 5}, {10, 15}}); !near(k, 0.40, 1e-12) {
-		t.Errorf("kappa = %v, want 0.40", k)
+	k, err := crowd.CohenKappaCounts([][]int{{20, 5}, {10, 15}})
+	if err != nil || !near(k.Kappa, 0.40, 1e-12) || !near(k.Po, 0.70, 1e-12) || !near(k.Pe, 0.50, 1e-12) || k.N != 50 {
+		t.Errorf("kappa = %+v (%v), want κ 0.40, p_o 0.70, p_e 0.50 over 50", k, err)
 	}
-	var a, b []int
-	add := func(x, y, n int) {
-		for i := 0; i < n; i++ {
-			a, b = append(a, x), append(b, y)
-		}
+	if _, err := crowd.CohenKappaCounts([][]int{{0, 0, 0}, {0, 2, 0}, {0, 0, 0}}); err == nil {
+		t.Error("one shared class: kappa defined, want undefined (p_e = 1)")
 	}
-	add(0, 0, 20)
-	add(0, 1, 5)
-	add(1, 0, 10)
-	add(1, 1, 15)
-	if k := Kappa(a, b, 2); !near(k, 0.40, 1e-12) {
-		t.Errorf("kappa from answers = %v, want 0.40", k)
+	truth := []int{1, 1, 1, 1}
+	a, err := Agree(truth, truth, []string{"a", "b"}, 50, 0.95, 1)
+	if err != nil || !strings.HasPrefix(a.KappaNote, "no estimate") || a.Accuracy.Est != 1 {
+		t.Errorf("all one class: kappa %+v, note %q (%v), want no estimate", a.Kappa, a.KappaNote, err)
 	}
-	if k := Kappa([]int{1, 1}, []int{1, 1}, 3); k != 1 {
-		t.Errorf("one shared class: kappa %v, want 1 (our convention)", k)
+	s := Stability([][]int{{1, 1, 1}, {1, 1, 1}, {0, 1, 1}}, 2, 0.99, 1)
+	if len(s.Kappas) != 2 || s.Kappas[0] != 1 || s.Kappas[1] >= 0.99 {
+		t.Errorf("stop rule kappas %v, want 1 for identical one-class rounds, then below 0.99", s.Kappas)
 	}
 }
 

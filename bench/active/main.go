@@ -37,7 +37,7 @@ import (
 
 	"handoff/features"
 	"handoff/learner"
-	"handoff/round"
+	"handoff/plan"
 	"handoff/selector"
 )
 
@@ -103,8 +103,8 @@ func main() {
 		sets = append(sets, d)
 	}
 	seeds := seedsUpTo(*nseeds)
-	cfgFor := func(l learner.Learner) round.CurveConfig {
-		return round.CurveConfig{Learner: l, Strategy: selector.Entropy, Initial: *initial, Batch: *batch,
+	cfgFor := func(l learner.Learner) plan.CurveConfig {
+		return plan.CurveConfig{Learner: l, Strategy: selector.Entropy, Initial: *initial, Batch: *batch,
 			MaxLabels: *maxLabels, TestShare: *testShare}
 	}
 	var b strings.Builder
@@ -114,7 +114,7 @@ func main() {
 	fmt.Fprintf(&b, "mean test accuracy above random's at ≥ %.0f%% of the matched budgets between %d and %d labels,\n", 100*target, *initial+*batch, *maxLabels)
 	fmt.Fprintf(&b, "curves averaged over ≥ 5 seeds.\n\n")
 	fmt.Fprintf(&b, "There is no external peer program: the peer is **random sampling**, run by the same code\n")
-	fmt.Fprintf(&b, "(`round.CompareStrategies`) on the same test split and the same initial labelled set for every seed.\n")
+	fmt.Fprintf(&b, "(`plan.CompareStrategies`) on the same test split and the same initial labelled set for every seed.\n")
 	fmt.Fprintf(&b, "The data sets' true classes stand in for the crowd (a perfect oracle). Per seed: %.0f%% of the rows are a\n", 100**testShare)
 	fmt.Fprintf(&b, "random test set, never labelled or picked; %d random pool rows are labelled first; then %d rows per step\n", *initial, *batch)
 	fmt.Fprintf(&b, "are picked by the entropy of the model's probabilities (`selector.Select`) or at random, refitting at each\n")
@@ -127,7 +127,7 @@ func main() {
 	for _, d := range sets {
 		l, desc := d.learner(*lambda)
 		start := time.Now()
-		c, err := round.CompareStrategies(d.X, d.y, d.k, cfgFor(l), seeds)
+		c, err := plan.CompareStrategies(d.X, d.y, d.k, cfgFor(l), seeds)
 		if err != nil {
 			log.Fatalf("%s: %v", d.name, err)
 		}
@@ -182,7 +182,7 @@ func main() {
 					lg.Tol = 0
 					l, desc = lg, desc+", learner's default Tol"
 				}
-				c, err := round.CompareStrategies(d.X, d.y, d.k, cfgFor(l), seedsUpTo(5))
+				c, err := plan.CompareStrategies(d.X, d.y, d.k, cfgFor(l), seedsUpTo(5))
 				if err != nil {
 					log.Fatalf("%s: %v", d.name, err)
 				}
@@ -306,7 +306,7 @@ func loadDigits(path string) (*dataset, error) {
 }
 
 // plotCurves draws mean test accuracy against labels for both strategies.
-func plotCurves(path, title string, c *round.Comparison) error {
+func plotCurves(path, title string, c *plan.Comparison) error {
 	p := plot.New()
 	p.Title.Text = title
 	p.X.Label.Text = "labelled items"

@@ -2,20 +2,19 @@ package main
 
 import (
 	"fmt"
-	"strings"
+	"io"
 
 	"github.com/spf13/cobra"
 
+	"handoff/plan"
 	"handoff/round"
-	"handoff/verdict"
 )
 
 func init() { register(newCurvesCmd) }
 
 func newCurvesCmd() *cobra.Command {
 	var (
-		cfg    round.ProjectCurveConfig
-		kind   string
+		cfg    plan.ProjectCurveConfig
 		seeds  int
 		html   string
 		asJSON bool
@@ -41,11 +40,10 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
   loop curves proj --html curves.html`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			k, err := parseKind(kind)
+			over, err := checkedOverrides(cmd)
 			if err != nil {
 				return err
 			}
-			cfg.Train.Kind = k
 			if seeds < 1 {
 				return usageErrorf("--seeds %d: want at least 1", seeds)
 			}
@@ -58,7 +56,12 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
 				return err
 			}
 			defer s.Close()
-			cmp, err := round.ProjectCurves(s, cfg)
+			rc, err := projectConfig(s, over)
+			if err != nil {
+				return err
+			}
+			cfg.Train = rc.Train
+			cmp, err := plan.ProjectCurves(s, cfg)
 			if err != nil {
 				return err
 			}
@@ -67,22 +70,8 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
 				if err != nil {
 					return fmt.Errorf("--html shows the curves in the latest round's verdict report: %w", err)
 				}
-				r := *rep
-				r.Curve = cmp.Uncertain.Points
-				r.Compare = &verdict.Series{Name: "random (simulated)", Points: cmp.Random.Points}
-				r.Fit = nil
-				r.FitError = fmt.Sprintf("Simulated by loop curves on the %d seeds %v: the solid curve is entropy selection, "+
-					"the dashed one random selection, each the mean test error over the seeds with the consensus as the oracle. "+
-					"Entropy is ahead at %d of %d budgets (%.0f%%).", len(cmp.Seeds), cmp.Seeds, cmp.Ahead, cmp.Matched, 100*cmp.Share)
-				w, done, err := openOutput(cmd, html)
-				if err != nil {
-					return err
-				}
-				err = r.WriteHTML(w, "Handoff learning curves — "+args[0])
-				if derr := done(err == nil); err == nil {
-					err = derr
-				}
-				if err != nil {
+				r := cmp.InReport(rep)
+				if err := writeOutput(cmd, html, func(w io.Writer) error { return r.WriteHTML(w, "Handoff learning curves — "+args[0]) }); err != nil {
 					return err
 				}
 				infof(cmd, "report written to %s\n", html)
@@ -93,17 +82,11 @@ as its learning-curve plot (entropy as this project's curve, random dashed).`,
 			if html != "" && quiet(cmd) {
 				return nil
 			}
-			var b strings.Builder
-			fmt.Fprintf(&b, "test accuracy, mean over %d seeds (consensus as the oracle)\n%8s  %8s  %8s\n", len(cmp.Seeds), "labels", "entropy", "random")
-			for i, p := range cmp.Uncertain.Points {
-				fmt.Fprintf(&b, "%8d  %8.3f  %8.3f\n", p.Labels, 1-p.Error, 1-cmp.Random.Points[i].Error)
-			}
-			fmt.Fprintf(&b, "entropy ahead of random at %d of %d budgets (%.0f%%)\n", cmp.Ahead, cmp.Matched, 100*cmp.Share)
-			outf(cmd, "%s", b.String())
+			outf(cmd, "%s", cmp.Text())
 			return nil
 		},
 	}
-	trainFlags(c, &cfg.Train, &kind)
+	bindSettings(c, "learner", "features", "lambda", "folds")
 	fl := c.Flags()
 	fl.IntVar(&seeds, "seeds", 5, "number of seeds to average over (1..N)")
 	fl.IntVar(&cfg.Curve.MaxLabels, "max", 0, "last budget (default: 1000, or ¾ of the items left after the test set if fewer)")

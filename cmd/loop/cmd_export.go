@@ -1,48 +1,17 @@
 package main
 
 import (
-	"bufio"
 	"fmt"
 	"io"
-	"os"
-	"strings"
 
 	"github.com/spf13/cobra"
 
-	"handoff/round"
+	"handoff/export"
 )
 
 func init() {
 	register(newExportCmd)
 	register(newRollupCmd)
-}
-
-// openOutput returns a writer for path ("-" or "" is stdout) and a function
-// that finishes it: the file is written to a temporary name and renamed into
-// place only when everything succeeded, so a failed export leaves no half
-// file behind.
-func openOutput(cmd *cobra.Command, path string) (io.Writer, func(ok bool) error, error) {
-	if path == "" || path == "-" {
-		bw := bufio.NewWriter(cmd.OutOrStdout())
-		return bw, func(bool) error { return bw.Flush() }, nil
-	}
-	tmp := path + ".partial"
-	f, err := os.Create(tmp)
-	if err != nil {
-		return nil, nil, err
-	}
-	bw := bufio.NewWriter(f)
-	return bw, func(ok bool) error {
-		ferr := bw.Flush()
-		if cerr := f.Close(); ferr == nil {
-			ferr = cerr
-		}
-		if !ok || ferr != nil {
-			os.Remove(tmp)
-			return ferr
-		}
-		return os.Rename(tmp, path)
-	}, nil
 }
 
 func newExportCmd() *cobra.Command {
@@ -73,19 +42,11 @@ Items with no answer yet have an empty class and source.`,
 				return err
 			}
 			defer s.Close()
-			rows, err := round.Rows(s)
+			rows, err := export.Rows(s)
 			if err != nil {
 				return err
 			}
-			w, done, err := openOutput(cmd, out)
-			if err != nil {
-				return err
-			}
-			err = round.WriteRows(w, format, rows, cbKeys(s))
-			if derr := done(err == nil); err == nil {
-				err = derr
-			}
-			if err != nil {
+			if err := writeOutput(cmd, out, func(w io.Writer) error { cb := s.Codebook(); return export.Write(w, format, rows, cb.Keys()) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {
@@ -112,7 +73,7 @@ Items with no answer yet have an empty class and source.`,
 func newRollupCmd() *cobra.Command {
 	var (
 		by     string
-		cfg    round.RollupConfig
+		cfg    export.RollupConfig
 		asJSON bool
 	)
 	c := &cobra.Command{
@@ -122,7 +83,7 @@ func newRollupCmd() *cobra.Command {
 from), the share of each class among its items' final labels and, for an
 ordinal codebook, the mean position (1 = lowest class), each with an exact
 95% Clopper–Pearson interval (for the position, on its fractional count; see
-round.Rollup), the parent's items taken as a sample of its items.`,
+export.Rollup), the parent's items taken as a sample of its items.`,
 		Example: `  loop rollup proj --by parent
   loop rollup proj --by parent --json > shares.json`,
 		Args: cobra.ExactArgs(1),
@@ -135,38 +96,19 @@ round.Rollup), the parent's items taken as a sample of its items.`,
 				return err
 			}
 			defer s.Close()
-			rows, err := round.Rows(s)
+			rows, err := export.Rows(s)
 			if err != nil {
 				return err
 			}
 			cb := s.Codebook()
-			ps, err := round.Rollup(rows, cb.Keys(), cb.IsOrdinal(), cfg)
+			ps, err := export.Rollup(rows, cb.Keys(), cb.IsOrdinal(), cfg)
 			if err != nil {
 				return err
 			}
 			if asJSON {
 				return printJSON(cmd, ps)
 			}
-			var b strings.Builder
-			fmt.Fprintf(&b, "%-16s %6s", "parent", "items")
-			for _, k := range cb.Keys() {
-				fmt.Fprintf(&b, "  %-22s", k)
-			}
-			if cb.IsOrdinal() {
-				fmt.Fprintf(&b, "  %-22s", "mean position")
-			}
-			b.WriteString("\n")
-			for _, p := range ps {
-				fmt.Fprintf(&b, "%-16s %3d/%-3d", p.Parent, p.Answered, p.Items)
-				for _, sh := range p.Shares {
-					fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]      ", sh.Value, sh.Lo, sh.Hi)
-				}
-				if p.Position != nil {
-					fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]", p.Position.Value, p.Position.Lo, p.Position.Hi)
-				}
-				b.WriteString("\n")
-			}
-			outf(cmd, "%s", b.String())
+			outf(cmd, "%s", export.RollupText(ps, cb.Keys(), cb.IsOrdinal()))
 			return nil
 		},
 	}

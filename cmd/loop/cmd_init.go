@@ -4,6 +4,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/ingest"
+	"handoff/store"
 )
 
 func init() { register(newInitCmd) }
@@ -36,7 +37,7 @@ quotes when it sits inside {…}.`,
 			if err != nil {
 				return err
 			}
-			s, err := createStore(args[0], cb, cmd)
+			s, err := store.Create(args[0], cb, source(cmd))
 			if err != nil {
 				return err
 			}

@@ -1,19 +1,11 @@
 package main
 
 import (
-	"errors"
-	"fmt"
-	"io"
-	"os"
-	"path/filepath"
 	"strings"
 
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
 
-	"handoff"
 	"handoff/ingest"
-	"handoff/store"
 )
 
 func init() { registerUnder("items", newItemsAddCmd) }
@@ -71,41 +63,20 @@ The format is guessed from the name (.csv, .jsonl/.ndjson/.json, a folder or
 					}
 				}
 			}
-			srcs := make([]itemSource, 0, len(args)-1)
-			for _, f := range args[1:] {
-				fi, err := os.Stat(f)
-				if err != nil {
-					return err
-				}
-				ff := ingest.Format(format)
-				if ff == "" {
-					ff = ingest.GuessFormat(f, fi.IsDir())
-				}
-				switch ff {
-				case ingest.CSV, ingest.JSONL, ingest.Images:
-				case "":
-					return usageErrorf("cannot tell the format of %s from its name; use --format csv|jsonl|images", f)
-				default:
-					return usageErrorf("--format %q: want csv, jsonl or images", format)
-				}
-				if fi.IsDir() && ff != ingest.Images {
-					return usageErrorf("%s is a folder; only --format images reads folders", f)
-				}
-				if ff == ingest.Images && opt.SplitSentences {
-					return usageErrorf("--split applies to text, not images (%s)", f)
-				}
-				srcs = append(srcs, itemSource{path: f, format: ff})
+			srcs, err := ingest.ItemSources(args[1:], ingest.Format(format), opt.SplitSentences)
+			if err != nil {
+				return sourceUsage(err)
 			}
 			s, err := openStore(args[0])
 			if err != nil {
 				return err
 			}
 			defer s.Close()
-			m := &multiItems{cmd: cmd, srcs: srcs, opt: opt}
-			defer m.close()
-			res, err := s.ImportItems(source(cmd), update, m.next)
+			f := readFiles(cmd, ingest.ItemFiles(srcs, opt))
+			defer f.Close()
+			res, err := s.ImportItems(source(cmd), update, f.Next)
 			if err != nil {
-				return m.locate(err)
+				return located(err, f)
 			}
 			outf(cmd, "items: %s from %d file(s)\n", res, len(srcs))
 			return nil
@@ -120,121 +91,4 @@ The format is guessed from the name (.csv, .jsonl/.ndjson/.json, a folder or
 	f.StringVar(&split, "split", "", "split each text into items: \"sentences\" (UAX #29 sentence boundaries)")
 	f.BoolVar(&update, "update", false, "replace items whose id is already in the project instead of refusing them")
 	return c
-}
-
-type itemSource struct {
-	path   string
-	format ingest.Format
-}
-
-// multiItems chains the item readers of several files into one stream for
-// one store transaction, with a progress bar per file.
-type multiItems struct {
-	cmd  *cobra.Command
-	srcs []itemSource
-	opt  ingest.ItemOptions
-
-	i     int
-	file  io.Closer
-	bar   *progressbar.ProgressBar
-	count bool // bar counts items rather than bytes
-	next1 func() (handoff.Item, error)
-	where func() ingest.Location
-}
-
-func (m *multiItems) close() {
-	if m.file != nil {
-		m.file.Close()
-		m.file = nil
-	}
-	if m.bar != nil {
-		m.bar.Finish()
-		m.bar = nil
-	}
-}
-
-func (m *multiItems) open(src itemSource) error {
-	desc := filepath.Base(src.path)
-	if src.format == ingest.Images {
-		if fi, err := os.Stat(src.path); err == nil && fi.IsDir() {
-			ir, err := ingest.NewImageFolder(src.path)
-			if err != nil {
-				return err
-			}
-			m.bar = newProgress(m.cmd, int64(ir.Len()), desc)
-			m.count = true
-			m.next1, m.where = ir.Next, ir.Where
-			return nil
-		}
-	}
-	r, bar, err := progressFile(m.cmd, src.path, desc)
-	if err != nil {
-		return err
-	}
-	m.file, m.bar, m.count = r, bar, false
-	if src.format == ingest.Images {
-		if tf := ingest.GuessFormat(src.path, false); tf == ingest.CSV || tf == ingest.JSONL {
-			ir, err := ingest.NewImageTable(r, src.path, tf, filepath.Dir(src.path), m.opt)
-			if err != nil {
-				return err
-			}
-			m.next1, m.where = ir.Next, ir.Where
-			return nil
-		}
-		ir := ingest.NewImageList(r, src.path, filepath.Dir(src.path))
-		m.next1, m.where = ir.Next, ir.Where
-		return nil
-	}
-	ir, err := ingest.NewItemReader(r, src.path, src.format, m.opt)
-	if err != nil {
-		return err
-	}
-	m.next1, m.where = ir.Next, ir.Where
-	return nil
-}
-
-func (m *multiItems) next() (handoff.Item, error) {
-	for {
-		if m.next1 == nil {
-			if m.i >= len(m.srcs) {
-				return handoff.Item{}, io.EOF
-			}
-			m.where = nil
-			if err := m.open(m.srcs[m.i]); err != nil {
-				return handoff.Item{}, err
-			}
-			m.i++
-		}
-		it, err := m.next1()
-		if err == io.EOF {
-			m.close()
-			m.next1 = nil
-			continue
-		}
-		if err == nil && m.count {
-			m.bar.Add(1)
-		}
-		return it, err
-	}
-}
-
-// locate adds the file and line of the record being read to a store data
-// error.
-func (m *multiItems) locate(err error) error {
-	return locate(err, m.where)
-}
-
-func locate(err error, where func() ingest.Location) error {
-	var de *store.DataError
-	if errors.As(err, &de) && where != nil {
-		return ingest.At(where(), de.Field, de.Err)
-	}
-	var ie *ingest.Error
-	if errors.As(err, &ie) {
-		return err
-	}
-	if de != nil {
-		return fmt.Errorf("%v", de)
-	}
-	return err
 }

@@ -1,13 +1,8 @@
 package main
 
 import (
-	"io"
-	"path/filepath"
-
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
 
-	"handoff"
 	"handoff/ingest"
 )
 
@@ -39,16 +34,9 @@ answer; default the file name). Gold for an item that has gold replaces it.`,
   loop labels add proj expert.csv --gold`,
 		Args: cobra.MinimumNArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			formats := make([]ingest.Format, 0, len(args)-1)
-			for _, f := range args[1:] {
-				ff := ingest.Format(format)
-				if ff == "" {
-					ff = ingest.GuessFormat(f, false)
-				}
-				if ff != ingest.CSV && ff != ingest.JSONL {
-					return usageErrorf("cannot read labels from %s: use a .csv or .jsonl file, or --format csv|jsonl", f)
-				}
-				formats = append(formats, ff)
+			srcs, err := ingest.LabelSources(args[1:], ingest.Format(format))
+			if err != nil {
+				return sourceUsage(err)
 			}
 			s, err := openStore(args[0])
 			if err != nil {
@@ -57,108 +45,23 @@ answer; default the file name). Gold for an item that has gold replaces it.`,
 			defer s.Close()
 			cb := s.Codebook()
 			lopt.Codebook = &cb
-			gopt := ingest.GoldOptions{ItemField: lopt.ItemField, LabelField: lopt.LabelField, SourceField: sourceField, Codebook: &cb}
-
-			var (
-				i     int
-				file  io.ReadCloser
-				bar   *progressbar.ProgressBar
-				where func() ingest.Location
-			)
-			closeFile := func() {
-				if file != nil {
-					file.Close()
-					bar.Finish()
-					file = nil
-				}
-			}
-			defer closeFile()
-			// open opens the next file and returns its reader's Next as any
-			// of the two label kinds.
-			open := func() (func() (handoff.Label, error), func() (handoff.Gold, error), error) {
-				path := args[1+i]
-				r, b, err := progressFile(cmd, path, filepath.Base(path))
-				if err != nil {
-					return nil, nil, err
-				}
-				file, bar = r, b
-				if gold {
-					gr, err := ingest.NewGoldReader(r, path, formats[i], gopt)
-					if err != nil {
-						return nil, nil, err
-					}
-					where = gr.Where
-					return nil, gr.Next, nil
-				}
-				lr, err := ingest.NewLabelReader(r, path, formats[i], lopt)
-				if err != nil {
-					return nil, nil, err
-				}
-				where = lr.Where
-				return lr.Next, nil, nil
-			}
-			var (
-				nextL func() (handoff.Label, error)
-				nextG func() (handoff.Gold, error)
-			)
-			advance := func() (bool, error) {
-				closeFile()
-				if i >= len(formats) {
-					return false, nil
-				}
-				var err error
-				where = nil
-				nextL, nextG, err = open()
-				i++
-				return err == nil, err
-			}
 			if gold {
-				res, err := s.ImportGold(source(cmd), func() (handoff.Gold, error) {
-					for {
-						if nextG == nil {
-							if ok, err := advance(); !ok {
-								if err == nil {
-									err = io.EOF
-								}
-								return handoff.Gold{}, err
-							}
-						}
-						g, err := nextG()
-						if err == io.EOF {
-							nextG = nil
-							continue
-						}
-						return g, err
-					}
-				})
+				f := readFiles(cmd, ingest.GoldFiles(srcs, ingest.GoldOptions{ItemField: lopt.ItemField, LabelField: lopt.LabelField, SourceField: sourceField, Codebook: &cb}))
+				defer f.Close()
+				res, err := s.ImportGold(source(cmd), f.Next)
 				if err != nil {
-					return locate(err, where)
+					return located(err, f)
 				}
-				outf(cmd, "gold: %s from %d file(s)\n", res, len(formats))
+				outf(cmd, "gold: %s from %d file(s)\n", res, len(srcs))
 				return nil
 			}
-			res, err := s.ImportLabels(source(cmd), func() (handoff.Label, error) {
-				for {
-					if nextL == nil {
-						if ok, err := advance(); !ok {
-							if err == nil {
-								err = io.EOF
-							}
-							return handoff.Label{}, err
-						}
-					}
-					l, err := nextL()
-					if err == io.EOF {
-						nextL = nil
-						continue
-					}
-					return l, err
-				}
-			})
+			f := readFiles(cmd, ingest.LabelFiles(srcs, lopt))
+			defer f.Close()
+			res, err := s.ImportLabels(source(cmd), f.Next)
 			if err != nil {
-				return locate(err, where)
+				return located(err, f)
 			}
-			outf(cmd, "labels: %s from %d file(s)\n", res, len(formats))
+			outf(cmd, "labels: %s from %d file(s)\n", res, len(srcs))
 			return nil
 		},
 	}

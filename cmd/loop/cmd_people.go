@@ -1,9 +1,6 @@
 package main
 
 import (
-	"fmt"
-	"strings"
-
 	"github.com/spf13/cobra"
 
 	"handoff/api"
@@ -138,69 +135,13 @@ added. --json prints the same as JSON.`,
 				return err
 			}
 			defer s.Close()
-			people, err := api.People(s)
+			rows, err := api.Roster(s)
 			if err != nil {
 				return err
 			}
-			toks, err := api.Tokens(s)
-			if err != nil {
-				return err
-			}
-			type row struct {
-				api.Person
-				Tokens []api.TokenInfo `json:"tokens"`
-			}
-			rows := make([]row, 0, len(people))
-			for _, p := range people {
-				t := toks[p.ID]
-				if t == nil {
-					t = []api.TokenInfo{}
-				}
-				p.Practice.CheckItems = nil
-				rows = append(rows, row{p, t})
-			}
-			if asJSON {
-				return printJSON(cmd, rows)
-			}
-			w, cw := 0, 0
-			for _, r := range rows {
-				w = max(w, len(r.ID))
-				cw = max(cw, len(checkWords(r.Practice)))
-			}
-			for _, r := range rows {
-				role := "annotator"
-				if r.Admin {
-					role = "admin"
-				}
-				ids := make([]string, len(r.Tokens))
-				for i, t := range r.Tokens {
-					ids[i] = t.ID
-				}
-				tokens := "no tokens (revoked)"
-				if len(ids) > 0 {
-					tokens = "tokens " + strings.Join(ids, ", ")
-				}
-				outf(cmd, "%-*s  %-9s  %-*s  %s  since %s\n", w, r.ID, role, cw, checkWords(r.Practice), tokens, r.Created.Format("2006-01-02"))
-			}
-			return nil
+			return show(cmd, asJSON, rows, api.RosterText(rows))
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c
-}
-
-// checkWords says in words where a person stands in the practice gate, from
-// their record alone (the server's settings decide the rest).
-func checkWords(p api.PracticeState) string {
-	switch {
-	case p.Passed:
-		return "check passed"
-	case p.Attempts == 1:
-		return "check not passed (1 attempt)"
-	case p.Attempts > 1:
-		return fmt.Sprintf("check not passed (%d attempts)", p.Attempts)
-	case p.Done > 0 || p.CheckDone > 0:
-		return "practising"
-	}
-	return "not started"
 }

@@ -1,17 +1,14 @@
 package main
 
 import (
-	"encoding/csv"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
 	"strconv"
-	"strings"
 
 	"github.com/spf13/cobra"
 
-	"handoff"
+	"handoff/export"
 	"handoff/learner"
 	"handoff/round"
 	"handoff/store"
@@ -24,36 +21,10 @@ func init() {
 	register(newVerdictCmd)
 	register(newAutolabelCmd)
 	register(newModelCmd)
-	registerStatus("rounds", roundStatus)
-}
-
-// trainFlags binds the training options.
-func trainFlags(c *cobra.Command, t *round.TrainConfig, kind *string) {
-	fl := c.Flags()
-	fl.StringVar(&t.Learner, "learner", "", "logistic, bayes or forest (default: logistic for text, forest for images)")
-	fl.StringVar(kind, "features", "", "text or image (default: the kind most items have)")
-	fl.Float64Var(&t.Lambda, "lambda", 0.1, "logistic regression's L2 penalty λ = 1/C")
-	fl.IntVar(&t.Folds, "folds", 5, "cross-validation folds (items of one parent stay together)")
-}
-
-func parseKind(s string) (handoff.Kind, error) {
-	switch s {
-	case "":
-		return "", nil
-	case "text":
-		return handoff.KindText, nil
-	case "image":
-		return handoff.KindImage, nil
-	}
-	return "", usageErrorf("--features %q: want text or image", s)
 }
 
 func newTrainCmd() *cobra.Command {
-	var (
-		cfg    round.TrainConfig
-		kind   string
-		asJSON bool
-	)
+	var asJSON bool
 	c := &cobra.Command{
 		Use:   "train DIR",
 		Short: "Train the machine on the stored consensus",
@@ -67,47 +38,26 @@ temperature scaling, and stores the model.`,
   loop train proj --features image --learner forest --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			k, err := parseKind(kind)
+			over, err := checkedOverrides(cmd)
 			if err != nil {
 				return err
 			}
-			cfg.Kind = k
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
-			bar := newProgress(cmd, -1, "training")
-			r, err := round.Train(s, cfg, source(cmd))
-			bar.Finish()
-			if err != nil {
-				return err
-			}
-			if asJSON {
-				return printJSON(cmd, r)
-			}
-			outf(cmd, "%s", trainText(r))
-			return nil
+			return onStore(cmd, args[0], "training", func(s *store.Store) error {
+				rc, err := projectConfig(s, over)
+				if err != nil {
+					return err
+				}
+				r, err := round.Train(s, rc.Train, source(cmd))
+				if err != nil {
+					return err
+				}
+				return show(cmd, asJSON, r, r.Text())
+			})
 		},
 	}
-	trainFlags(c, &cfg, &kind)
-	c.Flags().Uint64Var(&cfg.Seed, "seed", 1, "seed for the folds")
+	bindSettings(c, trainKeys...)
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c
-}
-
-func trainText(r *round.TrainReport) string {
-	var b strings.Builder
-	fmt.Fprintf(&b, "model %s: %s on %s features, %d items, %d features\n", r.Version, r.Learner, r.Kind, r.Rows, r.Columns)
-	fmt.Fprintf(&b, "  %d-fold cross-validation%s: accuracy %.3f, macro-F1 %.3f\n", r.CV.Folds, map[bool]string{true: " (parents kept together)"}[r.CV.Grouped], r.CV.Accuracy, r.CV.MacroF1)
-	fmt.Fprintf(&b, "  calibration error (ECE, 15 bins): %.3f before, %.3f after temperature scaling (T = %.3g)\n", r.CV.ECEBefore, r.CV.ECEAfter, r.Temperature)
-	if len(r.Missing) > 0 {
-		fmt.Fprintf(&b, "  classes with no training example (never predicted): %s\n", strings.Join(r.Missing, ", "))
-	}
-	if r.Skipped > 0 {
-		fmt.Fprintf(&b, "  %d labelled items of another kind were left out\n", r.Skipped)
-	}
-	return b.String()
 }
 
 func newRoundCmd() *cobra.Command {
@@ -152,60 +102,23 @@ without adding a look).`,
 			if err != nil {
 				return err
 			}
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
-			bar := newProgress(cmd, -1, "round")
-			r, err := round.RunWith(s, round.RunOptions{Overrides: over, Force: force}, source(cmd))
-			bar.Finish()
-			if errors.Is(err, round.ErrNoNewLabels) {
-				outf(cmd, "round: %v\n", err)
-				return nil
-			}
-			if err != nil {
-				return settingUsage(err)
-			}
-			if asJSON {
-				return printJSON(cmd, r)
-			}
-			outf(cmd, "round %d (look %d): model %s\n", r.Round, r.Look, r.Model)
-			outf(cmd, "  settings: %s\n", overrideText(over))
-			for _, n := range r.Notes {
-				outf(cmd, "  note: %s\n", n)
-			}
-			outf(cmd, "%s", indent(consensusText(r.Consensus, false)))
-			outf(cmd, "%s", indent(trainText(r.Train)))
-			if st := r.Verdict.Standard; st != nil {
-				outf(cmd, "  held-out set: %d items (a random %.3g of the archive): %d count and meet the reference standard, %d count but do not yet, %d labelled too recently to count, %d without labels\n",
-					st.Members, r.HeldOutShare, st.Met, st.Below, st.Pending, st.Waiting)
-			}
-			outf(cmd, "  next batch: %d items (%s); write it with `loop next %s`\n", len(r.Batch), reasonCounts(r.Batch), args[0])
-			outf(cmd, "verdict: %s\n", r.Verdict.Headline())
-			return nil
+			return onStore(cmd, args[0], "round", func(s *store.Store) error {
+				r, err := round.RunWith(s, round.RunOptions{Overrides: over, Force: force}, source(cmd))
+				if errors.Is(err, round.ErrNoNewLabels) {
+					outf(cmd, "round: %v\n", err)
+					return nil
+				}
+				if err != nil {
+					return settingUsage(err)
+				}
+				return show(cmd, asJSON, r, r.Text(args[0], over))
+			})
 		},
 	}
 	bindSettings(c)
 	c.Flags().BoolVar(&force, "force", false, "run the round even when no label is new since the last one (it is then not a new look)")
 	c.Flags().BoolVar(&asJSON, "json", false, "print the round as JSON")
 	return c
-}
-
-func reasonCounts(b []round.BatchItem) string {
-	n := map[string]int{}
-	var order []string
-	for _, x := range b {
-		if n[x.Reason] == 0 {
-			order = append(order, x.Reason)
-		}
-		n[x.Reason]++
-	}
-	var parts []string
-	for _, r := range order {
-		parts = append(parts, fmt.Sprintf("%s %d", r, n[r]))
-	}
-	return strings.Join(parts, ", ")
 }
 
 func newNextCmd() *cobra.Command {
@@ -258,39 +171,28 @@ round.`,
 					return usageErrorf("--audit and --below-threshold take no batch settings but -n")
 				}
 				if len(cfg.Overrides) == 1 {
-					var n int
-					if _, err := fmt.Sscan(cfg.Overrides[0].Value, &n); err != nil || n < 1 {
-						return usageErrorf("-n %q: want an integer ≥ 1", cfg.Overrides[0].Value)
-					}
 					if cfg.Audit > 0 {
 						return usageErrorf("give the audit's size with --audit N, not -n")
 					}
-					cfg.N = n
+					probe := round.DefaultConfig() // -n is checked: it sets batch
+					probe.Set("batch", cfg.Overrides[0].Value)
+					cfg.N = probe.Batch
 				}
 				cfg.Overrides = nil
 			}
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
-			b, err := round.Next(s, cfg, source(cmd))
-			if err != nil {
+			var b []round.BatchItem
+			err = onStore(cmd, args[0], "", func(s *store.Store) (err error) {
+				b, err = round.Next(s, cfg, source(cmd))
 				return settingUsage(err)
-			}
-			w, done, err := openOutput(cmd, out)
+			})
 			if err != nil {
 				return err
 			}
-			err = writeBatch(w, format, b)
-			if derr := done(err == nil); err == nil {
-				err = derr
-			}
-			if err != nil {
+			if err := writeOutput(cmd, out, func(w io.Writer) error { return export.WriteBatch(w, format, b) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {
-				infof(cmd, "wrote %d items to %s (%s)\n", len(b), out, reasonCounts(b))
+				infof(cmd, "wrote %d items to %s (%s)\n", len(b), out, round.Reasons(b))
 			}
 			return nil
 		},
@@ -302,25 +204,6 @@ round.`,
 	fl.StringVar(&format, "format", "csv", "csv or jsonl")
 	fl.StringVarP(&out, "out", "o", "", "output file (default: standard output)")
 	return c
-}
-
-func writeBatch(w io.Writer, format string, b []round.BatchItem) error {
-	if format == "jsonl" {
-		enc := json.NewEncoder(w)
-		for i := range b {
-			if err := enc.Encode(&b[i]); err != nil {
-				return err
-			}
-		}
-		return nil
-	}
-	cw := csv.NewWriter(w)
-	cw.Write([]string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"})
-	for _, x := range b {
-		cw.Write(round.SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
-	}
-	cw.Flush()
-	return cw.Error()
 }
 
 func newVerdictCmd() *cobra.Command {
@@ -371,15 +254,7 @@ only.`,
 				return settingUsage(err)
 			}
 			if html != "" {
-				w, done, err := openOutput(cmd, html)
-				if err != nil {
-					return err
-				}
-				err = rep.WriteHTML(w, "Handoff verdict — "+args[0])
-				if derr := done(err == nil); err == nil {
-					err = derr
-				}
-				if err != nil {
+				if err := writeOutput(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff verdict — "+args[0]) }); err != nil {
 					return err
 				}
 				infof(cmd, "report written to %s\n", html)
@@ -431,29 +306,15 @@ Machine labels are evidence, not truth: audit a random sample afterwards with
 				cfg.Threshold = x
 			}
 			cfg.Force = force
-			s, err := openStore(args[0])
-			if err != nil {
+			err := onStore(cmd, args[0], "scoring", func(s *store.Store) error {
+				r, err := round.Autolabel(s, cfg, source(cmd))
+				if err != nil {
+					return err
+				}
+				return show(cmd, asJSON, r, r.Text())
+			})
+			if err != nil || asJSON {
 				return err
-			}
-			defer s.Close()
-			bar := newProgress(cmd, -1, "scoring")
-			r, err := round.Autolabel(s, cfg, source(cmd))
-			bar.Finish()
-			if err != nil {
-				return err
-			}
-			if asJSON {
-				return printJSON(cmd, r)
-			}
-			outf(cmd, "autolabel with model %s (round %d) at threshold %.4g:\n", r.Model, r.Round, r.Threshold)
-			outf(cmd, "  %d items without crowd labels scored: %d machine-labelled, %d left for people\n", r.Scored, r.Labelled, r.Queued)
-			if r.Unscored > 0 {
-				outf(cmd, "  %d items added since round %d have no score yet: run a round to score them\n", r.Unscored, r.Round)
-			}
-			if r.Forced {
-				outf(cmd, "  FORCED without a GO verdict: no error bound holds for these labels; audit them\n")
-			} else if r.Bound > 0 {
-				outf(cmd, "  upper bound on disagreement with the crowd at this threshold: %.3f\n", r.Bound)
 			}
 			hintf(cmd, "  next: `loop next %s --audit 100` to measure the real error\n", args[0])
 			return nil
@@ -492,15 +353,7 @@ elsewhere (see beam/).`,
 			if r.Verdict != nil && r.Verdict.Threshold.Found {
 				m.Cutoff = r.Verdict.Threshold.Threshold
 			}
-			w, done, err := openOutput(cmd, args[1])
-			if err != nil {
-				return err
-			}
-			err = learner.WriteMachine(w, m)
-			if derr := done(err == nil); err == nil {
-				err = derr
-			}
-			if err != nil {
+			if err := writeOutput(cmd, args[1], func(w io.Writer) error { return learner.WriteMachine(w, m) }); err != nil {
 				return err
 			}
 			infof(cmd, "model %s written to %s (threshold %.4g)\n", m.Version(), args[1], m.Cutoff)
@@ -508,13 +361,4 @@ elsewhere (see beam/).`,
 		},
 	})
 	return c
-}
-
-func roundStatus(s *store.Store) (any, string, error) {
-	r, err := round.Latest(s)
-	if err != nil {
-		return nil, "", nil
-	}
-	v := map[string]any{"round": r.Round, "model": r.Model, "decision": r.Verdict.Decision, "held_out": r.HeldOut, "pool": r.Pool}
-	return v, fmt.Sprintf("latest round %d, model %s: %s\n", r.Round, r.Model, r.Verdict.Headline()), nil
 }

@@ -2,10 +2,8 @@ package main
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"net"
-	"net/http"
 	"os"
 	"os/signal"
 	"syscall"
@@ -14,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/api"
+	"handoff/internal/beside"
 )
 
 func init() { register(newServeCmd) }
@@ -59,42 +58,10 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
   loop serve proj --addr 0.0.0.0:8080 --secure-cookies --metrics admin   # behind an HTTPS proxy`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if cfg.Redundancy < 1 {
-				return usageErrorf("--redundancy must be at least 1, not %d", cfg.Redundancy)
-			}
-			if cfg.LeaseTime < time.Second {
-				return usageErrorf("--lease must be at least 1s, not %s", cfg.LeaseTime)
-			}
-			if cfg.PassMark <= 0 || cfg.PassMark > 1 {
-				return usageErrorf("--pass-mark must be in (0, 1], not %g", cfg.PassMark)
-			}
-			if cfg.Rate <= 0 || cfg.Burst < 1 {
-				return usageErrorf("--rate must be > 0 and --burst ≥ 1")
-			}
-			if cfg.Practice < 0 || cfg.Check < 0 || cfg.CheckAttempts < 0 {
-				return usageErrorf("--practice, --check and --check-attempts must be ≥ 0")
-			}
-			if cfg.ChangeWindow < 0 {
-				return usageErrorf("--change-window must be ≥ 0")
-			}
-			switch cfg.Metrics {
-			case "admin", "open", "off":
-			default:
-				return usageErrorf("--metrics %q: use admin, open or off", cfg.Metrics)
-			}
 			// 0 in the flags means none (or no limit); the API's zero means
 			// its default.
-			if cfg.Practice == 0 {
-				cfg.Practice = -1
-			}
-			if cfg.Check == 0 {
-				cfg.Check = -1
-			}
-			if cfg.CheckAttempts == 0 {
-				cfg.CheckAttempts = -1
-			}
-			if cfg.ChangeWindow == 0 {
-				cfg.ChangeWindow = time.Nanosecond // no changes after the answer
+			if err := cfg.FromFlags(); err != nil {
+				return usageErrorf("%v", err)
 			}
 			dir := args[0]
 			s, err := openStore(dir)
@@ -116,28 +83,15 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 			}
 			// The command channel for commands run beside the server:
 			// loopback only, with a secret in DIR/serve.json.
-			cln, err := net.Listen("tcp", "127.0.0.1:0")
+			ch, err := beside.Listen(dir, "http://"+ln.Addr().String(), s, besideAllowed, runIn, func() {
+				if err := sv.Refresh(); err != nil {
+					cfg.Logf("reading the project again after a command: %v", err)
+				}
+			})
 			if err != nil {
 				ln.Close()
 				return err
 			}
-			secret := newSecret()
-			registerServed(dir, s)
-			defer unregisterServed(dir)
-			chs := &http.Server{Handler: commandHandler(secret, func() {
-				if err := sv.Refresh(); err != nil {
-					cfg.Logf("reading the project again after a command: %v", err)
-				}
-			}), ReadHeaderTimeout: 10 * time.Second}
-			go chs.Serve(cln)
-			defer chs.Close()
-			rec := serveRecord{PID: os.Getpid(), Serves: "http://" + ln.Addr().String(), Command: "http://" + cln.Addr().String(),
-				Secret: secret, Started: time.Now().UTC()}
-			if err := writeServeRecord(dir, rec); err != nil {
-				ln.Close()
-				return fmt.Errorf("recording the server in %s: %w", dir, err)
-			}
-			defer removeServeRecord(dir, secret)
 
 			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
@@ -145,7 +99,7 @@ in flight and stops. It prints the address it listens on (useful with port 0).`,
 			err = sv.Serve(ctx, ln)
 			sctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 			defer cancel()
-			if serr := chs.Shutdown(sctx); serr != nil && !errors.Is(serr, http.ErrServerClosed) && err == nil {
+			if serr := ch.Close(sctx); serr != nil && err == nil {
 				err = serr
 			}
 			infof(cmd, "stopped\n")

@@ -1,13 +1,12 @@
 package main
 
 import (
-	"fmt"
 	"strconv"
 	"strings"
 
 	"github.com/spf13/cobra"
 
-	"handoff/round"
+	"handoff/plan"
 	"handoff/sim"
 )
 
@@ -20,7 +19,7 @@ func newSimulateCmd() *cobra.Command {
 		prevalence string
 		perAnn     string
 		shared     []string
-		cfg        round.PlanConfig
+		cfg        plan.RedundancyConfig
 		asJSON     bool
 	)
 	c := &cobra.Command{
@@ -94,7 +93,7 @@ independent crowd are much kinder.`,
 			}
 			cfg.Spec = spec
 			bar := newProgress(cmd, -1, "simulating")
-			cells, err := round.Plan(cfg)
+			cells, err := plan.Redundancy(cfg)
 			bar.Finish()
 			if err != nil {
 				return usageErrorf("%v", err)
@@ -102,29 +101,7 @@ independent crowd are much kinder.`,
 			if asJSON {
 				return printJSON(cmd, cells)
 			}
-			var b strings.Builder
-			fmt.Fprintf(&b, "consensus accuracy against the simulated truth (mean of %d projects; min–max)\n", max(cfg.Seeds, 1))
-			who := fmt.Sprintf("%d annotators", spec.Annotators)
-			if spec.Sparse() {
-				who = fmt.Sprintf("people giving %d–%d labels each", spec.MinLabels, spec.MaxLabels)
-				if spec.OneClass > 0 {
-					who += fmt.Sprintf(", %.0f%% of spammers always one class", 100*spec.OneClass)
-				}
-			}
-			fmt.Fprintf(&b, "crowd: %.0f%% careful, %.0f%% average, %.0f%% careless, %.0f%% spammers; %s; %d items, %d classes\n",
-				100*spec.Careful, 100*spec.Average, 100*spec.Careless, 100*spec.Spammer, who, spec.Items, spec.Classes)
-			for _, sh := range spec.Shared {
-				fmt.Fprintf(&b, "shared confusion: %s answered as %s %.0f%% of the time by all but the careful\n", sh.From, sh.To, 100*sh.Rate)
-			}
-			fmt.Fprintf(&b, "%-16s %-12s %-24s %s\n", "labels per item", "labels", "method", "accuracy")
-			for _, c := range cells {
-				m := c.Method
-				if len(c.Chosen) > 0 {
-					m += " → " + strings.Join(c.Chosen, ", ")
-				}
-				fmt.Fprintf(&b, "%-16d %-12d %-24s %.3f (%.3f–%.3f)\n", c.LabelsPerItem, c.Labels, m, c.Accuracy, c.Min, c.Max)
-			}
-			outf(cmd, "%s", b.String())
+			outf(cmd, "%s", plan.RedundancyText(cells, cfg))
 			return nil
 		},
 	}

@@ -1,18 +1,24 @@
 package main
 
 import (
+	"bufio"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"os"
-	"sort"
+	"path/filepath"
+	"strings"
 	"time"
 
 	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
 	"golang.org/x/term"
 
-	"handoff"
+	"handoff/ingest"
+	"handoff/internal/atomicfile"
+	"handoff/internal/beside"
+	"handoff/round"
 	"handoff/store"
 )
 
@@ -26,7 +32,7 @@ var importChunk int
 // on the open store, whose Close leaves it open; where another process
 // holds the project, the error says which server and what to do.
 func openStore(dir string) (*store.Store, error) {
-	if s, ok := servedStore(dir); ok {
+	if s, ok := beside.Served(dir); ok {
 		s.ImportChunk = importChunk
 		return s, nil
 	}
@@ -39,11 +45,6 @@ func openStore(dir string) (*store.Store, error) {
 	}
 	s.ImportChunk = importChunk
 	return s, nil
-}
-
-// createStore makes a new project in dir with codebook cb.
-func createStore(dir string, cb handoff.Codebook, cmd *cobra.Command) (*store.Store, error) {
-	return store.Create(dir, cb, source(cmd))
 }
 
 // source returns the audit "who/what" string for this run: the command line
@@ -91,26 +92,94 @@ func newProgress(cmd *cobra.Command, max int64, desc string) *progressbar.Progre
 	)
 }
 
-// progressFile opens path for reading with a byte-counting progress bar.
-// Close the returned file and Finish the bar when done.
-func progressFile(cmd *cobra.Command, path, desc string) (io.ReadCloser, *progressbar.ProgressBar, error) {
-	f, err := os.Open(path)
+// readFiles makes f show a progress bar per file (bytes read) and per
+// folder of images (images read).
+func readFiles[T any](cmd *cobra.Command, f *ingest.Files[T]) *ingest.Files[T] {
+	f.Open = func(path string) (io.ReadCloser, error) {
+		file, err := os.Open(path)
+		if err != nil {
+			return nil, err
+		}
+		size := int64(-1)
+		if fi, err := file.Stat(); err == nil && fi.Mode().IsRegular() {
+			size = fi.Size()
+		}
+		bar := newProgress(cmd, size, filepath.Base(path))
+		if interactive(cmd) && size >= 0 {
+			progressbar.OptionShowBytes(true)(bar)
+		}
+		r := progressbar.NewReader(file, bar)
+		return readCloser{&r, func() error { bar.Finish(); return file.Close() }}, nil
+	}
+	f.Folder = func(path string, n int) (func(), func()) {
+		bar := newProgress(cmd, int64(n), filepath.Base(path))
+		return func() { bar.Add(1) }, func() { bar.Finish() }
+	}
+	return f
+}
+
+type readCloser struct {
+	io.Reader
+	close func() error
+}
+
+func (r readCloser) Close() error { return r.close() }
+
+// located adds the file and line of the record being read to a store data
+// error.
+func located[T any](err error, f *ingest.Files[T]) error {
+	var de *store.DataError
+	if loc, ok := f.Where(); ok && errors.As(err, &de) {
+		return ingest.At(loc, de.Field, de.Err)
+	}
+	return err
+}
+
+// sourceUsage makes a badly named input file a usage error (exit 2).
+func sourceUsage(err error) error {
+	if errors.Is(err, ingest.ErrSource) {
+		return usageErrorf("%v", strings.TrimPrefix(err.Error(), ingest.ErrSource.Error()+": "))
+	}
+	return err
+}
+
+// writeOutput writes what fn writes to path, whole or not at all
+// (atomicfile), or to stdout when path is "" or "-".
+func writeOutput(cmd *cobra.Command, path string, fn func(w io.Writer) error) error {
+	if path == "" || path == "-" {
+		bw := bufio.NewWriter(cmd.OutOrStdout())
+		if err := fn(bw); err != nil {
+			return err
+		}
+		return bw.Flush()
+	}
+	return atomicfile.Write(path, 0o666, fn)
+}
+
+// onStore opens the project in dir, runs fn on it, with a spinner named
+// busy ("" for none) while it runs, and closes the project.
+func onStore(cmd *cobra.Command, dir, busy string, fn func(s *store.Store) error) error {
+	s, err := openStore(dir)
 	if err != nil {
-		return nil, nil, err
+		return err
 	}
-	size := int64(-1)
-	if fi, err := f.Stat(); err == nil && fi.Mode().IsRegular() {
-		size = fi.Size()
+	defer s.Close()
+	if busy == "" {
+		return fn(s)
 	}
-	bar := newProgress(cmd, size, desc)
-	if interactive(cmd) && size >= 0 {
-		progressbar.OptionShowBytes(true)(bar)
+	bar := newProgress(cmd, -1, busy)
+	err = fn(s)
+	bar.Finish()
+	return err
+}
+
+// show prints v as JSON when asJSON, otherwise text.
+func show(cmd *cobra.Command, asJSON bool, v any, text string) error {
+	if asJSON {
+		return printJSON(cmd, v)
 	}
-	r := progressbar.NewReader(f, bar)
-	return struct {
-		io.Reader
-		io.Closer
-	}{&r, f}, bar, nil
+	outf(cmd, "%s", text)
+	return nil
 }
 
 // printJSON writes v as indented JSON to the command's stdout.
@@ -143,22 +212,11 @@ func infof(cmd *cobra.Command, format string, a ...any) {
 	}
 }
 
-// statusSection adds one section to `loop status`: fn returns a value for
-// the JSON output (under name) and the text lines for the plain output. A
-// section with nothing to say returns (nil, "", nil) and is left out.
-type statusSection struct {
-	name string
-	fn   func(s *store.Store) (jsonValue any, text string, err error)
-}
-
-var statusSections []statusSection
+// statusSections are the sections commands add to `loop status` (after
+// round.Sections).
+var statusSections []round.Section
 
 // registerStatus adds a section to `loop status`. Call it from init.
 func registerStatus(name string, fn func(s *store.Store) (any, string, error)) {
-	statusSections = append(statusSections, statusSection{name, fn})
-}
-
-func sortedStrings(s []string) []string {
-	sort.Strings(s)
-	return s
+	statusSections = append(statusSections, round.Section{Name: name, Fn: fn})
 }

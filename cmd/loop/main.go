@@ -2,52 +2,11 @@
 // it, sends the items the machine is unsure of back to people and decides when
 // the machine may label the rest of the archive.
 //
-// # Adding a command
-//
-// Each command lives in its own file, cmd/loop/cmd_NAME.go, and registers a
-// constructor from init:
-//
-//	func init() { register(newDemoCmd) }                // loop demo …
-//	func init() { registerUnder("items", newExportCmd) } // loop items export …
-//
-//	func newDemoCmd() *cobra.Command {
-//		return &cobra.Command{
-//			Use:     "demo DIR",
-//			Short:   "Build a demo project in DIR",
-//			Example: "  loop demo /tmp/handoff-demo",
-//			Args:    cobra.ExactArgs(1),
-//			RunE: func(cmd *cobra.Command, args []string) error {
-//				s, err := openStore(args[0]) // or createStore(args[0], cb, cmd)
-//				if err != nil {
-//					return err
-//				}
-//				defer s.Close()
-//				_, err = s.PutItems(items, false, source(cmd))
-//				return err
-//			},
-//		}
-//	}
-//
-// Constructors are called afresh for every run (tests run many in one
-// process), so keep flag variables inside the constructor, not in globals.
-// Every command must have a worked Example.
-//
-// Shared helpers (helpers.go):
-//   - openStore(dir), createStore(dir, codebook, cmd): open or make a project.
-//   - source(cmd): the "who/what" string for the store's audit trail
-//     (the command line as typed).
-//   - usageErrorf(…): a usage error, exit code 2. Any other error returned
-//     from RunE exits 1; errors from cobra's own parsing (unknown flag, wrong
-//     number of arguments) exit 2.
-//   - newProgress(cmd, max, desc), progressFile(cmd, path, desc): a progress
-//     bar on stderr (the second counts the bytes read from a file), silent
-//     when stdout is not a terminal or with --quiet.
-//   - printJSON(cmd, v), outf(cmd, …): write to the command's stdout; infof
-//     writes notes that --quiet silences.
-//   - registerStatus(name, fn): add a section to `loop status` (text and
-//     JSON), e.g. consensus once it exists.
-//
-// Exit codes: 0 ok, 1 runtime error (bad data, I/O), 2 usage error.
+// Each command lives in its own file, cmd_NAME.go, registered from init
+// with register or registerUnder; it parses its flags, opens the store,
+// calls one package function and prints (DEVELOPERS.md, "Adding a
+// command"). Exit codes: 0 ok, 1 runtime error (bad data, I/O), 2 usage
+// error.
 package main
 
 import (
@@ -56,12 +15,15 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"strings"
 
 	"github.com/spf13/cobra"
+
+	"handoff/internal/termsafe"
 )
 
-func main() { os.Exit(run(os.Args[1:], terminalOut(os.Stdout), os.Stderr)) }
+func main() { os.Exit(run(os.Args[1:], termsafe.Out(os.Stdout), os.Stderr)) }
 
 // commands holds the constructors of the top-level commands, in registration
 // order; subcommands maps a group name ("items", "labels") to its children.
@@ -118,7 +80,8 @@ Try it on an invented scenario first: loop demo /tmp/handoff-demo`,
 	for name := range subcommands {
 		names = append(names, name)
 	}
-	for _, name := range sortedStrings(names) {
+	slices.Sort(names)
+	for _, name := range names {
 		g := newGroup(name)
 		groups[name] = g
 		for _, f := range subcommands[name] {

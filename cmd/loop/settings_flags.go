@@ -8,6 +8,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/round"
+	"handoff/store"
 )
 
 // A settings flag overrides one of the project's stored settings (see
@@ -28,6 +29,7 @@ var valueFlags = []settingFlag{
 	{"diversity", "", "diversity"}, {"density", "", "density"}, {"balanced", "", "balanced"},
 	{"learner", "", "learner"}, {"features", "", "features"}, {"lambda", "", "lambda"}, {"folds", "", "folds"},
 	{"method", "", "method"}, {"debias", "", "debias"}, {"reference-stratum", "", "reference-stratum"},
+	{"repeat-items", "", "repeat-items"}, {"repeat-times", "", "repeat-times"},
 	{"gold-min-accuracy", "", "gold-min-accuracy"}, {"gold-min-items", "", "gold-min-items"},
 	{"min-seconds", "", "min-seconds"}, {"drop-spammers", "", "drop-spammers"},
 	{"spammer-below", "", "spammer-below"}, {"spammer-min-labels", "", "spammer-min-labels"}, {"seed", "", "seed"},
@@ -141,14 +143,15 @@ func settingUsage(err error) error {
 	return err
 }
 
-// overrideText says which settings a run overrode.
-func overrideText(over []round.Override) string {
-	if len(over) == 0 {
-		return "the project's (`loop config DIR` shows them)"
-	}
-	var parts []string
-	for _, o := range over {
-		parts = append(parts, o.Key+" "+o.Value)
-	}
-	return "the project's, overridden for this run by the command line: " + strings.Join(parts, ", ")
+// cleaningKeys are the settings of the cleaning rules.
+var cleaningKeys = []string{"cleaning", "first-only", "repeat-offenders", "repeat-items", "repeat-times", "gold-screen", "gold-min-accuracy", "gold-min-items", "min-seconds", "straight-lining", "drop-spammers", "spammer-below", "spammer-min-labels"}
+
+// trainKeys are the settings of the training.
+var trainKeys = []string{"learner", "features", "lambda", "folds", "seed"}
+
+// projectConfig returns the project's settings with the command line's
+// (checkedOverrides) applied for this run.
+func projectConfig(s *store.Store, over []round.Override) (round.Config, error) {
+	c, _, err := round.Settings(s, over...)
+	return c, settingUsage(err)
 }

@@ -13,7 +13,6 @@ import (
 	_ "github.com/parquet-go/parquet-go"
 	_ "github.com/prometheus/client_golang/prometheus"
 	_ "github.com/schollz/progressbar/v3"
-	_ "github.com/sjwhitworth/golearn/ensemble"
 	_ "github.com/spf13/cobra"
 	_ "go.etcd.io/bbolt"
 	_ "go.yaml.in/yaml/v3"

@@ -1,10 +1,15 @@
-package round
+// Package export writes what a project has decided, item by item, and rolls
+// it up to the documents items came from: Rows gives one row per item with
+// its final class and provenance (gold, crowd consensus or machine label),
+// Write writes rows as CSV, JSON lines or Parquet, Rollup gives per-parent
+// class shares with exact intervals. It reads the store and never changes
+// it; the round (package round) decides, export only reports.
+package export
 
 import (
 	"bufio"
 	"encoding/csv"
 	"encoding/json"
-	"errors"
 	"fmt"
 	"io"
 	"regexp"
@@ -14,6 +19,7 @@ import (
 	"github.com/parquet-go/parquet-go"
 
 	"handoff"
+	"handoff/round"
 	"handoff/store"
 )
 
@@ -91,10 +97,10 @@ func Rows(st *store.Store) ([]Row, error) {
 	return rows, err
 }
 
-// WriteRows writes rows in format csv, jsonl or parquet. CSV has one column
+// Write writes rows in format csv, jsonl or parquet. CSV has one column
 // per codebook class for the posterior (p_KEY) and one per covariate
 // (cov_NAME), in sorted order.
-func WriteRows(w io.Writer, format string, rows []Row, classes []string) error {
+func Write(w io.Writer, format string, rows []Row, classes []string) error {
 	switch format {
 	case "jsonl":
 		bw := bufio.NewWriter(w)
@@ -161,6 +167,29 @@ func writeCSV(w io.Writer, rows []Row, classes []string) error {
 	return cw.Error()
 }
 
+// WriteBatch writes a next batch for people in format csv (one row per
+// item: item, reason, score, kind, text, path, parent, machine, crowd; the
+// cells made safe to open in a spreadsheet, SafeCells) or jsonl (one
+// round.BatchItem per line).
+func WriteBatch(w io.Writer, format string, b []round.BatchItem) error {
+	if format == "jsonl" {
+		enc := json.NewEncoder(w)
+		for i := range b {
+			if err := enc.Encode(&b[i]); err != nil {
+				return err
+			}
+		}
+		return nil
+	}
+	cw := csv.NewWriter(w)
+	cw.Write([]string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"})
+	for _, x := range b {
+		cw.Write(SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
+	}
+	cw.Flush()
+	return cw.Error()
+}
+
 // SafeCells makes the cells of one CSV record safe to open in a
 // spreadsheet, in place, and returns rec: a cell that starts with =, +, -,
 // @, a tab or a carriage return, and is not a plain number, gets a single
@@ -185,6 +214,3 @@ func SafeCells(rec []string) []string {
 
 // plainNumber is a decimal number: sign, digits, point, exponent.
 var plainNumber = regexp.MustCompile(`^[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?$`)
-
-// errNoRows is returned when an export would be empty.
-var errNoRows = errors.New("the project has no items to export")

@@ -1,9 +1,7 @@
-package round
+package plan
 
 import (
 	"bufio"
-	"compress/gzip"
-	"encoding/csv"
 	"encoding/json"
 	"image"
 	"os"
@@ -13,7 +11,10 @@ import (
 	"testing"
 
 	"handoff/features"
+	"handoff/internal/fixtures"
+	"handoff/internal/testproject"
 	"handoff/learner"
+	"handoff/round"
 	"handoff/selector"
 )
 
@@ -57,33 +58,9 @@ func curveText(t testing.TB) (features.Matrix, []int, int) {
 // features and standardises them.
 func curveDigits(t testing.TB) (features.Matrix, []int, int) {
 	t.Helper()
-	f, err := os.Open("../testdata/digits.csv.gz")
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	z, err := gzip.NewReader(f)
-	if err != nil {
-		t.Fatal(err)
-	}
-	recs, err := csv.NewReader(z).ReadAll()
-	if err != nil {
-		t.Fatal(err)
-	}
-	imgs := make([]image.Image, len(recs))
-	y := make([]int, len(recs))
-	for i, r := range recs {
-		px := make([]float64, 64)
-		for j := range px {
-			v, err := strconv.ParseFloat(r[j], 64)
-			if err != nil {
-				t.Fatal(err)
-			}
-			px[j] = v / 16
-		}
-		if y[i], err = strconv.Atoi(r[64]); err != nil {
-			t.Fatal(err)
-		}
+	pixels, y := fixtures.Digits(t)
+	imgs := make([]image.Image, len(pixels))
+	for i, px := range pixels {
 		imgs[i] = features.RenderGray(px, 8, 8, 8)
 	}
 	ic := features.DefaultImageConfig()
@@ -112,8 +89,8 @@ func seedsUpTo(n int) []uint64 {
 
 // Uncertainty sampling beats random sampling at equal label budgets on
 // most benchmarks (Lewis & Gale 1994, "A sequential algorithm for training
-// text classifiers"; Settles 2009, "Active Learning Literature Survey";
-// CHECKS.md): averaged over seeds, entropy's test accuracy must be above
+// text classifiers", SIGIR; Settles 2009, "Active Learning Literature
+// Survey", UW–Madison TR 1648): averaged over seeds, entropy's test accuracy must be above
 // random's at ≥ 80% of the matched budgets (issue 5's target).
 //
 // FAST VERSION: budgets 100–500 only (initial 50, batches of 50), 10 seeds
@@ -234,12 +211,12 @@ func TestLearningCurveRules(t *testing.T) {
 // project without a stored consensus, then runs on the consensus classes,
 // deterministically.
 func TestProjectCurves(t *testing.T) {
-	st, _ := smallProject(t, t.TempDir(), 7)
+	st, _ := testproject.Small(t, t.TempDir(), 7)
 	cfg := ProjectCurveConfig{Seeds: []uint64{1, 2}}
 	if _, err := ProjectCurves(st, cfg); err == nil {
 		t.Fatal("no consensus yet: no error")
 	}
-	if _, err := Consensus(st, DefaultConsensus(), "t"); err != nil {
+	if _, err := round.Consensus(st, round.DefaultConsensus(), "t"); err != nil {
 		t.Fatal(err)
 	}
 	a, err := ProjectCurves(st, cfg)

@@ -1,15 +1,18 @@
-package round
+package plan
 
 import (
 	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
+	"strings"
 	"sync"
 
-	"handoff"
+	"gonum.org/v1/gonum/floats"
+
 	"handoff/features"
 	"handoff/learner"
+	"handoff/round"
 	"handoff/selector"
 	"handoff/store"
 	"handoff/verdict"
@@ -106,7 +109,7 @@ func (c CurveConfig) withDefaults() (CurveConfig, error) {
 func LearningCurve(X features.Matrix, y []int, k int, cfg CurveConfig) ([]verdict.CurvePoint, error) {
 	n := X.Rows()
 	if len(y) != n {
-		panic(fmt.Sprintf("round: LearningCurve with %d rows and %d classes", n, len(y)))
+		panic(fmt.Sprintf("plan: LearningCurve with %d rows and %d classes", n, len(y)))
 	}
 	cfg, err := cfg.withDefaults()
 	if err != nil {
@@ -150,7 +153,7 @@ func LearningCurve(X features.Matrix, y []int, k int, cfg CurveConfig) ([]verdic
 		p := predictFull(m, present, k, X, test)
 		wrong := 0
 		for a, i := range test {
-			if selector.Argmax(p[a*k:(a+1)*k]) != y[i] {
+			if floats.MaxIdx(p[a*k:(a+1)*k]) != y[i] {
 				wrong++
 			}
 		}
@@ -269,6 +272,34 @@ type Comparison struct {
 	Share   float64 `json:"share"`
 }
 
+// Text is the comparison as `loop curves` prints it: the mean test
+// accuracy of both strategies at each budget and the share of budgets
+// where the uncertain strategy is ahead.
+func (c *Comparison) Text() string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "test accuracy, mean over %d seeds (consensus as the oracle)\n%8s  %8s  %8s\n", len(c.Seeds), "labels", c.Uncertain.Name, "random")
+	for i, p := range c.Uncertain.Points {
+		fmt.Fprintf(&b, "%8d  %8.3f  %8.3f\n", p.Labels, 1-p.Error, 1-c.Random.Points[i].Error)
+	}
+	fmt.Fprintf(&b, "%s ahead of random at %d of %d budgets (%.0f%%)\n", c.Uncertain.Name, c.Ahead, c.Matched, 100*c.Share)
+	return b.String()
+}
+
+// InReport returns a copy of a verdict report whose learning-curve plot
+// shows the comparison instead: the uncertain strategy's curve solid, the
+// random one dashed, and in place of the fitted curve a note that both
+// are simulated.
+func (c *Comparison) InReport(rep *verdict.Report) *verdict.Report {
+	r := *rep
+	r.Curve = c.Uncertain.Points
+	r.Compare = &verdict.Series{Name: "random (simulated)", Points: c.Random.Points}
+	r.Fit = nil
+	r.FitError = fmt.Sprintf("Simulated by loop curves on the %d seeds %v: the solid curve is %s selection, "+
+		"the dashed one random selection, each the mean test error over the seeds with the consensus as the oracle. "+
+		"%s is ahead at %d of %d budgets (%.0f%%).", len(c.Seeds), c.Seeds, c.Uncertain.Name, strings.ToUpper(c.Uncertain.Name[:1])+c.Uncertain.Name[1:], c.Ahead, c.Matched, 100*c.Share)
+	return &r
+}
+
 // CompareStrategies runs LearningCurve for cfg.Strategy ("" means Entropy)
 // and for Random with each seed (cfg.Seed is replaced by it) and averages
 // the curves over the seeds, budget by budget: mean error ē(n) = Σ_s e_s(n)
@@ -353,78 +384,44 @@ func CompareStrategies(X features.Matrix, y []int, k int, cfg CurveConfig, seeds
 type ProjectCurveConfig struct {
 	// Curve sets the simulation; its Seed and Strategy are ignored (see
 	// Seeds; the strategy is Entropy against Random). Learner nil means the
-	// learner Train would fit (Train.Learner, Lambda, Trees, Seed).
+	// learner round.Train would fit (Train.Learner, Lambda, Trees, Seed).
 	// MaxLabels 0 means min(1000, ¾ of the pool rows); Initial 0 means
 	// min(50, MaxLabels/5); Batch 0 means 50 when at least 500 labels
 	// follow the initial set, else a tenth of them (at least 1).
 	Curve CurveConfig
 	// Train chooses the kind of items, the features and the learner, as
-	// for Train.
-	Train TrainConfig
+	// for round.Train.
+	Train round.TrainConfig
 	// Seeds are the seeds averaged over; nil means 1, 2, 3, 4, 5.
 	Seeds []uint64
 }
 
 // ProjectCurves compares entropy selection with random selection on the
 // project's own items by simulation (CompareStrategies): the oracle is the
-// stored consensus — each item of the chosen kind with crowd labels gets its
-// most probable consensus class, a gold item its expert class — and the
-// features are fitted, without labels, on those items as Train would. The
-// figures show what entropy selection gains over random on data like the
-// project's; they are not held-out agreement. The crowd-labelled items may
-// themselves have been picked by selection, so they need not be a random
-// sample of the archive.
+// stored consensus (round.Labelled: each item of the chosen kind with crowd
+// labels gets its most probable consensus class, a gold item its expert
+// class) and the features are fitted, without labels, on those items as
+// round.Train would. The figures show what entropy selection gains over
+// random on data like the project's; they are not held-out agreement. The
+// crowd-labelled items may themselves have been picked by selection, so
+// they need not be a random sample of the archive.
 //
-// It needs a stored consensus (run Consensus first) and enough labelled
-// items for a test set and a few batches; otherwise it returns an error
-// saying so.
+// It needs a stored consensus (run round.Consensus first) and enough
+// labelled items for a test set and a few batches; otherwise it returns an
+// error saying so.
 func ProjectCurves(st *store.Store, cfg ProjectCurveConfig) (*Comparison, error) {
-	p, err := load(st)
+	set, err := round.Labelled(st, cfg.Train)
 	if err != nil {
 		return nil, err
 	}
-	cs, _, err := StoredConsensus(st)
-	if err != nil {
-		return nil, err
-	}
-	post, nl := posteriorsOf(p, cs)
-	K := len(p.cb.Classes)
-	kind := cfg.Train.Kind
-	if kind == "" {
-		kind = projectKind(p)
-	}
-	var rows, y []int
-	for i, it := range p.items {
-		if it.Kind != kind {
-			continue
-		}
-		switch {
-		case p.gold[i] >= 0:
-			y = append(y, p.gold[i])
-		case nl[i] > 0:
-			y = append(y, argmax(post[i*K:(i+1)*K]))
-		default:
-			continue
-		}
-		rows = append(rows, i)
-	}
-	cc, err := cfg.Curve.withDefaultsFor(len(rows))
+	cc, err := cfg.Curve.withDefaultsFor(len(set.Y))
 	if err != nil {
 		return nil, err
 	}
 	if cc.Learner == nil {
-		lname := cfg.Train.Learner
-		if lname == "" {
-			lname = "logistic"
-			if kind == handoff.KindImage {
-				lname = "forest"
-			}
-		}
-		if cc.Learner, err = learnerFor(lname, cfg.Train); err != nil {
-			return nil, err
-		}
+		cc.Learner = set.Learner
 	}
-	all, err := featurise(p, kind, rows, cfg.Train, &learner.Machine{})
+	X, err := set.Features()
 	if err != nil {
 		return nil, err
 	}
@@ -433,7 +430,7 @@ func ProjectCurves(st *store.Store, cfg ProjectCurveConfig) (*Comparison, error)
 		seeds = []uint64{1, 2, 3, 4, 5}
 	}
 	cc.Strategy = selector.Entropy
-	return CompareStrategies(learner.Subset(all, rows), y, K, cc, seeds)
+	return CompareStrategies(X, set.Y, set.K, cc, seeds)
 }
 
 // withDefaultsFor fills ProjectCurveConfig's size defaults for n labelled

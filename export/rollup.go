@@ -1,8 +1,10 @@
-package round
+package export
 
 import (
+	"errors"
 	"fmt"
 	"sort"
+	"strings"
 
 	"gonum.org/v1/gonum/stat/distuv"
 
@@ -84,7 +86,7 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 		g.cls = append(g.cls, k)
 	}
 	if len(groups) == 0 {
-		return nil, fmt.Errorf("%w: no item has a parent; import items with a parent field (or --split sentences) to roll up", ErrNothing)
+		return nil, ErrNoParents
 	}
 	names := make([]string, 0, len(groups))
 	for n := range groups {
@@ -122,6 +124,35 @@ func Rollup(rows []Row, classes []string, ordinal bool, cfg RollupConfig) ([]Par
 	}
 	return out, nil
 }
+
+// RollupText is a roll-up as `loop rollup` prints it: a line per parent
+// with its answered and all items, each class's share with its interval
+// and, for an ordinal codebook, the mean position.
+func RollupText(ps []ParentShares, classes []string, ordinal bool) string {
+	var b strings.Builder
+	fmt.Fprintf(&b, "%-16s %6s", "parent", "items")
+	for _, k := range classes {
+		fmt.Fprintf(&b, "  %-22s", k)
+	}
+	if ordinal {
+		fmt.Fprintf(&b, "  %-22s", "mean position")
+	}
+	b.WriteString("\n")
+	for _, p := range ps {
+		fmt.Fprintf(&b, "%-16s %3d/%-3d", p.Parent, p.Answered, p.Items)
+		for _, sh := range p.Shares {
+			fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]      ", sh.Value, sh.Lo, sh.Hi)
+		}
+		if p.Position != nil {
+			fmt.Fprintf(&b, "  %.2f [%.2f, %.2f]", p.Position.Value, p.Position.Lo, p.Position.Hi)
+		}
+		b.WriteString("\n")
+	}
+	return b.String()
+}
+
+// ErrNoParents is returned by Rollup when no item has a parent.
+var ErrNoParents = errors.New("no item has a parent; import items with a parent field (or --split sentences) to roll up")
 
 // fractionalCP is the Clopper–Pearson interval for a real-valued count s
 // of n (0 ≤ s ≤ n) at level.

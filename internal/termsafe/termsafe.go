@@ -1,4 +1,6 @@
-package main
+// Package termsafe shows the control characters of what is written to a
+// terminal instead of letting the terminal obey them.
+package termsafe
 
 import (
 	"fmt"
@@ -9,19 +11,20 @@ import (
 	"golang.org/x/term"
 )
 
-// termSafe writes to a terminal with its control characters shown, not
+// writer writes to a terminal with its control characters shown, not
 // obeyed: C0 controls but newline and tab, DEL, C1 controls and the
 // Unicode characters that reorder text (U+202A–U+202E, U+2066–U+2069)
 // become \xNN or \u escapes. Ids and texts in a project are data; an id
 // holding an escape sequence must not move the cursor, change colours or
 // forge lines. (The readers refuse such ids; projects made before may hold
 // them.) Output that goes to a file or a pipe is not changed.
-type termSafe struct{ f *os.File }
+type writer struct{ f *os.File }
 
-// Fd lets interactive (helpers.go) see the terminal behind.
-func (w termSafe) Fd() uintptr { return w.f.Fd() }
+// Fd lets callers see the terminal behind (to size progress bars).
+func (w writer) Fd() uintptr { return w.f.Fd() }
 
-func (w termSafe) Write(p []byte) (int, error) {
+// Write writes p with its control characters escaped and returns len(p).
+func (w writer) Write(p []byte) (int, error) {
 	if _, err := w.f.Write(escapeControls(p)); err != nil {
 		return 0, err
 	}
@@ -29,7 +32,7 @@ func (w termSafe) Write(p []byte) (int, error) {
 }
 
 // escapeControls returns p with its control characters escaped (see
-// termSafe); p itself if it has none.
+// writer); p itself if it has none.
 func escapeControls(p []byte) []byte {
 	var out []byte
 	for i := 0; i < len(p); {
@@ -63,10 +66,11 @@ func escapeControls(p []byte) []byte {
 	return out
 }
 
-// terminalOut returns stdout, wrapped in termSafe when it is a terminal.
-func terminalOut(f *os.File) io.Writer {
+// Out returns f, wrapped so that its control characters are escaped when
+// it is a terminal; a file or a pipe gets the bytes unchanged.
+func Out(f *os.File) io.Writer {
 	if term.IsTerminal(int(f.Fd())) {
-		return termSafe{f}
+		return writer{f}
 	}
 	return f
 }
