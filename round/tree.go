@@ -195,7 +195,7 @@ func QuestionConsensus(st *store.Store, key string, cfg ConsensusConfig, source 
 	if err != nil {
 		return nil, err
 	}
-	if err := st.PutState(questionState(x.Key), j, source); err != nil {
+	if err := st.PutStates(map[string][]byte{questionState(x.Key): j}, "consensus.put", fmt.Sprintf("question %q: %d items", x.Key, len(cs)), source); err != nil {
 		return nil, err
 	}
 	return rep, nil

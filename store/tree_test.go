@@ -220,7 +220,7 @@ func TestAddQuestion(t *testing.T) {
 	if _, err := s.PutLabels([]handoff.Label{{Item: "i000", Annotator: "y", Question: "severity", Class: "high"}}, "test"); err != nil {
 		t.Fatal(err)
 	}
-	dir := s.Dir()
+	dir := s.dir
 	s.Close()
 	s2, err := Open(dir)
 	if err != nil {
