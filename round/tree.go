@@ -239,7 +239,11 @@ func QuestionAgreement(st *store.Store, key string, cfg AgreementConfig) (*Agree
 		return nil, err
 	}
 	if q == 0 {
-		return Agreement(st, cfg)
+		r, err := Agreement(st, cfg)
+		if r != nil && cb.Tree() {
+			r.Question = cb.FirstKey()
+		}
+		return r, err
 	}
 	sn, err := st.Snapshot(store.SnapshotOptions{Times: true})
 	if err != nil {
@@ -252,5 +256,9 @@ func QuestionAgreement(st *store.Store, key string, cfg AgreementConfig) (*Agree
 	if p.labels.Len() == 0 {
 		return nil, fmt.Errorf("%w: question %q has no labels yet; add some with `loop labels add`", ErrNothing, cb.All()[q].Key)
 	}
-	return agreement(p, cfg)
+	r, err := agreement(p, cfg)
+	if r != nil {
+		r.Question = cb.All()[q].Key
+	}
+	return r, err
 }

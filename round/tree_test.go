@@ -171,6 +171,10 @@ func TestQuestionConsensus(t *testing.T) {
 	}
 	a1, _ := QuestionAgreement(tree, "", AgreementConfig{Rules: cfg.Rules, Reps: 50, Seed: 1})
 	a2, _ := Agreement(one, AgreementConfig{Rules: cfg.Rules, Reps: 50, Seed: 1})
+	if a1 == nil || a1.Question != "topic" {
+		t.Fatalf("first question's agreement: %+v", a1)
+	}
+	a1.Question = ""
 	if !reflect.DeepEqual(a1, a2) {
 		t.Error("the first question's agreement in a tree differs from the one-question project's")
 	}
