@@ -1,7 +1,8 @@
 // Package crowd turns many redundant, noisy crowd labels into one consensus per
 // item, with a posterior over the classes, and a reliability figure per
 // annotator. It holds the cleaning rules (Clean), the combining methods
-// (Majority, DawidSkene, OneCoin), the correction of a bias every annotator
+// (Majority, DawidSkene, OneCoin, Hierarchical, and Auto, which chooses
+// among them by held-out label likelihood), the correction of a bias every annotator
 // shares (Debias), the agreement statistics (CohenKappa, FleissKappa,
 // KrippendorffAlpha, Agree) and the list of items that still need labels
 // (Uncertain).
@@ -15,6 +16,12 @@
 // Krippendorff's alpha have no maintained Go implementation (gonum has
 // none), and the EM kernel must be cache-blocked and parallel to handle tens
 // of millions of labels (see em.go); quantiles and matrices come from gonum.
+//
+// Size: the package is over 1,500 lines because its combining models share
+// one cache-blocked, parallel EM kernel (em.go, with its amd64 sweeps) that
+// each model plugs an M-step into; splitting them into packages would export
+// the kernel's internals. Cleaning, agreement and debiasing are separate files
+// that only share the Labels type.
 //
 // Conventions: class, item and annotator indices are 0-based; a gold slice
 // has one entry per item holding the expert class or -1 (nil means no gold);
