@@ -114,3 +114,36 @@ func TestTreeLabelFileErrors(t *testing.T) {
 		t.Errorf("one-question codebook, no label column: %v", err)
 	}
 }
+
+func TestParseQuestion(t *testing.T) {
+	cb, err := ParseCodebook("tree.yaml", []byte(treeYAML))
+	if err != nil {
+		t.Fatal(err)
+	}
+	good := "key: cause\nquestion: What caused it?\nclasses: [{key: spill}, {key: runoff}]\nwhen: {question: severity, in: [\"4\", \"5\"]}\n"
+	q, err := ParseQuestion(cb, "cause.yaml", []byte(good))
+	if err != nil || q.Key != "cause" || q.When == nil || q.When.Question != "severity" || len(q.Classes) != 2 {
+		t.Fatalf("parsed %+v, %v", q, err)
+	}
+	cases := []struct {
+		name, text string
+		line       int
+		field, msg string
+	}{
+		{"no key", "question: What?\nclasses: [{key: a}, {key: b}]\n", 1, "key", "needs a key"},
+		{"key taken", "key: species\nquestion: What?\nclasses: [{key: a}, {key: b}]\n", 1, "key", `"species" is already the key of an earlier question`},
+		{"unknown class in condition", "key: cause\nquestion: What?\nclasses: [{key: a}, {key: b}]\nwhen:\n  question: severity\n  in: [\"9\"]\n", 6, "when.in[0]",
+			`"9" is not a class of question "severity"`},
+		{"ordinal out of order", "key: cause\nquestion: What?\nscale: ordinal\nclasses: [{key: \"2\"}, {key: \"1\"}]\n", 4, "classes[1].key", "lowest first"},
+		{"unknown field", "key: cause\nquestion: What?\nclasses: [{key: a}, {key: b}]\nwhem: {question: topic, in: [other]}\n", 4, "", "whem"},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			_, err := ParseQuestion(cb, "q.yaml", []byte(c.text))
+			var e *Error
+			if !errors.As(err, &e) || e.File != "q.yaml" || e.Line != c.line || e.Field != c.field || !strings.Contains(err.Error(), c.msg) {
+				t.Errorf("error %v (%+v), want line %d field %q: %q", err, e, c.line, c.field, c.msg)
+			}
+		})
+	}
+}

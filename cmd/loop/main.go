@@ -31,8 +31,9 @@ var (
 	commands    []func() *cobra.Command
 	subcommands = map[string][]func() *cobra.Command{}
 	groupShort  = map[string]string{
-		"items":  "Add items (texts or images) to a project",
-		"labels": "Add crowd labels or gold answers to a project",
+		"items":    "Add items (texts or images) to a project",
+		"labels":   "Add crowd labels or gold answers to a project",
+		"codebook": "Change a project's codebook: add a follow-up question",
 	}
 )
 
