@@ -292,6 +292,8 @@ type LabelTable struct {
 	Seconds   []float32
 
 	tree bool // Class holds question<<8 | class (see Question, ClassIn)
+	// all: the codebook's questions, for Names (nil unless tree).
+	all []handoff.Question
 }
 
 // Len returns the number of labels.
@@ -315,6 +317,9 @@ func (s *Store) LabelTable(withTimes bool) (*LabelTable, error) {
 // labelTable reads the label table inside tx.
 func (s *Store) labelTable(tx *bolt.Tx, withTimes bool) (*LabelTable, error) {
 	t := &LabelTable{Classes: s.cb.Keys(), tree: s.cb.Tree()}
+	if t.tree {
+		t.all = s.cb.All()
+	}
 	t.ItemIDs = itemIDs(tx)
 	as := make([]string, tx.Bucket(bAnnotators).Sequence())
 	if err := tx.Bucket(bAnnotatorIDs).ForEach(func(k, v []byte) error {

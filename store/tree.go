@@ -106,6 +106,23 @@ func (t *LabelTable) ClassIn(i int) int {
 	return int(t.Class[i] & 0xff)
 }
 
+// Names returns the question key ("" for the first question) and the
+// class key of label i.
+func (t *LabelTable) Names(i int) (question, class string) {
+	if !t.tree {
+		return "", t.Classes[t.Class[i]]
+	}
+	q, c := t.Question(i), t.ClassIn(i)
+	if q > 0 {
+		question = t.all[q].Key
+	}
+	return question, t.all[q].Classes[c].Key
+}
+
+// Tree reports whether the table's labels come from a question tree (and
+// may answer follow-up questions).
+func (t *LabelTable) Tree() bool { return t.tree }
+
 // ForQuestion returns the labels of question q only (q a position in
 // Codebook.All()), with Class the index within the question and Classes the
 // question's class keys: a table of the one-question codebook cb.Sub(q).

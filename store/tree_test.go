@@ -94,6 +94,12 @@ func TestTreeLabelBytes(t *testing.T) {
 	if q, c := tab.Question(2), tab.ClassIn(2); q != 1 || c != 2 {
 		t.Errorf("label 2: question %d class %d, want 1 2", q, c)
 	}
+	if q, c := tab.Names(2); q != "severity" || c != "high" || !tab.Tree() {
+		t.Errorf("label 2 names %q %q", q, c)
+	}
+	if q, c := tab.Names(1); q != "" || c != "b" {
+		t.Errorf("label 1 names %q %q", q, c)
+	}
 	sub := tab.ForQuestion(treeCodebook, 1)
 	if sub.Len() != 1 || sub.Class[0] != 2 || sub.Item[0] != 1 || !reflect.DeepEqual(sub.Classes, []string{"low", "mid", "high"}) {
 		t.Errorf("ForQuestion(1): %+v", sub)
