@@ -248,6 +248,9 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 		out[a]++
 	}
 	for a, id := range p.anns {
+		if p.ofTree && in[a] == 0 {
+			continue // answered other questions of the tree only
+		}
 		conf := make([][]float64, K)
 		for t := range K {
 			conf[t] = append([]float64(nil), res.Confusion[(a*K+t)*K:(a*K+t+1)*K]...)

@@ -120,7 +120,11 @@ func questionProject(sn *store.Snapshot, q int, asked []bool) (*project, error) 
 		t = f
 	}
 	sub.Labels = t
-	return projectOf(&sub)
+	p, err := projectOf(&sub)
+	if p != nil {
+		p.ofTree = true
+	}
+	return p, err
 }
 
 // QuestionConsensus cleans and combines the labels of one question (key,

@@ -194,3 +194,39 @@ func TestQuestionOrder(t *testing.T) {
 		t.Errorf("order %v, want %v (b before c)", got, want)
 	}
 }
+
+// The first question's round in a tree is the one-question project's: the
+// same round record and model, byte for byte, with follow-up labels stored.
+func TestTreeRoundIsTheFirstQuestions(t *testing.T) {
+	var rounds, models [][]byte
+	for _, tree := range []bool{false, true} {
+		st, d := smallProject(t, t.TempDir(), 3)
+		if tree {
+			first := st.Codebook().Classes[0].Key
+			if _, err := st.AddQuestion(handoff.Question{Key: "severity", Question: "How bad?", Scale: handoff.Ordinal,
+				Classes: []handoff.Class{{Key: "1"}, {Key: "2"}, {Key: "3"}}, When: &handoff.Condition{Question: "main", In: []string{first}}}, "test"); err != nil {
+				t.Fatal(err)
+			}
+			items, _, _ := d.Of(handoff.KindText)
+			var ls []handoff.Label
+			for i, it := range items[:100] {
+				ls = append(ls, handoff.Label{Item: it.ID, Annotator: fmt.Sprintf("sev%d", i%4), Question: "severity", Class: fmt.Sprint(1 + i%3)})
+			}
+			if _, err := st.PutLabels(ls, "test"); err != nil {
+				t.Fatal(err)
+			}
+		}
+		cfg := DefaultConfig()
+		cfg.Seed, cfg.Batch, cfg.Verdict.Bootstrap = 7, 50, 200
+		r, err := Run(st, cfg, "test")
+		if err != nil {
+			t.Fatal(err)
+		}
+		rb, _ := st.Round(r.Round)
+		mb, _ := st.Model(r.Model)
+		rounds, models = append(rounds, rb), append(models, mb)
+	}
+	if !bytes.Equal(rounds[0], rounds[1]) || !bytes.Equal(models[0], models[1]) {
+		t.Errorf("the first question's round in a tree differs from the one-question project's")
+	}
+}
