@@ -44,7 +44,7 @@ func TestExportTree(t *testing.T) {
 		l("r1", "a", "", "pollution"), l("r1", "b", "", "pollution"), l("r1", "c", "", "pollution"),
 		l("r1", "a", "severity", "2"), l("r1", "b", "severity", "2"), l("r1", "c", "severity", "3"),
 		l("r2", "a", "", "wildlife"), l("r2", "b", "", "wildlife"), l("r2", "c", "", "other"),
-		l("r2", "a", "severity", "1"), // the consensus says wildlife: not asked
+		l("r2", "a", "severity", "1"),                                // the consensus says wildlife: not asked
 		l("r3", "a", "", "pollution"), l("r3", "b", "", "pollution"), // asked, not answered yet
 	}
 	if _, err := st.PutLabels(labels, "test"); err != nil {
