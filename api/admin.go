@@ -557,7 +557,11 @@ func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
 	}
 	if format == "csv" {
 		cw := csv.NewWriter(w)
-		if err := cw.Write([]string{"item", "annotator", "label", "time", "seconds"}); err != nil {
+		head := []string{"item", "annotator", "label", "time", "seconds"}
+		if t.Tree() { // a question tree: the question of each label (empty: the first)
+			head = []string{"item", "annotator", "question", "label", "time", "seconds"}
+		}
+		if err := cw.Write(head); err != nil {
 			return err
 		}
 		for i := range t.Item {
@@ -565,7 +569,12 @@ func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
 			if t.Seconds[i] != 0 {
 				secs = strconv.FormatFloat(float64(t.Seconds[i]), 'g', -1, 32)
 			}
-			if err := cw.Write(export.SafeCells([]string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], t.Classes[t.Class[i]], when(i), secs})); err != nil {
+			q, class := t.Names(i)
+			rec := []string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], class, when(i), secs}
+			if t.Tree() {
+				rec = []string{t.ItemIDs[t.Item[i]], t.AnnotatorIDs[t.Annotator[i]], q, class, when(i), secs}
+			}
+			if err := cw.Write(export.SafeCells(rec)); err != nil {
 				return err
 			}
 		}
@@ -574,7 +583,8 @@ func writeLabels(w io.Writer, t *store.LabelTable, format string) error {
 	}
 	enc := json.NewEncoder(w)
 	for i := range t.Item {
-		l := handoff.Label{Item: t.ItemIDs[t.Item[i]], Annotator: t.AnnotatorIDs[t.Annotator[i]], Class: t.Classes[t.Class[i]],
+		q, class := t.Names(i)
+		l := handoff.Label{Item: t.ItemIDs[t.Item[i]], Annotator: t.AnnotatorIDs[t.Annotator[i]], Question: q, Class: class,
 			Seconds: float64(t.Seconds[i])}
 		if t.Time[i] != 0 {
 			l.Time = time.Unix(0, t.Time[i]).UTC()

@@ -10,6 +10,7 @@ import (
 	"bufio"
 	"encoding/csv"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"io"
 	"regexp"
@@ -44,6 +45,23 @@ type Row struct {
 	Parent     string            `json:"parent,omitempty" parquet:"parent"`
 	Position   int               `json:"position" parquet:"position"`
 	Covariates map[string]string `json:"covariates,omitempty" parquet:"covariates"`
+	// Answers holds, in a question tree, one answer per follow-up question
+	// (in codebook order), empty where the question is not asked of the
+	// item or has no consensus yet.
+	Answers []Answer `json:"answers,omitempty" parquet:"answers,list"`
+}
+
+// Answer is an item's answer to a follow-up question: its crowd consensus
+// (Source crowd; follow-ups have no gold or machine labels yet), the
+// posterior of Class as Confidence and the number of labels combined. An
+// empty Class and Source mean not asked (the item's answer to the parent
+// question is outside the follow-up's condition) or not answered yet.
+type Answer struct {
+	Question   string  `json:"question" parquet:"question"`
+	Class      string  `json:"class" parquet:"class"`
+	Source     string  `json:"source" parquet:"source"`
+	Confidence float64 `json:"confidence" parquet:"confidence"`
+	Labels     int     `json:"labels" parquet:"labels"`
 }
 
 // Rows returns one export row per item, in store order: gold first, then
@@ -94,12 +112,62 @@ func Rows(st *store.Store) ([]Row, error) {
 		rows = append(rows, r)
 		return nil
 	})
-	return rows, err
+	if err != nil || !cb.Tree() {
+		return rows, err
+	}
+	return rows, addAnswers(st, cb, rows)
+}
+
+// addAnswers fills each row's Answers with the stored consensus of every
+// follow-up question, shown only where the question is asked given the
+// row's exported answers (the first question's Class, then the follow-ups'
+// in order: cb.Asked), so that no item carries an answer to a question its
+// parent answer rules out.
+func addAnswers(st *store.Store, cb handoff.Codebook, rows []Row) error {
+	all := cb.All()
+	cons := make([]map[string]handoff.Consensus, len(all))
+	for q := 1; q < len(all); q++ {
+		cs, _, err := round.StoredQuestionConsensus(st, all[q].Key)
+		if err != nil && !errors.Is(err, round.ErrNothing) {
+			return err
+		}
+		cons[q] = make(map[string]handoff.Consensus, len(cs))
+		for _, c := range cs {
+			cons[q][c.Item] = c
+		}
+	}
+	order := round.QuestionOrder(cb)
+	for i := range rows {
+		r := &rows[i]
+		r.Answers = make([]Answer, len(all)-1)
+		given := map[string]string{}
+		if r.Class != "" {
+			given[cb.FirstKey()] = r.Class
+		}
+		for _, q := range order {
+			if q == 0 {
+				continue
+			}
+			a := Answer{Question: all[q].Key}
+			if c, ok := cons[q][r.Item]; ok && c.Labels > 0 && cb.Asked(q, given) {
+				a.Class, a.Source, a.Labels = c.Class, string(handoff.SourceCrowd), c.Labels
+				if k, ok := cb.Sub(q).Index(c.Class); ok && k < len(c.Posterior) {
+					a.Confidence = c.Posterior[k]
+				}
+				given[all[q].Key] = c.Class
+			}
+			r.Answers[q-1] = a
+		}
+	}
+	return nil
 }
 
 // Write writes rows in format csv, jsonl or parquet. CSV has one column
 // per codebook class for the posterior (p_KEY) and one per covariate
-// (cov_NAME), in sorted order.
+// (cov_NAME), in sorted order; in a question tree then, per follow-up
+// question KEY in codebook order, KEY_label, KEY_source, KEY_confidence and
+// KEY_labels (all four empty where the question is not asked or not
+// answered yet). The first question keeps the plain column names.
 func Write(w io.Writer, format string, rows []Row, classes []string) error {
 	switch format {
 	case "jsonl":
@@ -143,6 +211,13 @@ func writeCSV(w io.Writer, rows []Row, classes []string) error {
 	for _, n := range names {
 		head = append(head, "cov_"+n)
 	}
+	var follow []string
+	if len(rows) > 0 {
+		for _, a := range rows[0].Answers {
+			follow = append(follow, a.Question)
+			head = append(head, a.Question+"_label", a.Question+"_source", a.Question+"_confidence", a.Question+"_labels")
+		}
+	}
 	if err := cw.Write(SafeCells(head)); err != nil {
 		return err
 	}
@@ -158,6 +233,14 @@ func writeCSV(w io.Writer, rows []Row, classes []string) error {
 		}
 		for _, n := range names {
 			rec = append(rec, r.Covariates[n])
+		}
+		for q := range follow {
+			a := r.Answers[q]
+			if a.Source == "" {
+				rec = append(rec, "", "", "", "")
+				continue
+			}
+			rec = append(rec, a.Class, a.Source, f(a.Confidence), strconv.Itoa(a.Labels))
 		}
 		if err := cw.Write(SafeCells(rec)); err != nil {
 			return err

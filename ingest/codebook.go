@@ -110,32 +110,89 @@ func ParseCodebook(name string, data []byte) (handoff.Codebook, error) {
 		if q > 0 {
 			prefix = fmt.Sprintf("questions[%d].", q-1)
 		}
-		if x.Scale != handoff.Ordinal {
-			continue
-		}
-		prev, allNum := 0.0, true
-		vals := make([]float64, len(x.Classes))
-		for i, c := range x.Classes {
-			v, err := strconv.ParseFloat(c.Key, 64)
-			if err != nil {
-				allNum = false
-				break
-			}
-			vals[i] = v
-		}
-		for i := range vals {
-			if !allNum {
-				break
-			}
-			if i > 0 && vals[i] <= prev {
-				f := field(fmt.Sprintf("%sclasses[%d].key", prefix, i))
-				return cb, errf(Location{File: name, Line: lineOf(&node, f)}, f,
-					"ordinal classes must be listed lowest first: %q comes after %q", x.Classes[i].Key, x.Classes[i-1].Key)
-			}
-			prev = vals[i]
+		if i := misordered(x); i > 0 {
+			f := field(fmt.Sprintf("%sclasses[%d].key", prefix, i))
+			return cb, errf(Location{File: name, Line: lineOf(&node, f)}, f,
+				"ordinal classes must be listed lowest first: %q comes after %q", x.Classes[i].Key, x.Classes[i-1].Key)
 		}
 	}
 	return cb, nil
+}
+
+// misordered returns the first class of an ordinal question whose keys are
+// all numbers that is not above the one before it, or 0 when there is none.
+func misordered(x handoff.Question) int {
+	if x.Scale != handoff.Ordinal {
+		return 0
+	}
+	vals := make([]float64, len(x.Classes))
+	for i, c := range x.Classes {
+		v, err := strconv.ParseFloat(c.Key, 64)
+		if err != nil {
+			return 0
+		}
+		vals[i] = v
+	}
+	for i := 1; i < len(vals); i++ {
+		if vals[i] <= vals[i-1] {
+			return i
+		}
+	}
+	return 0
+}
+
+// ParseQuestion parses one follow-up question (YAML or JSON, the fields of
+// an entry of a codebook's questions: key, question, scale, classes,
+// instructions, when) to be added to the codebook cb, and checks the codebook
+// it makes (handoff.Codebook.Validate; ordinal number keys lowest first).
+// Errors name the file, line and field of the question's file.
+func ParseQuestion(cb handoff.Codebook, name string, data []byte) (handoff.Question, error) {
+	var q handoff.Question
+	if !isUTF8(data) {
+		return q, errf(Location{File: name}, "", "not UTF-8 text")
+	}
+	if t := bytes.TrimSpace(data); len(t) > 0 && t[0] == '{' {
+		if err := checkJSON(name, data); err != nil {
+			return q, err
+		}
+	}
+	dec := yaml.NewDecoder(bytes.NewReader(data))
+	dec.KnownFields(true)
+	if err := dec.Decode(&q); err != nil {
+		if errors.Is(err, io.EOF) {
+			return q, errf(Location{File: name}, "", "empty question file")
+		}
+		return q, yamlError(name, data, err)
+	}
+	var more yaml.Node
+	if err := dec.Decode(&more); !errors.Is(err, io.EOF) {
+		return q, errf(Location{File: name, Line: more.Line}, "", "a second YAML document after the question (after \"---\"): the file holds one question")
+	}
+	var node yaml.Node
+	if err := yaml.Unmarshal(data, &node); err != nil {
+		return q, yamlError(name, data, err)
+	}
+	if q.Key == "" {
+		return q, errf(Location{File: name, Line: lineOf(&node, "")}, "key", "the question needs a key (the name of its column in files and exports)")
+	}
+	next := cb
+	next.Questions = append(append([]handoff.Question(nil), cb.Questions...), q)
+	if err := next.Validate(); err != nil {
+		f, msg := splitField(err.Error())
+		// Fields of the new question are "questions[N].…": the file's own.
+		own := fmt.Sprintf("questions[%d]", len(cb.Questions))
+		if f != own && !strings.HasPrefix(f, own+".") {
+			return q, &Error{File: name, Field: f, Err: fmt.Errorf("with this question the codebook breaks a rule: %s", msg)}
+		}
+		f = strings.TrimPrefix(strings.TrimPrefix(f, own), ".")
+		return q, &Error{File: name, Line: lineOf(&node, f), Field: f, Err: errors.New(msg)}
+	}
+	if i := misordered(q); i > 0 {
+		f := fmt.Sprintf("classes[%d].key", i)
+		return q, errf(Location{File: name, Line: lineOf(&node, f)}, f,
+			"ordinal classes must be listed lowest first: %q comes after %q", q.Classes[i].Key, q.Classes[i-1].Key)
+	}
+	return q, nil
 }
 
 // checkJSON checks that a codebook written as JSON is one well-formed JSON

@@ -41,7 +41,8 @@ type AnnotatorKappa struct {
 // alpha under the four metrics, pairwise Cohen's kappa and each annotator's
 // kappa against the leave-one-out majority, with bootstrap 95% intervals.
 type AgreementReport struct {
-	Ordinal     bool                            `json:"ordinal"` // the codebook's classes are ordered
+	Question    string                          `json:"question,omitempty"` // the question's key in a question tree
+	Ordinal     bool                            `json:"ordinal"`            // the codebook's classes are ordered
 	Items       int                             `json:"items"`
 	Labels      int                             `json:"labels"`
 	Annotators  int                             `json:"annotators"`

@@ -89,6 +89,11 @@ type DebiasReport struct {
 // ConsensusReport is what a consensus step did; it is stored beside the
 // consensus (store.Consensus's meta).
 type ConsensusReport struct {
+	// Question is the question's key in a question tree ("" otherwise);
+	// NotAsked counts the items a follow-up does not apply to (its parent's
+	// consensus is outside its condition), which are not in Items.
+	Question   string          `json:"question,omitempty"`
+	NotAsked   int             `json:"not_asked,omitempty"`
 	Config     ConsensusConfig `json:"config"`
 	Classes    []string        `json:"classes"`
 	Items      int             `json:"items"`
@@ -243,6 +248,9 @@ func consensus(p *project, cfg ConsensusConfig) (*consensusResult, error) {
 		out[a]++
 	}
 	for a, id := range p.anns {
+		if p.ofTree && in[a] == 0 {
+			continue // answered other questions of the tree only
+		}
 		conf := make([][]float64, K)
 		for t := range K {
 			conf[t] = append([]float64(nil), res.Confusion[(a*K+t)*K:(a*K+t+1)*K]...)

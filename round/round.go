@@ -45,6 +45,9 @@ type project struct {
 	gold   []int    // per item: expert class or -1
 	golds  []handoff.Gold
 	hasG   bool
+	// ofTree: the project is one question of a question tree, whose
+	// reports leave out the annotators with no label on that question.
+	ofTree bool
 }
 
 // load reads the project in one read transaction.
@@ -58,8 +61,20 @@ func load(st *store.Store) (*project, error) {
 
 // projectOf builds the project from a snapshot. Items are in store order;
 // labels reference them by position.
+//
+// In a question tree the project is the first question's (codebook
+// cb.Sub(0), its labels only), so that every step of a round works on the
+// first question exactly as in a one-question project; follow-up questions
+// are combined by QuestionConsensus.
 func projectOf(sn *store.Snapshot) (*project, error) {
-	p := &project{cb: sn.Codebook, items: sn.Items}
+	tree := sn.Codebook.Tree() || sn.Labels.Tree()
+	if sn.Codebook.Tree() {
+		sub := *sn
+		sub.Codebook = sn.Codebook.Sub(0)
+		sub.Labels = sn.Labels.ForQuestion(sn.Codebook, 0)
+		sn = &sub
+	}
+	p := &project{cb: sn.Codebook, items: sn.Items, ofTree: tree}
 	p.index = make(map[string]int, len(p.items))
 	for i, it := range p.items {
 		p.index[it.ID] = i

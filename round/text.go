@@ -33,6 +33,9 @@ func (r *ConsensusReport) Text(explain bool) string {
 	}
 	fmt.Fprintf(&b, "  gold items: %d\n", r.Gold)
 	fmt.Fprintf(&b, "  items with no labels after cleaning: %d\n", r.NoLabels)
+	if r.NotAsked > 0 {
+		fmt.Fprintf(&b, "  items not asked (their parent answer's consensus is outside the condition): %d\n", r.NotAsked)
+	}
 	fmt.Fprintf(&b, "  items still uncertain (posterior < %.2f): %d — ask for more labels there\n", r.Config.Uncertain, r.Uncertain)
 	b.WriteString("  class shares (prior):")
 	for k, c := range r.Classes {

@@ -139,11 +139,11 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 				return false, dataErr("item", "unknown item %q (add it with `loop items add` first)", l.Item)
 			}
 			r.Item = uint32(binary.BigEndian.Uint64(k))
-			ci, ok := s.cbIx[l.Class]
-			if !ok {
-				return false, dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
+			c, err := s.classCode(l.Question, l.Class)
+			if err != nil {
+				return false, err
 			}
-			r.Class = uint16(ci)
+			r.Class = c
 			if l.Annotator == "" {
 				return false, dataErr("annotator", "empty annotator id")
 			}
@@ -306,7 +306,9 @@ func (s *Store) EachLabel(fn func(r *LabelRecord) error) error {
 // LabelTable is every label as parallel arrays (column i is label i, in
 // order of arrival), with the names that the numbers stand for. Item[i]
 // indexes ItemIDs, Annotator[i] indexes AnnotatorIDs, Class[i] indexes
-// Classes (codebook order). Time[i] is Unix nanoseconds (0 unknown) and
+// Classes (codebook order) in a one-question codebook; in a question tree
+// it is the stored question<<8 | class (use Question, ClassIn, ForQuestion;
+// Classes are the first question's). Time[i] is Unix nanoseconds (0 unknown) and
 // Seconds[i] the seconds spent (0 unknown); both are nil unless asked for.
 // Wave[i] is the label's crowd wave (1, 2, …), nil unless asked for
 // (SnapshotOptions.Waves).
@@ -323,6 +325,10 @@ type LabelTable struct {
 	Time      []int64
 	Seconds   []float32
 	Wave      []uint16
+
+	tree bool // Class holds question<<8 | class (see Question, ClassIn)
+	// all: the codebook's questions, for Names (nil unless tree).
+	all []handoff.Question
 }
 
 // Len returns the number of labels.
@@ -345,7 +351,10 @@ func (s *Store) LabelTable(withTimes bool) (*LabelTable, error) {
 
 // labelTable reads the label table inside tx.
 func (s *Store) labelTable(tx *bolt.Tx, withTimes bool) (*LabelTable, error) {
-	t := &LabelTable{Classes: s.cb.Keys()}
+	t := &LabelTable{Classes: s.cb.Keys(), tree: s.cb.Tree()}
+	if t.tree {
+		t.all = s.cb.All()
+	}
 	t.ItemIDs = itemIDs(tx)
 	as := make([]string, tx.Bucket(bAnnotators).Sequence())
 	if err := tx.Bucket(bAnnotatorIDs).ForEach(func(k, v []byte) error {
@@ -400,10 +409,11 @@ func (s *Store) toLabel(tx *bolt.Tx, r *LabelRecord, items, anns map[uint32]stri
 		an = a.ID
 		anns[r.Annotator] = an
 	}
-	if int(r.Class) >= len(s.cb.Classes) {
-		return handoff.Label{}, errBadLabel
+	q, class, err := s.classOf(r.Class)
+	if err != nil {
+		return handoff.Label{}, err
 	}
-	l := handoff.Label{Item: id, Annotator: an, Class: s.cb.Classes[r.Class].Key, Seconds: r.Seconds}
+	l := handoff.Label{Item: id, Annotator: an, Question: q, Class: class, Seconds: r.Seconds}
 	if r.Wave > 1 {
 		l.Wave = int(r.Wave)
 	}

@@ -275,6 +275,18 @@ func doneKey(item []byte, annotator string) []byte {
 	return append(k, annotator...)
 }
 
+// doneKeyQ is doneKey for a label of question q: the first question's key
+// is doneKey's (as before trees); a follow-up's adds a NUL (never in an
+// annotator id) and q, so that a person answers each question of an item
+// once and an idempotency key is checked within its question.
+func doneKeyQ(item []byte, annotator string, q int) []byte {
+	k := doneKey(item, annotator)
+	if q == 0 {
+		return k
+	}
+	return append(k, 0, byte(q))
+}
+
 // doneRecord decodes a svc_labels value.
 func doneRecord(v []byte) (n uint64, class uint16, key string, ok bool) {
 	if len(v) < 10 {
@@ -306,10 +318,12 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 	if bytes.IndexByte([]byte(l.Annotator), 0) >= 0 {
 		return SubmitResult{}, dataErr("annotator", "annotator id contains a NUL byte")
 	}
-	ci, ok := s.cbIx[l.Class]
-	if !ok {
-		return SubmitResult{}, dataErr("label", "label %q is not in the codebook (classes: %v)", l.Class, s.cb.Keys())
+	code, err := s.classCode(l.Question, l.Class)
+	if err != nil {
+		return SubmitResult{}, err
 	}
+	ci := int(code)
+	lq, _ := splitClass(s.cb, code)
 	if math.IsNaN(l.Seconds) || math.IsInf(l.Seconds, 0) || l.Seconds < 0 {
 		return SubmitResult{}, dataErr("seconds", "seconds %v is not a finite number ≥ 0", l.Seconds)
 	}
@@ -321,7 +335,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 	// rather than in the shared transaction, which one goroutine runs for
 	// everyone.
 	detail := fmt.Sprintf(": item %q, class %q, by %q", l.Item, l.Class, l.Annotator)
-	err := s.batch(func(tx *bolt.Tx) error {
+	err = s.batch(func(tx *bolt.Tx) error {
 		res, outcome = SubmitResult{}, nil
 		keys, err := tx.CreateBucketIfNotExists(bSvcKeys)
 		if err != nil {
@@ -332,7 +346,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 			outcome = dataErr("item", "unknown item %q", l.Item)
 			return nil
 		}
-		ik := doneKey(itemNum, l.Annotator)
+		ik := doneKeyQ(itemNum, l.Annotator, lq)
 		wave := openWave(tx)
 		if v := keys.Get(ik); v != nil && doneInWave(tx, v, wave) {
 			n, class, key, ok := doneRecord(v)
@@ -391,7 +405,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 				if err := decodeLabel(labels.Get(k[8:]), &r); err != nil {
 					return err
 				}
-				if uint64(r.Annotator) == ann && r.Wave == wave {
+				if rq, _ := splitClass(s.cb, r.Class); uint64(r.Annotator) == ann && r.Wave == wave && rq == lq {
 					outcome = fmt.Errorf("item %q: %w", l.Item, ErrAlreadyLabelled)
 					return nil
 				}
@@ -654,9 +668,8 @@ func (s *Store) labelAt(tx *bolt.Tx, n uint64) (handoff.Label, error) {
 // first sent, so a late retry of the first submission is still answered as
 // the duplicate it is (with the label as now stored).
 func (s *Store) ChangeLabel(annotator, item, class string, notBefore time.Time, source string) (handoff.Label, error) {
-	ci, ok := s.cbIx[class]
-	if !ok {
-		return handoff.Label{}, dataErr("label", "label %q is not in the codebook (classes: %v)", class, s.cb.Keys())
+	if _, err := s.classCode("", class); err != nil && !s.cb.Tree() {
+		return handoff.Label{}, err
 	}
 	var (
 		out     handoff.Label
@@ -689,7 +702,17 @@ func (s *Store) ChangeLabel(annotator, item, class string, notBefore time.Time, 
 		if err := decodeLabel(labels.Get(u64(n)), &r); err != nil {
 			return err
 		}
-		v := keys.Get(doneKey(itemNum, annotator))
+		rq, _ := splitClass(s.cb, r.Class)
+		var qkey string
+		if rq > 0 {
+			qkey = s.cb.All()[rq].Key
+		}
+		code, cerr := s.classCode(qkey, class)
+		if cerr != nil {
+			outcome = cerr
+			return nil
+		}
+		v := keys.Get(doneKeyQ(itemNum, annotator, rq))
 		first, _, _, ok := doneRecord(v)
 		if uint64(r.Item) != binary.BigEndian.Uint64(itemNum) || !ok || first != n {
 			outcome = fmt.Errorf("item %q: %w", item, ErrNotLatest)
@@ -699,8 +722,11 @@ func (s *Store) ChangeLabel(annotator, item, class string, notBefore time.Time, 
 			outcome = fmt.Errorf("item %q: %w", item, ErrTooLate)
 			return nil
 		}
-		old := s.cb.Classes[r.Class].Key
-		r.Class = uint16(ci)
+		_, old, err := s.classOf(r.Class)
+		if err != nil {
+			return err
+		}
+		r.Class = code
 		if err := labels.Put(u64(n), encodeLabel(&r)); err != nil {
 			return err
 		}

@@ -134,6 +134,9 @@ type Store struct {
 	dir  string
 	cb   handoff.Codebook
 	cbIx map[string]int
+	// qIx[q] maps the class keys of question q (position in cb.All()) to
+	// their index within the question.
+	qIx []map[string]int
 	// wmu: a chunked import holds it exclusively for its whole run (so that
 	// its rollback cannot remove anyone else's writes); every other write
 	// holds it shared, so they still run as usual among themselves. Shared
@@ -166,6 +169,9 @@ func Path(dir string) string { return filepath.Join(dir, fileName) }
 // a project.
 func Create(dir string, cb handoff.Codebook, source string) (*Store, error) {
 	if err := cb.Validate(); err != nil {
+		return nil, fmt.Errorf("codebook: %w", err)
+	}
+	if err := checkTree(cb); err != nil {
 		return nil, fmt.Errorf("codebook: %w", err)
 	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
@@ -268,6 +274,14 @@ func (s *Store) setCodebook(cb handoff.Codebook) {
 	for i, c := range cb.Classes {
 		s.cbIx[c.Key] = i
 	}
+	all := cb.All()
+	s.qIx = make([]map[string]int, len(all))
+	for q, x := range all {
+		s.qIx[q] = make(map[string]int, len(x.Classes))
+		for i, c := range x.Classes {
+			s.qIx[q][c.Key] = i
+		}
+	}
 }
 
 // Close closes the file (a borrowed handle's Close does nothing).
@@ -287,7 +301,7 @@ func (s *Store) Close() error {
 // handle share the write lock and the group commit. ImportChunk and Now
 // start as the owner's and are the handle's own.
 func (s *Store) Borrow() *Store {
-	return &Store{db: s.db, dir: s.dir, cb: s.cb, cbIx: s.cbIx, wmu: s.wmu, borrowed: true,
+	return &Store{db: s.db, dir: s.dir, cb: s.cb, cbIx: s.cbIx, qIx: s.qIx, wmu: s.wmu, borrowed: true,
 		ImportChunk: s.ImportChunk, Now: s.Now}
 }
 

@@ -1,6 +1,9 @@
 package main
 
 import (
+	"fmt"
+	"strings"
+
 	"github.com/spf13/cobra"
 
 	"handoff/round"
@@ -11,8 +14,9 @@ func init() { register(newAgreementCmd) }
 
 func newAgreementCmd() *cobra.Command {
 	var (
-		cfg    round.AgreementConfig
-		asJSON bool
+		cfg      round.AgreementConfig
+		asJSON   bool
+		question string
 	)
 	c := &cobra.Command{
 		Use:   "agreement DIR",
@@ -40,11 +44,34 @@ interval over items.`,
 					return err
 				}
 				cfg.Rules, cfg.NoCleaning, cfg.Seed = rc.Consensus.Rules, rc.Consensus.NoCleaning, rc.Seed
-				r, err := round.Agreement(s, cfg)
+				cb := s.Codebook()
+				if !cb.Tree() && question == "" {
+					r, err := round.Agreement(s, cfg)
+					if err != nil {
+						return err
+					}
+					return show(cmd, asJSON, r, r.Text())
+				}
+				qs, err := questionsOf(cb, question)
 				if err != nil {
 					return err
 				}
-				return show(cmd, asJSON, r, r.Text())
+				var (
+					reps []*round.AgreementReport
+					text strings.Builder
+				)
+				for _, q := range qs {
+					r, err := round.QuestionAgreement(s, cb.All()[q].Key, cfg)
+					if err != nil {
+						return err
+					}
+					reps = append(reps, r)
+					fmt.Fprintf(&text, "%s%s", questionHeader(cb, q, text.Len() > 0), r.Text())
+				}
+				if len(reps) == 1 {
+					return show(cmd, asJSON, reps[0], text.String())
+				}
+				return show(cmd, asJSON, reps, text.String())
 			})
 		},
 	}
@@ -52,6 +79,7 @@ interval over items.`,
 	fl.BoolVar(&cfg.Pairs, "pairs", false, "also Cohen's kappa for every pair of annotators sharing enough items")
 	fl.IntVar(&cfg.MinShared, "min-shared", 10, "pairs: fewest shared items")
 	fl.IntVar(&cfg.Reps, "reps", 1000, "bootstrap replicates")
+	fl.StringVar(&question, "question", "", "measure only this question of a question tree (default: every question, one section each)")
 	fl.BoolVar(&asJSON, "json", false, "print JSON")
 	bindSettings(c, append(cleaningKeys, "seed")...)
 	return c

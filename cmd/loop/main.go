@@ -34,6 +34,7 @@ var (
 		"items":     "Add items (texts or images) to a project",
 		"labels":    "Add crowd labels or gold answers to a project",
 		"reference": "Add or list independent (expert) codings to compare with",
+		"codebook":  "Change a project's codebook: add a follow-up question",
 	}
 )
 
