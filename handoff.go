@@ -384,6 +384,10 @@ type Annotator struct {
 // key of a codebook question ("" means the first), Class is a key of that
 // question's classes. Time is when the answer was given (zero if unknown);
 // Seconds is the time spent on it (0 if unknown, never negative).
+// Wave is the crowd wave the label belongs to (1 … MaxWave): a later run
+// of the crowd over the same items, to measure test–retest reliability.
+// 0 means unset: the project's open wave when the label is added (1 until
+// a new wave is opened), and wave 1 when read back.
 type Label struct {
 	Item      string    `json:"item"`
 	Annotator string    `json:"annotator"`
@@ -391,7 +395,11 @@ type Label struct {
 	Class     string    `json:"label"`
 	Time      time.Time `json:"time,omitzero"`
 	Seconds   float64   `json:"seconds,omitempty"`
+	Wave      int       `json:"wave,omitempty"`
 }
+
+// MaxWave is the highest wave a label may carry.
+const MaxWave = 65535
 
 // Gold is an item whose answer is known from experts. Source says who or what
 // gave it (a file name, an expert's name).

@@ -46,6 +46,8 @@ func (sv *Server) table() []route {
 		// The team.
 		{method: "GET", path: "/api/v1/status", need: adminOnly, handler: sv.getStatus},
 		{method: "GET", path: "/api/v1/labels-per-day", need: adminOnly, handler: sv.getLabelsPerDay},
+		{method: "GET", path: "/api/v1/waves", need: adminOnly, long: true, handler: sv.getWaves},
+		{method: "POST", path: "/api/v1/waves", need: adminOnly, changes: true, handler: sv.postWave},
 		{method: "GET", path: "/api/v1/people", need: adminOnly, handler: sv.getPeople},
 		{method: "POST", path: "/api/v1/people", need: adminOnly, changes: true, handler: sv.postPeople},
 		{method: "POST", path: "/api/v1/people/:id/tokens", need: adminOnly, changes: true, handler: sv.postPersonToken},

@@ -199,6 +199,9 @@ func (r *runner) project(dir string, pr project, src string) (string, error) {
 	} else {
 		r.printf("  NOT YET after %d %s: nothing autolabelled; the crowd keeps labelling\n", res.Round, map[bool]string{true: "round", false: "rounds"}[res.Round == 1])
 	}
+	if err := r.codings(st, dir, pr, src); err != nil {
+		return "", err
+	}
 	rep, err := round.Verdict(st, round.VerdictConfig{})
 	if err != nil {
 		return "", err

@@ -16,13 +16,13 @@ type VerdictConfig struct {
 // verdictKeys are the settings Verdict may override.
 var verdictKeys = []string{"max-error", "confidence", "median-gate", "require-stable"}
 
-// Verdict returns the verdict of the latest round, with the audit of
+// verdictOf returns the verdict of the latest round, with the audit of
 // machine labels as it stands now (the consensus recomputed in memory with
 // the round's settings, so audit labels added since count). When cfg
 // changes a setting, the whole verdict is computed again from the latest
 // round's stored scores (no featurising) and the labels as they are now;
 // the look stays the round's.
-func Verdict(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
+func verdictOf(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
 	for _, o := range cfg.Overrides {
 		if !slices.Contains(verdictKeys, o.Key) {
 			return nil, &SettingError{Key: o.Key, Value: o.Value, Want: "one of the verdict settings max-error, confidence, median-gate, require-stable"}

@@ -17,6 +17,7 @@ import (
 // LabelRecord is one label in compact form: the item, annotator and class
 // are numbers (item number, annotator number, index of the class in the
 // codebook). Time is Unix nanoseconds, 0 if unknown; Seconds is 0 if unknown.
+// Wave is the crowd wave (1, 2, …; 0 is written as 1 and read back as 1).
 type LabelRecord struct {
 	N         uint64 // label number, in order of arrival
 	Item      uint32
@@ -24,12 +25,16 @@ type LabelRecord struct {
 	Class     uint16
 	Time      int64
 	Seconds   float64
+	Wave      uint16
 }
 
 // Packed label: uvarint item, uvarint annotator, uvarint class, varint time,
-// then 8 bytes of float64 seconds only if seconds != 0.
+// then 8 bytes of float64 seconds only if seconds != 0, then the wave as a
+// uvarint (1–3 bytes) only if it is 2 or more. A record of wave 1 is the
+// same bytes as before waves existed, so older files read unchanged: after
+// the time, 0 or 8 bytes are left without a wave, 1–3 or 9–11 with one.
 func encodeLabel(r *LabelRecord) []byte {
-	var buf [3*binary.MaxVarintLen32 + binary.MaxVarintLen64 + 8]byte
+	var buf [3*binary.MaxVarintLen32 + binary.MaxVarintLen64 + 8 + 3]byte
 	n := binary.PutUvarint(buf[:], uint64(r.Item))
 	n += binary.PutUvarint(buf[n:], uint64(r.Annotator))
 	n += binary.PutUvarint(buf[n:], uint64(r.Class))
@@ -37,6 +42,9 @@ func encodeLabel(r *LabelRecord) []byte {
 	if r.Seconds != 0 {
 		binary.LittleEndian.PutUint64(buf[n:], math.Float64bits(r.Seconds))
 		n += 8
+	}
+	if r.Wave > 1 {
+		n += binary.PutUvarint(buf[n:], uint64(r.Wave))
 	}
 	return append([]byte(nil), buf[:n]...)
 }
@@ -69,10 +77,23 @@ func decodeLabel(v []byte, r *LabelRecord) error {
 	}
 	r.Time = t
 	k += n
-	r.Seconds = 0
-	if len(v)-k == 8 {
+	r.Seconds, r.Wave = 0, 1
+	rest := len(v) - k
+	switch {
+	case rest == 0:
+	case rest == 8:
 		r.Seconds = math.Float64frombits(binary.LittleEndian.Uint64(v[k:]))
-	} else if len(v) != k {
+	case rest >= 1 && rest <= 3, rest >= 9 && rest <= 11:
+		if rest >= 9 {
+			r.Seconds = math.Float64frombits(binary.LittleEndian.Uint64(v[k:]))
+			k += 8
+		}
+		w, n := binary.Uvarint(v[k:])
+		if n != len(v)-k || w < 2 || w > math.MaxUint16 {
+			return errBadLabel
+		}
+		r.Wave = uint16(w)
+	default:
 		return errBadLabel
 	}
 	return nil
@@ -85,7 +106,9 @@ func decodeLabel(v []byte, r *LabelRecord) error {
 // Annotators are created on first sight. Repeated labels (same item and
 // annotator) are kept: cleaning rules decide later what to do with them.
 // Times are stored to the nanosecond as UTC (read back in UTC); a time
-// outside the years 1678–2261 is refused.
+// outside the years 1678–2261 is refused. A label without a wave (Wave 0)
+// gets the project's open wave (see OpenWave); a wave above
+// handoff.MaxWave or below 0 is refused.
 //
 // next is called inside the write transaction; it must not use the store.
 func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) (ImportResult, error) {
@@ -97,6 +120,8 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 		labels.FillPercent = 1
 		itemIDs := tx.Bucket(bItemIDs)
 		ann := newAnnotatorCache(tx, annIDs)
+		open := openWave(tx)
+		later := false
 		seq := labels.Sequence()
 		done := false
 		for n := 0; n < chunk; n++ {
@@ -126,6 +151,10 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 				return false, dataErr("seconds", "seconds %v is not a finite number ≥ 0", l.Seconds)
 			}
 			r.Seconds = l.Seconds
+			if r.Wave, err = waveOf(l.Wave, open); err != nil {
+				return false, err
+			}
+			later = later || r.Wave > 1
 			if !l.Time.IsZero() {
 				if y := l.Time.UTC().Year(); y < 1678 || y > 2261 {
 					return false, dataErr("time", "time %s is outside the years 1678–2261 that can be stored", l.Time.Format(time.RFC3339))
@@ -150,6 +179,9 @@ func (s *Store) ImportLabels(source string, next func() (handoff.Label, error)) 
 			res.Added++
 		}
 		if err := labels.SetSequence(seq); err != nil {
+			return false, err
+		}
+		if err := markWaves(tx, later); err != nil {
 			return false, err
 		}
 		if done {
@@ -278,6 +310,8 @@ func (s *Store) EachLabel(fn func(r *LabelRecord) error) error {
 // it is the stored question<<8 | class (use Question, ClassIn, ForQuestion;
 // Classes are the first question's). Time[i] is Unix nanoseconds (0 unknown) and
 // Seconds[i] the seconds spent (0 unknown); both are nil unless asked for.
+// Wave[i] is the label's crowd wave (1, 2, …), nil unless asked for
+// (SnapshotOptions.Waves).
 // Memory: 10 bytes per label (22 with times), so 40 million labels take
 // 400 MB (880 MB), plus the id strings.
 type LabelTable struct {
@@ -290,6 +324,7 @@ type LabelTable struct {
 	Class     []uint16
 	Time      []int64
 	Seconds   []float32
+	Wave      []uint16
 
 	tree bool // Class holds question<<8 | class (see Question, ClassIn)
 	// all: the codebook's questions, for Names (nil unless tree).
@@ -379,6 +414,9 @@ func (s *Store) toLabel(tx *bolt.Tx, r *LabelRecord, items, anns map[uint32]stri
 		return handoff.Label{}, err
 	}
 	l := handoff.Label{Item: id, Annotator: an, Question: q, Class: class, Seconds: r.Seconds}
+	if r.Wave > 1 {
+		l.Wave = int(r.Wave)
+	}
 	if r.Time != 0 {
 		l.Time = time.Unix(0, r.Time).UTC()
 	}

@@ -300,7 +300,8 @@ func doneRecord(v []byte) (n uint64, class uint16, key string, ok bool) {
 // share transactions). In the same transaction it checks and ends the lease:
 // the lease must exist, belong to the label's annotator and item, and not
 // have expired at the time of the transaction; it is deleted when the label
-// is written. A person may label an item once (ErrAlreadyLabelled).
+// is written. A person may label an item once per wave (ErrAlreadyLabelled);
+// the label gets the project's open wave (OpenWave).
 //
 // A Submission that breaks the label rules returns a *DataError; the lease
 // and key problems return the Err… values above (wrapped). The key is looked
@@ -346,7 +347,8 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 			return nil
 		}
 		ik := doneKeyQ(itemNum, l.Annotator, lq)
-		if v := keys.Get(ik); v != nil {
+		wave := openWave(tx)
+		if v := keys.Get(ik); v != nil && doneInWave(tx, v, wave) {
 			n, class, key, ok := doneRecord(v)
 			switch {
 			case !ok:
@@ -403,7 +405,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 				if err := decodeLabel(labels.Get(k[8:]), &r); err != nil {
 					return err
 				}
-				if rq, _ := splitClass(s.cb, r.Class); uint64(r.Annotator) == ann && rq == lq {
+				if rq, _ := splitClass(s.cb, r.Class); uint64(r.Annotator) == ann && r.Wave == wave && rq == lq {
 					outcome = fmt.Errorf("item %q: %w", l.Item, ErrAlreadyLabelled)
 					return nil
 				}
@@ -413,7 +415,7 @@ func (s *Store) Submit(sub Submission, source string) (SubmitResult, error) {
 		if err != nil {
 			return err
 		}
-		r := LabelRecord{Item: uint32(item), Annotator: a, Class: uint16(ci), Seconds: l.Seconds}
+		r := LabelRecord{Item: uint32(item), Annotator: a, Class: uint16(ci), Seconds: l.Seconds, Wave: wave}
 		if !l.Time.IsZero() {
 			r.Time = l.Time.UnixNano()
 		}

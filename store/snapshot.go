@@ -41,6 +41,8 @@ type Snapshot struct {
 type SnapshotOptions struct {
 	// Times fills the label table's Time and Seconds.
 	Times bool
+	// Waves fills the label table's Wave.
+	Waves bool
 	// ModelOf, if set, is called inside the transaction with the latest
 	// round record (nil before the first round) and names the model to
 	// read with it ("" for none).
@@ -69,6 +71,11 @@ func (s *Store) Snapshot(opt SnapshotOptions) (*Snapshot, error) {
 		t, err := s.labelTable(tx, opt.Times)
 		if err != nil {
 			return err
+		}
+		if opt.Waves {
+			if t.Wave, err = labelWaves(tx); err != nil {
+				return err
+			}
 		}
 		sn.Labels = t
 		sn.LabelSeq = tx.Bucket(bLabels).Sequence()

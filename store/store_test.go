@@ -339,6 +339,7 @@ func TestLabelEncodingRoundTrip(t *testing.T) {
 		{Item: 3, Annotator: 1 << 20, Class: 2, Time: time.Now().UnixNano()},
 	} {
 		var got LabelRecord
+		r.Wave = 1 // no wave written: wave 1
 		if err := decodeLabel(encodeLabel(&r), &got); err != nil || got != r {
 			t.Errorf("round trip %+v → %+v, %v", r, got, err)
 		}

@@ -243,6 +243,7 @@ The median annotator agrees with the others on {{pct .MedianAgreement}} of their
 <p>{{n .Errors}} errors in {{n .N}} machine-labelled items checked by people: {{pct .Rate}}, {{pct .Level}} Clopper–Pearson interval [{{pct .Lo}}, {{pct .Hi}}].</p>
 {{end}}{{end}}
 
+{{.Codings}}
 <h2>Settings</h2>
 {{with .R.Settings}}<p class="muted">Verdict: max-error {{.MaxError}}, confidence {{.Confidence}} over all looks (look {{.Look}}, α<sub>{{.Look}}</sub> = {{g4 .LookAlpha}}), bootstrap B = {{n .Bootstrap}} at level {{.Level}} with seed {{.Seed}}, minimum {{n .MinCount}} items per tested threshold, {{.Bins}} calibration bins, stop rule kappa ≥ {{.StopKappa}} for {{.StopWindow}} rounds, learning-curve target {{.TargetError}}, median-annotator gate {{if .MedianGate}}on{{else}}off{{end}}.</p>{{end}}
 {{if .R.Run}}<div class="wide"><table><tr><th>setting</th><th>value</th><th>from</th></tr>{{range .R.Run}}<tr><th>{{.Key}}</th><td>{{.Value}}</td><td>{{.Source}}</td></tr>{{end}}</table></div>{{end}}
@@ -272,8 +273,12 @@ func (r *Report) WriteHTML(w io.Writer, title string) error {
 		Confusion                                           confusionView
 		Bins                                                []binsView
 		RiskPlot, ReliabilityPlot, CurvePlot, AnnotatorPlot figure
+		Codings                                             template.HTML
 	}{Title: title, Headline: r.Headline(), R: r, Confusion: r.confusion(), Bins: r.bins()}
 	var err error
+	if data.Codings, err = r.codingsSection(); err != nil {
+		return fmt.Errorf("independent codings: %w", err)
+	}
 	if len(r.CoverageRisk) > 0 {
 		if data.RiskPlot, err = r.plotRisk(); err != nil {
 			return fmt.Errorf("coverage–risk plot: %w", err)

@@ -58,6 +58,8 @@ import (
 	"fmt"
 	"math"
 	"strings"
+
+	"handoff/compare"
 )
 
 // Input is everything the verdict needs, as plain values.
@@ -302,6 +304,11 @@ type Report struct {
 	Settings     Settings      `json:"settings"`
 	// ArchiveItems is the number of archive confidences given.
 	ArchiveItems int `json:"archive_items"`
+	// Codings are the crowd's, the machine's and the waves' comparisons
+	// with independent codings (see package compare), attached when the
+	// report is shown; nil when the project has none. They never enter
+	// the decision.
+	Codings *compare.Report `json:"codings,omitempty"`
 }
 
 // WithAudit returns a copy of the report with the audit replaced by a (nil

@@ -25,17 +25,20 @@ import (
 // path, and whether they may change what the server keeps in memory (then
 // the server reads it again afterwards).
 var besideServer = map[string]bool{
-	"loop status":        false,
-	"loop consensus":     false,
-	"loop agreement":     false,
-	"loop verdict":       false,
-	"loop export":        false,
-	"loop rollup":        false,
-	"loop next":          true,
-	"loop people add":    false,
-	"loop people list":   false,
-	"loop people token":  false,
-	"loop people revoke": false,
+	"loop status":         false,
+	"loop consensus":      false,
+	"loop agreement":      false,
+	"loop verdict":        false,
+	"loop export":         false,
+	"loop rollup":         false,
+	"loop compare":        false,
+	"loop reference list": false,
+	"loop waves":          false,
+	"loop next":           true,
+	"loop people add":     false,
+	"loop people list":    false,
+	"loop people token":   false,
+	"loop people revoke":  false,
 }
 
 // pathFlags are the flags of those commands that name files, made absolute

@@ -3,6 +3,7 @@ package main
 import (
 	"github.com/spf13/cobra"
 
+	"handoff"
 	"handoff/ingest"
 )
 
@@ -14,6 +15,7 @@ func newLabelsAddCmd() *cobra.Command {
 		gold        bool
 		lopt        ingest.LabelOptions
 		sourceField string
+		wave        int
 	)
 	c := &cobra.Command{
 		Use:   "add DIR FILE...",
@@ -27,13 +29,27 @@ optionally time (RFC 3339, e.g. 2024-05-01T14:03:00Z) and seconds (time spent).
 Every item must already be in the project. Repeated labels by one annotator
 for one item are all kept; cleaning rules decide later.
 
+With --wave N the labels belong to crowd wave N (a later run of the crowd
+over the same items, for test–retest reliability; see loop compare and loop
+waves); without it they belong to the project's open wave (1 unless a new
+wave was opened).
+
 With --gold the fields are item, label and optionally source (who gave the
 answer; default the file name). Gold for an item that has gold replaces it.`,
 		Example: `  loop labels add proj labels.csv
   loop labels add proj round2.jsonl --annotator-field worker
+  loop labels add proj retest.csv --wave 2
   loop labels add proj expert.csv --gold`,
 		Args: cobra.MinimumNArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
+			if cmd.Flags().Changed("wave") {
+				if gold {
+					return usageErrorf("--wave is for crowd labels, not --gold answers")
+				}
+				if wave < 1 || wave > handoff.MaxWave {
+					return usageErrorf("--wave %d: give a wave from 1 to %d", wave, handoff.MaxWave)
+				}
+			}
 			srcs, err := ingest.LabelSources(args[1:], ingest.Format(format))
 			if err != nil {
 				return sourceUsage(err)
@@ -57,7 +73,11 @@ answer; default the file name). Gold for an item that has gold replaces it.`,
 			}
 			f := readFiles(cmd, ingest.LabelFiles(srcs, lopt))
 			defer f.Close()
-			res, err := s.ImportLabels(source(cmd), f.Next)
+			res, err := s.ImportLabels(source(cmd), func() (handoff.Label, error) {
+				l, err := f.Next()
+				l.Wave = wave
+				return l, err
+			})
 			if err != nil {
 				return located(err, f)
 			}
@@ -74,5 +94,6 @@ answer; default the file name). Gold for an item that has gold replaces it.`,
 	f.StringVar(&lopt.TimeField, "time-field", "time", "field holding when the label was given (RFC 3339)")
 	f.StringVar(&lopt.SecondsField, "seconds-field", "seconds", "field holding the seconds spent")
 	f.StringVar(&sourceField, "source-field", "source", "with --gold: field naming who gave the answer")
+	f.IntVar(&wave, "wave", 0, "the crowd wave the labels belong to (default: the project's open wave)")
 	return c
 }

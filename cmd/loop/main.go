@@ -31,9 +31,10 @@ var (
 	commands    []func() *cobra.Command
 	subcommands = map[string][]func() *cobra.Command{}
 	groupShort  = map[string]string{
-		"items":    "Add items (texts or images) to a project",
-		"labels":   "Add crowd labels or gold answers to a project",
-		"codebook": "Change a project's codebook: add a follow-up question",
+		"items":     "Add items (texts or images) to a project",
+		"labels":    "Add crowd labels or gold answers to a project",
+		"reference": "Add or list independent (expert) codings to compare with",
+		"codebook":  "Change a project's codebook: add a follow-up question",
 	}
 )
 

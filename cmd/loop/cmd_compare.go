@@ -1,0 +1,108 @@
+package main
+
+import (
+	"io"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+
+	"handoff"
+	"handoff/round"
+)
+
+func init() { register(newCompareCmd) }
+
+func newCompareCmd() *cobra.Command {
+	var (
+		cfg    round.CompareConfig
+		waves  string
+		asJSON bool
+		html   string
+	)
+	c := &cobra.Command{
+		Use:   "compare DIR",
+		Short: "Compare the crowd and the machine with expert codings, and one crowd wave with another",
+		Long: `compare sets the project's codings against each other:
+
+  crowd consensus vs each reference coding (loop reference add): validity
+  machine vs each reference coding (the latest round's scores, out-of-fold
+    on its training items)
+  wave vs wave: each crowd wave's consensus against the others' (labels of
+    a second wave: loop labels add DIR FILE --wave 2): test–retest reliability
+
+At the item level: accuracy, Cohen's kappa, Krippendorff's alpha (ordinal
+metric for an ordinal codebook, nominal otherwise) and the confusion matrix.
+At the parent level (the documents or sources items come from): each side's
+roll-up — the share of each class, and the mean position for an ordinal
+codebook — with Pearson's r, Spearman's ρ and the mean absolute difference
+between the two sides, and with --html a scatter plot against the 45° line.
+Every figure has a seeded percentile bootstrap interval: items are
+resampled for item-level figures, parents for parent-level ones. Where a
+figure cannot be estimated (too few items or parents, one class throughout,
+zero variance) it says "no estimate yet" and why.
+
+The consensus is computed with the project's settings — over all labels for
+the crowd, over one wave's labels for a wave. Gold items are left out (their
+consensus is the gold answer). Nothing is written to the project.`,
+		Example: `  loop compare proj
+  loop compare proj --reference experts-2019 --html compare.html
+  loop compare proj --waves 1,2 --json`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if waves != "" {
+				for _, f := range strings.Split(waves, ",") {
+					w, err := strconv.Atoi(strings.TrimSpace(f))
+					if err != nil || w < 1 || w > handoff.MaxWave {
+						return usageErrorf("--waves %q: give wave numbers 1–%d separated by commas, e.g. 1,2", waves, handoff.MaxWave)
+					}
+					cfg.Waves = append(cfg.Waves, w)
+				}
+				if len(cfg.Waves) < 2 {
+					return usageErrorf("--waves %q: name at least two waves to compare", waves)
+				}
+			}
+			s, err := openStore(args[0])
+			if err != nil {
+				return err
+			}
+			defer s.Close()
+			bar := newProgress(cmd, -1, "comparing")
+			rep, err := round.Compare(s, cfg)
+			bar.Finish()
+			if err != nil {
+				return err
+			}
+			if html != "" {
+				if err := writeOutput(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff comparisons — "+args[0]) }); err != nil {
+					return err
+				}
+			}
+			if asJSON {
+				return printJSON(cmd, rep)
+			}
+			var b strings.Builder
+			if err := rep.WriteText(&b); err != nil {
+				return err
+			}
+			if html == "-" {
+				return nil
+			}
+			outf(cmd, "%s", b.String())
+			if html != "" {
+				infof(cmd, "report with scatter plots written to %s\n", html)
+			}
+			return nil
+		},
+	}
+	f := c.Flags()
+	f.StringVar(&cfg.Reference, "reference", "", "compare with this reference coding only (default: every one)")
+	f.StringVar(&waves, "waves", "", "compare these crowd waves, pair by pair, e.g. 1,2 (default: every wave with labels)")
+	f.BoolVar(&asJSON, "json", false, "print JSON")
+	f.StringVar(&html, "html", "", "also write an HTML report with scatter plots to this file")
+	f.IntVar(&cfg.Options.Bootstrap.Reps, "reps", 2000, "bootstrap resamples")
+	f.Uint64Var(&cfg.Options.Bootstrap.Seed, "seed", 0, "bootstrap seed (default: the project's seed)")
+	f.IntVar(&cfg.Options.MinItems, "min-items", 10, "fewest items coded by both sides for item-level figures")
+	f.IntVar(&cfg.Options.MinParents, "min-parents", 10, "fewest parents for parent-level figures")
+	return c
+}

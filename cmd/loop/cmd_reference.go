@@ -1,0 +1,158 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"text/tabwriter"
+	"time"
+
+	"github.com/spf13/cobra"
+
+	"handoff"
+	"handoff/ingest"
+)
+
+func init() {
+	registerUnder("reference", newReferenceAddCmd)
+	registerUnder("reference", newReferenceListCmd)
+}
+
+func newReferenceAddCmd() *cobra.Command {
+	var (
+		name    string
+		format  string
+		replace bool
+	)
+	c := &cobra.Command{
+		Use:   "add DIR FILE --name NAME",
+		Short: "Add an independent (expert) coding to compare the crowd and the machine with",
+		Long: `add imports an independent coding of the project — by experts, or by an
+earlier study — under a name, to compare the crowd's consensus and the machine
+with it (loop compare). It is kept apart from gold: it never screens
+annotators, never cleans or combines labels, never trains the machine, never
+decides the verdict or the next batch, and is never shown to annotators.
+
+FILE is CSV with a header row, or JSONL, holding either
+  item labels:    item, label (a class key), one row per coded item; or
+  parent scores:  parent, value and optionally question, one row per coded
+                  parent (and question): with question a class key, value is
+                  that class's share of the parent's items (0–1); with
+                  question "position" or empty (ordinal codebooks), value is
+                  the parent's mean position (1 = the lowest class).
+The whole file is checked first: a bad row changes nothing, and the error
+names the file, line and field. Every item must be in the project, and every
+parent the parent of some item.`,
+		Example: `  loop reference add proj experts.csv --name experts-2019
+  loop reference add proj doc-scores.jsonl --name panel --replace`,
+		Args: cobra.ExactArgs(2),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if err := handoff.CheckReferenceName(name); err != nil {
+				return usageErrorf("%v", err)
+			}
+			path := args[1]
+			ff := ingest.Format(format)
+			if ff == "" {
+				ff = ingest.GuessFormat(path, false)
+			}
+			if ff != ingest.CSV && ff != ingest.JSONL {
+				return usageErrorf("cannot read a reference from %s: use a .csv or .jsonl file, or --format csv|jsonl", path)
+			}
+			s, err := openStore(args[0])
+			if err != nil {
+				return err
+			}
+			defer s.Close()
+			r, err := os.Open(path)
+			if err != nil {
+				return err
+			}
+			ref, locs, err := ingest.ReadReference(r, path, ff, name, s.Codebook())
+			r.Close()
+			if err != nil {
+				return err
+			}
+			if err := s.PutReference(*ref, replace, source(cmd)); err != nil {
+				var re *handoff.RowError
+				if errors.As(err, &re) {
+					return ingest.RowAt(locs, re)
+				}
+				return err
+			}
+			what := "item labels"
+			if ref.Kind() == handoff.ReferenceParents {
+				what = "parent scores"
+			}
+			outf(cmd, "reference %s: %d %s from %s, kept apart from gold (never used for training, cleaning or the verdict)\n", ref.Name, ref.Len(), what, filepath.Base(path))
+			hintf(cmd, "next: loop compare %s --reference %s\n", args[0], ref.Name)
+			return nil
+		},
+	}
+	f := c.Flags()
+	f.StringVar(&name, "name", "", "name of the reference coding (letters, digits, '.', '_', '-'), e.g. experts-2019")
+	f.StringVar(&format, "format", "", "input format: csv or jsonl (default: guessed from the name)")
+	f.BoolVar(&replace, "replace", false, "replace a reference of the same name")
+	return c
+}
+
+func newReferenceListCmd() *cobra.Command {
+	var asJSON bool
+	c := &cobra.Command{
+		Use:   "list DIR",
+		Short: "List the project's reference codings",
+		Long: `list shows each reference coding: its name, whether it codes items or
+parents, how many rows it has, the file it came from and when it was added.`,
+		Example: `  loop reference list proj
+  loop reference list proj --json`,
+		Args: cobra.ExactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error {
+			s, err := openStore(args[0])
+			if err != nil {
+				return err
+			}
+			defer s.Close()
+			refs, err := s.References()
+			if err != nil {
+				return err
+			}
+			if asJSON {
+				type row struct {
+					Name   string                `json:"name"`
+					Kind   handoff.ReferenceKind `json:"kind"`
+					Rows   int                   `json:"rows"`
+					Source string                `json:"source"`
+					Added  string                `json:"added,omitempty"`
+				}
+				out := []row{}
+				for _, r := range refs {
+					out = append(out, row{r.Name, r.Kind(), r.Len(), r.Source, stamp(r)})
+				}
+				return printJSON(cmd, out)
+			}
+			if len(refs) == 0 {
+				outf(cmd, "no reference codings yet; add one with `loop reference add %s FILE --name NAME`\n", args[0])
+				return nil
+			}
+			var b strings.Builder
+			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
+			fmt.Fprintln(tw, "name\tcodes\trows\tsource\tadded")
+			for _, r := range refs {
+				fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\n", r.Name, r.Kind(), r.Len(), r.Source, stamp(r))
+			}
+			tw.Flush()
+			outf(cmd, "%s", b.String())
+			return nil
+		},
+	}
+	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
+	return c
+}
+
+func stamp(r handoff.Reference) string {
+	if r.Added.IsZero() {
+		return ""
+	}
+	return r.Added.UTC().Format(time.RFC3339)
+}
