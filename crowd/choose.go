@@ -111,14 +111,7 @@ func choose(l *Labels, o Options) (*Choice, error) {
 				ch.SampleItems++
 			}
 		}
-		ls = &Labels{NItems: l.NItems, NAnnotators: l.NAnnotators, NClasses: k}
-		for j, it := range l.Item {
-			if keep[it] {
-				ls.Item = append(ls.Item, it)
-				ls.Annotator = append(ls.Annotator, l.Annotator[j])
-				ls.Class = append(ls.Class, l.Class[j])
-			}
-		}
+		ls = l.Subset(func(j int) bool { return keep[l.Item[j]] })
 	}
 	methods := []string{MethodHierarchical, MethodMajority, MethodOneCoin, MethodDawidSkene}
 	score := make([][]float64, len(methods))
@@ -131,17 +124,13 @@ func choose(l *Labels, o Options) (*Choice, error) {
 		fold[j] = uint8(mix64(o.Seed^0x5eed, uint64(j)) % autoFolds)
 	}
 	for f := 0; f < autoScored; f++ {
-		train := &Labels{NItems: ls.NItems, NAnnotators: ls.NAnnotators, NClasses: k}
 		var held []int
 		for j := range fold {
 			if fold[j] == uint8(f) {
 				held = append(held, j)
-				continue
 			}
-			train.Item = append(train.Item, ls.Item[j])
-			train.Annotator = append(train.Annotator, ls.Annotator[j])
-			train.Class = append(train.Class, ls.Class[j])
 		}
+		train := ls.Subset(func(j int) bool { return fold[j] != uint8(f) })
 		if len(held) == 0 {
 			continue
 		}

@@ -288,3 +288,31 @@ func groupByItem(l *Labels, needPos bool) *byItem {
 	}
 	return g
 }
+
+// Subset returns the labels j for which keep(j) is true, in order, with the
+// same NItems, NAnnotators and NClasses; Seconds and Time are kept when l
+// has them (empty, not nil, when nothing is kept).
+func (l *Labels) Subset(keep func(j int) bool) *Labels {
+	out := &Labels{NItems: l.NItems, NAnnotators: l.NAnnotators, NClasses: l.NClasses}
+	if l.Seconds != nil {
+		out.Seconds = []float32{}
+	}
+	if l.Time != nil {
+		out.Time = []int64{}
+	}
+	for j := range l.Item {
+		if !keep(j) {
+			continue
+		}
+		out.Item = append(out.Item, l.Item[j])
+		out.Annotator = append(out.Annotator, l.Annotator[j])
+		out.Class = append(out.Class, l.Class[j])
+		if l.Seconds != nil {
+			out.Seconds = append(out.Seconds, l.Seconds[j])
+		}
+		if l.Time != nil {
+			out.Time = append(out.Time, l.Time[j])
+		}
+	}
+	return out
+}

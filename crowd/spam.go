@@ -69,20 +69,6 @@ func DropSpammers(l *Labels, r *Result, rules Rules) (*Labels, []Drop, RuleSumma
 	if sum.Annotators == 0 {
 		return l, nil, sum
 	}
-	out := &Labels{NItems: l.NItems, NAnnotators: l.NAnnotators, NClasses: l.NClasses}
-	for j, a := range l.Annotator {
-		if drop[a] {
-			continue
-		}
-		out.Item = append(out.Item, l.Item[j])
-		out.Annotator = append(out.Annotator, a)
-		out.Class = append(out.Class, l.Class[j])
-		if l.Seconds != nil {
-			out.Seconds = append(out.Seconds, l.Seconds[j])
-		}
-		if l.Time != nil {
-			out.Time = append(out.Time, l.Time[j])
-		}
-	}
+	out := l.Subset(func(j int) bool { return !drop[l.Annotator[j]] })
 	return out, drops, sum
 }

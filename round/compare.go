@@ -10,7 +10,6 @@ import (
 
 	"handoff"
 	"handoff/compare"
-	"handoff/crowd"
 	"handoff/store"
 )
 
@@ -415,27 +414,7 @@ func (c *comparer) betweenWaves(waveOf []uint16, a, b int) (compare.Comparison, 
 // is every label's wave, as the label table's columns).
 func (p *project) onlyWave(waveOf []uint16, w uint16) *project {
 	l := p.labels
-	out := &crowd.Labels{NItems: l.NItems, NAnnotators: l.NAnnotators, NClasses: l.NClasses}
-	for j := range l.Item {
-		if waveOf[j] != w {
-			continue
-		}
-		out.Item = append(out.Item, l.Item[j])
-		out.Annotator = append(out.Annotator, l.Annotator[j])
-		out.Class = append(out.Class, l.Class[j])
-		if l.Seconds != nil {
-			out.Seconds = append(out.Seconds, l.Seconds[j])
-		}
-		if l.Time != nil {
-			out.Time = append(out.Time, l.Time[j])
-		}
-	}
-	if l.Seconds != nil && out.Seconds == nil {
-		out.Seconds = []float32{}
-	}
-	if l.Time != nil && out.Time == nil {
-		out.Time = []int64{}
-	}
+	out := l.Subset(func(j int) bool { return waveOf[j] == w })
 	q := *p
 	q.labels = out
 	return &q
