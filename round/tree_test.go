@@ -230,3 +230,25 @@ func TestTreeRoundIsTheFirstQuestions(t *testing.T) {
 		t.Errorf("the first question's round in a tree differs from the one-question project's")
 	}
 }
+
+func TestQuestions(t *testing.T) {
+	s := newSimTree(120, 0.8, 9)
+	st := s.store(t, s.cb, s.first, s.follow)
+	if _, err := QuestionConsensus(st, "", DefaultConsensus(), "test"); err != nil {
+		t.Fatal(err)
+	}
+	qs, err := Questions(st)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(qs) != 2 || qs[0].Key != "topic" || qs[1].Key != "severity" || qs[1].Parent != "topic" ||
+		!reflect.DeepEqual(qs[1].When, []string{"a", "b"}) || qs[1].Scale != "ordinal" {
+		t.Fatalf("questions: %+v", qs)
+	}
+	if qs[0].Labels != len(s.first) || qs[1].Labels != len(s.follow) || qs[0].Items != 120 {
+		t.Errorf("labels %d/%d items %d, want %d/%d 120", qs[0].Labels, qs[1].Labels, qs[0].Items, len(s.first), len(s.follow))
+	}
+	if qs[0].Consensus == nil || qs[1].Consensus != nil {
+		t.Errorf("consensus stored: first %v follow-up %v, want only the first", qs[0].Consensus != nil, qs[1].Consensus != nil)
+	}
+}
