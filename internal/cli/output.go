@@ -177,3 +177,18 @@ func Done(cmd *cobra.Command, format string, a ...any) {
 		fmt.Fprintf(cmd.OutOrStdout(), format, a...)
 	}
 }
+
+// Numbers reads a comma-separated list of numbers given to flag (spaces
+// around the commas allowed) with parse, each kept only when ok says so; a
+// bad one is a usage error naming the flag and what it wants.
+func Numbers[T any](flag, s, want string, parse func(string) (T, error), ok func(T) bool) ([]T, error) {
+	var out []T
+	for _, f := range strings.Split(s, ",") {
+		x, err := parse(strings.TrimSpace(f))
+		if err != nil || !ok(x) {
+			return nil, Usagef("--%s %q: want %s", flag, s, want)
+		}
+		out = append(out, x)
+	}
+	return out, nil
+}
