@@ -192,3 +192,29 @@ func Numbers[T any](flag, s, want string, parse func(string) (T, error), ok func
 	}
 	return out, nil
 }
+
+// Report prints a report as every reporting command does. With html set,
+// writeHTML's form is written to that file whole (Write; "-" is standard
+// output) and, unless --quiet, a note on stderr says "what written to
+// FILE". Then v is printed as JSON when asJSON, or else the text form that
+// text writes unless the HTML was written with --quiet (an HTML report
+// asked for quietly is the whole result). Nothing more is printed when the
+// HTML went to standard output.
+func Report(cmd *cobra.Command, html, what string, writeHTML func(io.Writer) error, asJSON bool, v any, text func(io.Writer) error) error {
+	if html != "" {
+		if err := Write(cmd, html, writeHTML); err != nil {
+			return err
+		}
+		if html == "-" {
+			return nil
+		}
+		Info(cmd, "%s written to %s\n", what, html)
+	}
+	if asJSON {
+		return JSON(cmd, v)
+	}
+	if html != "" && Quiet(cmd) {
+		return nil
+	}
+	return text(cmd.OutOrStdout())
+}
