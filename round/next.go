@@ -309,6 +309,22 @@ type AutolabelReport struct {
 	Queued    int     `json:"queued"`   // below the threshold: left for people
 	Unscored  int     `json:"unscored"` // added since the round: no score yet
 	Bound     float64 `json:"bound"`    // the verdict's upper bound on disagreement at that threshold
+	// Questions are every question's part in a question tree, first
+	// question first (empty for a one-question project).
+	Questions []AutolabelQuestion `json:"questions,omitempty"`
+}
+
+// AutolabelQuestion is one question's part of an autolabel in a question
+// tree: written only when the question has GO (or with Force), on the
+// items it reaches.
+type AutolabelQuestion struct {
+	Key       string  `json:"key"`
+	Go        bool    `json:"go"`
+	Threshold float64 `json:"threshold,omitempty"`
+	Bound     float64 `json:"bound,omitempty"`
+	Scored    int     `json:"scored"`   // items reached, without labels of the question, with a score
+	Labelled  int     `json:"labelled"` // machine labels written
+	Why       string  `json:"why,omitempty"`
 }
 
 // ErrThreshold is wrapped by the errors of a threshold outside (0, 1].
@@ -328,44 +344,69 @@ func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelR
 	}
 	d := c.r.Verdict.Decision
 	rep := &AutolabelReport{Model: c.r.Model, Round: c.r.Round, Go: d.Go, Forced: cfg.Force && !d.Go}
-	if !d.Go && !cfg.Force {
+	tree := c.sn.Codebook.Tree() && len(c.r.Questions) > 0
+	anyGo := d.Go
+	for _, q := range c.r.Questions {
+		anyGo = anyGo || q.Verdict != nil && q.Verdict.Decision.Go
+	}
+	if !anyGo && !cfg.Force {
 		return nil, fmt.Errorf("the latest verdict (round %d) is NOT YET: %s; label more items and run another round, or pass --force to autolabel anyway (the error bound then does not hold)",
 			c.r.Round, strings.Join(d.Reasons, "; "))
 	}
-	th := cfg.Threshold
-	if th <= 0 {
-		if !c.r.Verdict.Threshold.Found {
-			return nil, fmt.Errorf("the latest verdict found no threshold whose error bound is below %.3g; give one with --threshold", c.r.Verdict.Threshold.MaxError)
-		}
-		th = c.r.Verdict.Threshold.Threshold
-		rep.Bound = c.r.Verdict.Threshold.Upper
-	}
-	rep.Threshold = th
-	keys := c.p.cb.Keys()
-	counts := c.labelCounts()
-	kind := c.r.Train.Kind
+	// In a question tree the first question is written only with its own
+	// GO (or --force); its follow-ups then on their own GO.
+	firstOn := d.Go || cfg.Force
 	var out []handoff.MachineLabel
 	var queue []string
-	for i, it := range c.p.items {
-		if it.Kind != kind || counts[i] > 0 || c.p.gold[i] >= 0 {
-			continue
+	if firstOn {
+		th := cfg.Threshold
+		if th <= 0 {
+			if !c.r.Verdict.Threshold.Found {
+				return nil, fmt.Errorf("the latest verdict found no threshold whose error bound is below %.3g; give one with --threshold", c.r.Verdict.Threshold.MaxError)
+			}
+			th = c.r.Verdict.Threshold.Threshold
+			rep.Bound = c.r.Verdict.Threshold.Upper
 		}
-		row := c.sc.row(i)
-		if row == nil {
-			rep.Unscored++
-			continue
-		}
-		rep.Scored++
-		b := floats.MaxIdx(row)
-		if row[b] >= th {
-			out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: slices.Clone(row), Model: c.r.Model, Round: c.r.Round})
-		} else {
-			queue = append(queue, it.ID)
+		rep.Threshold = th
+		keys := c.p.cb.Keys()
+		counts := c.labelCounts()
+		kind := c.r.Train.Kind
+		for i, it := range c.p.items {
+			if it.Kind != kind || counts[i] > 0 || c.p.gold[i] >= 0 {
+				continue
+			}
+			row := c.sc.row(i)
+			if row == nil {
+				rep.Unscored++
+				continue
+			}
+			rep.Scored++
+			b := floats.MaxIdx(row)
+			if row[b] >= th {
+				out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: slices.Clone(row), Model: c.r.Model, Round: c.r.Round})
+			} else {
+				queue = append(queue, it.ID)
+			}
 		}
 	}
+	if tree {
+		first := AutolabelQuestion{Key: c.sn.Codebook.FirstKey(), Go: d.Go, Threshold: rep.Threshold, Bound: rep.Bound, Scored: rep.Scored, Labelled: len(out)}
+		if !firstOn {
+			first.Why = "NOT YET: left for people"
+		}
+		more, qs, err := c.autolabelFollowUps(cfg, out)
+		if err != nil {
+			return nil, err
+		}
+		rep.Questions = append([]AutolabelQuestion{first}, qs...)
+		out = append(out, more...)
+	}
+	th := rep.Threshold
 	rep.Labelled, rep.Queued = len(out), len(queue)
 	s := c.s.clone()
-	s.Queue = queue
+	if firstOn {
+		s.Queue = queue
+	}
 	sb, err := s.encode()
 	if err != nil {
 		return nil, err
