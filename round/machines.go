@@ -124,6 +124,7 @@ type treeRun struct {
 	// projects and label counts per follow-up, for the asks of a question
 	// added later.
 	qp    []*project
+	cr    []*consensusResult
 	asked [][]bool
 }
 
@@ -138,7 +139,7 @@ func runFollowUps(in *roundInput, first *consensusResult, firstRes QuestionResul
 	n := len(sn.Items)
 	kind := s.HeldOut.Kind
 	tr := &treeRun{results: make([]QuestionResult, len(all)), states: map[string][]byte{}, scores: make([]*scores, len(all)),
-		ans: make([]*answers, len(all)), reach: make([][]bool, len(all)), qp: make([]*project, len(all)), asked: make([][]bool, len(all))}
+		ans: make([]*answers, len(all)), reach: make([][]bool, len(all)), qp: make([]*project, len(all)), cr: make([]*consensusResult, len(all)), asked: make([][]bool, len(all))}
 	tr.results[0] = firstRes
 	tr.scores[0] = sc
 	tr.ans[0] = answersOf(in.p, first, sc, n)
@@ -171,7 +172,7 @@ func runFollowUps(in *roundInput, first *consensusResult, firstRes QuestionResul
 		if err != nil {
 			return nil, err
 		}
-		tr.qp[q] = pq
+		tr.qp[q], tr.cr[q] = pq, cq
 		res.Consensus = stored.Report
 		if tr.states[questionState(x.Key)], err = json.Marshal(stored); err != nil {
 			return nil, err
@@ -335,24 +336,30 @@ func treeUncertainty(cb handoff.Codebook, pool selector.Pool, sc []*scores) ([]f
 // question added later, or one its parent's consensus now calls for.
 const ReasonQuestion = "new-question"
 
-// questionAsks returns the items to ask follow-up questions on: items
-// people labelled whose parent consensus calls for a follow-up that has no
-// label on them yet, held-out members first, the others in a seeded random
-// order; one entry per item, naming every such question.
-func (tr *treeRun) questionAsks(cb handoff.Codebook, p *project, first *consensusResult, kind handoff.Kind, held *heldOutSet, seed uint64) []BatchItem {
+// questionAsks returns the items to ask follow-up questions on, each
+// entry naming the questions (BatchItem.Questions): first the held-out
+// members whose consensus for a follow-up is below the reference standard
+// (reason "reference", in a seeded random order), then the items people
+// labelled whose parent consensus calls for a follow-up that has no label
+// on them yet (ReasonQuestion: a question added later, or one the parent's
+// consensus now asks), held-out members first, the others in a seeded
+// random order.
+func (tr *treeRun) questionAsks(cb handoff.Codebook, p *project, first *consensusResult, kind handoff.Kind, held *heldOutSet, std StandardConfig, seed uint64) []BatchItem {
 	all := cb.All()
 	n := len(p.items)
 	need := make([][]string, n)
+	below := make([][]string, n)
 	for _, q := range QuestionOrder(cb) {
 		if q == 0 || tr.qp[q] == nil {
 			continue
 		}
-		labelled := make([]bool, n)
+		labelled := make([]int, n)
 		for _, i := range tr.qp[q].labels.Item {
-			labelled[i] = true
+			labelled[i]++
 		}
+		K := len(all[q].Classes)
 		for i, it := range p.items {
-			if it.Kind != kind || labelled[i] || first.nlabels[i] == 0 && p.gold[i] < 0 {
+			if it.Kind != kind || first.nlabels[i] == 0 && p.gold[i] < 0 {
 				continue
 			}
 			if a := tr.asked[q]; a != nil && !a[i] {
@@ -361,27 +368,41 @@ func (tr *treeRun) questionAsks(cb handoff.Codebook, p *project, first *consensu
 			if pq := cb.Parent(q); pq > 0 && !tr.ans[pq].crowd[i] {
 				continue // its parent is a follow-up not answered yet: asked with it
 			}
-			need[i] = append(need[i], all[q].Key)
+			switch cr := tr.cr[q]; {
+			case labelled[i] == 0:
+				need[i] = append(need[i], all[q].Key)
+			case cr != nil && held.member(it) && cr.nlabels[i] > 0 && int(cr.nlabels[i]) < std.Cap:
+				row := cr.posterior[i*K : (i+1)*K]
+				if row[floats.MaxIdx(row)] < std.Level {
+					below[i] = append(below[i], all[q].Key)
+				}
+			}
 		}
 	}
-	var heldOut, rest []int
-	for i, ks := range need {
-		if len(ks) == 0 {
-			continue
-		}
-		if held.member(p.items[i]) {
+	var ref, heldOut, rest []int
+	for i := range n {
+		switch {
+		case len(below[i]) > 0:
+			ref = append(ref, i)
+		case len(need[i]) == 0:
+		case held.member(p.items[i]):
 			heldOut = append(heldOut, i)
-		} else {
+		default:
 			rest = append(rest, i)
 		}
 	}
 	r := rand.New(rand.NewPCG(seed, 0x9e57))
-	r.Shuffle(len(heldOut), func(a, b int) { heldOut[a], heldOut[b] = heldOut[b], heldOut[a] })
-	r.Shuffle(len(rest), func(a, b int) { rest[a], rest[b] = rest[b], rest[a] })
+	for _, c := range [][]int{ref, heldOut, rest} {
+		r.Shuffle(len(c), func(a, b int) { c[a], c[b] = c[b], c[a] })
+	}
 	var out []BatchItem
-	for _, i := range append(heldOut, rest...) {
+	for _, i := range slices.Concat(ref, heldOut, rest) {
 		it := p.items[i]
-		out = append(out, BatchItem{Item: it.ID, Reason: ReasonQuestion, Kind: string(it.Kind), Text: it.Text, Path: it.Path, Parent: it.Parent, Questions: need[i]})
+		b := BatchItem{Item: it.ID, Reason: ReasonQuestion, Kind: string(it.Kind), Text: it.Text, Path: it.Path, Parent: it.Parent, Questions: need[i]}
+		if len(below[i]) > 0 {
+			b.Reason, b.Questions = string(selector.ReasonStandard), append(below[i], need[i]...)
+		}
+		out = append(out, b)
 	}
 	return out
 }

@@ -370,7 +370,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 		return nil, err
 	}
 	if tr != nil {
-		batch = withAsks(batch, tr.questionAsks(in.sn.Codebook, p, cr, kind, held, cfg.Seed+1000003*uint64(s.Round)), cfg.Batch)
+		batch = withAsks(batch, tr.questionAsks(in.sn.Codebook, p, cr, kind, held, cfg.Standard, cfg.Seed+1000003*uint64(s.Round)), cfg.Batch)
 	}
 	pooled := 0
 	for i, it := range p.items {
