@@ -10,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/floats"
 
 	"handoff"
+	"handoff/crowd"
 	"handoff/learner"
 	"handoff/selector"
 	"handoff/store"
@@ -32,8 +33,14 @@ import (
 
 // QuestionResult is one question's part of a round in a question tree.
 type QuestionResult struct {
-	Key    string `json:"key"`
-	Parent string `json:"parent,omitempty"`
+	Key    string   `json:"key"`
+	Parent string   `json:"parent,omitempty"`
+	When   []string `json:"when,omitempty"`
+	// Alpha is the crowd's Krippendorff's alpha on the question's cleaned
+	// labels (AlphaMetric: ordinal for an ordinal question, nominal
+	// otherwise), nil when it cannot be estimated.
+	Alpha       *float64 `json:"alpha,omitempty"`
+	AlphaMetric string   `json:"alpha_metric,omitempty"`
 	// Consensus is the question's consensus report (nil without labels).
 	Consensus *ConsensusReport `json:"consensus,omitempty"`
 	// Train and Model are its machine (nil and "" when none could be
@@ -150,7 +157,7 @@ func runFollowUps(in *roundInput, first *consensusResult, firstRes QuestionResul
 		x := all[q]
 		res := QuestionResult{Key: x.Key}
 		if p := cb.Parent(q); p >= 0 {
-			res.Parent = all[p].Key
+			res.Parent, res.When = all[p].Key, x.When.In
 		}
 		asked, reach := reaches(cb, q, tr.ans, tr.reach, n)
 		tr.reach[q], tr.asked[q] = reach, asked
@@ -174,6 +181,7 @@ func runFollowUps(in *roundInput, first *consensusResult, firstRes QuestionResul
 		}
 		tr.qp[q], tr.cr[q] = pq, cq
 		res.Consensus = stored.Report
+		res.Alpha, res.AlphaMetric = alphaOf(cq, x.Scale == handoff.Ordinal)
 		if tr.states[questionState(x.Key)], err = json.Marshal(stored); err != nil {
 			return nil, err
 		}
@@ -244,6 +252,46 @@ func runFollowUps(in *roundInput, first *consensusResult, firstRes QuestionResul
 		tr.results[q] = res
 	}
 	return tr, nil
+}
+
+// alphaOf returns Krippendorff's alpha of a consensus's cleaned labels,
+// ordinal or nominal, without intervals; nil when it cannot be estimated.
+func alphaOf(cr *consensusResult, ordinal bool) (*float64, string) {
+	metric := crowd.MetricNominal
+	if ordinal {
+		metric = crowd.MetricOrdinal
+	}
+	if cr.kept == nil || cr.kept.Len() == 0 {
+		return nil, string(metric)
+	}
+	a, err := crowd.Agree(cr.kept, crowd.AgreementOptions{Reps: -1})
+	if err != nil {
+		return nil, string(metric)
+	}
+	e, ok := a.Alpha[metric]
+	if !ok || !e.Defined {
+		return nil, string(metric)
+	}
+	v := e.Value
+	return &v, string(metric)
+}
+
+// Summaries returns every question of a tree round as the verdict report
+// shows them (nil for a one-question round).
+func (r *Result) Summaries() []verdict.QuestionSummary {
+	var out []verdict.QuestionSummary
+	for _, q := range r.Questions {
+		s := verdict.QuestionSummary{Key: q.Key, Parent: q.Parent, When: q.When, Alpha: q.Alpha, AlphaMetric: q.AlphaMetric,
+			Machine: q.Model, Verdict: q.Verdict, Why: q.Why}
+		if c := q.Consensus; c != nil {
+			s.Items, s.Uncertain = c.Items-c.NoLabels, c.Uncertain
+		}
+		if q.Train != nil {
+			s.CV = q.Train.CV.Accuracy
+		}
+		out = append(out, s)
+	}
+	return out
 }
 
 // answersOf lays out a question's answers per item position: the

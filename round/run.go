@@ -340,6 +340,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 	if in.sn != nil && in.sn.Codebook.Tree() {
 		first := QuestionResult{Key: in.sn.Codebook.FirstKey(), Consensus: cr.report, Train: t.rep, Model: t.m.Name, Verdict: rep,
 			HeldOut: vin.settled, HeldOutAsked: members}
+		first.Alpha, first.AlphaMetric = alphaOf(cr, in.sn.Codebook.Scale == handoff.Ordinal)
 		if tr, err = runFollowUps(in, cr, first, t, sc, s, cfg, look, settings); err != nil {
 			return nil, err
 		}
