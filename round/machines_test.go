@@ -74,9 +74,29 @@ func runTree(t *testing.T, s *simTree, st *store.Store, rounds int) *Result {
 		if _, err := st.PutLabels(s.labelsOf(150*k, min(150*(k+1), len(s.items))), "test"); err != nil {
 			t.Fatal(err)
 		}
-		var err error
+		before, err := st.Audit()
+		if err != nil {
+			t.Fatal(err)
+		}
 		if r, err = Run(st, treeConfig(), "test"); err != nil {
 			t.Fatal(err)
+		}
+		// One commit: one entry in the audit trail, and every question's
+		// state is this round's.
+		after, _ := st.Audit()
+		if len(after) != len(before)+1 {
+			t.Errorf("round %d wrote %d audit entries, want 1 (one commit)", r.Round, len(after)-len(before))
+		}
+		for _, q := range r.Questions[1:] {
+			if q.Model == "" {
+				continue
+			}
+			b, err := st.State(questionScoresState(q.Key))
+			sc, _ := decodeScores(b)
+			m, err2 := st.State(questionModelState(q.Key))
+			if err != nil || err2 != nil || sc == nil || sc.Round != r.Round || sc.Model != q.Model || len(m) == 0 {
+				t.Errorf("round %d: question %s's scores and model are not the round's", r.Round, q.Key)
+			}
 		}
 		for _, q := range r.Questions {
 			acc, rows := 0.0, 0
@@ -145,6 +165,31 @@ func TestTreeRoundsVerdictPerQuestion(t *testing.T) {
 	}
 	if qs[0].Verdict != "GO" || qs[1].Verdict != "NOT YET" || qs[1].Why == "" {
 		t.Errorf("question figures: %q %q (%s)", qs[0].Verdict, qs[1].Verdict, qs[1].Why)
+	}
+	// The round's text, the verdict report and the status show each question.
+	text := r.Text("p", nil)
+	for _, want := range []string{"questions (each with its own machine and verdict", "topic (the first question)", "severity (asked when topic is a or b)", "verdict: GO", "verdict: NOT YET", "Krippendorff's alpha (ordinal)"} {
+		if !strings.Contains(text, want) {
+			t.Errorf("round text lacks %q:\n%s", want, text)
+		}
+	}
+	vr, err := Verdict(st, VerdictConfig{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var html strings.Builder
+	if err := vr.WriteHTML(&html, ""); err != nil {
+		t.Fatal(err)
+	}
+	if len(vr.Questions) != 2 || !strings.Contains(html.String(), `id="question-severity"`) || !strings.Contains(html.String(), "severity: NOT YET") {
+		t.Errorf("verdict report: %d questions; HTML without the severity section", len(vr.Questions))
+	}
+	stat, err := ProjectStatus(st, Sections)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(stat.Text(), "question severity: ") || !strings.Contains(stat.Text(), "machine r4-severity-") {
+		t.Errorf("status:\n%s", stat.Text())
 	}
 	// Autolabel: only the topic.
 	al, err := Autolabel(st, AutolabelConfig{}, "test")
@@ -307,6 +352,20 @@ func TestTreeAddQuestionAsked(t *testing.T) {
 	}
 	if !slices.EqualFunc(next, r.Batch, func(a, b BatchItem) bool { return a.Item == b.Item && a.Reason == b.Reason && slices.Equal(a.Questions, b.Questions) }) {
 		t.Error("`loop next` does not write the round's batch")
+	}
+	// Picked again with other batch settings, the batch keeps asking it.
+	again, err := Next(st, NextConfig{Overrides: []Override{{Key: "batch", Value: "30"}}}, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	kept := 0
+	for _, b := range again {
+		if b.Reason == ReasonQuestion && slices.Equal(b.Questions, []string{"urgent"}) {
+			kept++
+		}
+	}
+	if len(again) != 30 || kept == 0 || kept > 15 {
+		t.Errorf("batch of 30 picked again: %d items, %d asking the new question", len(again), kept)
 	}
 	// Nothing else runs: without labels new, the round refuses.
 	if _, err := Run(st, treeConfig(), "test"); !errors.Is(err, ErrNoNewLabels) {

@@ -206,10 +206,27 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 		}
 		pool.Features = spread(x, idx, len(c.p.items))
 	}
+	if c.sn.Codebook.Tree() && (rc.Strategy == "" || rc.Strategy == selector.Entropy) {
+		qs, err := loadQuestionScores(c.sn, c.sc)
+		if err != nil {
+			return nil, err
+		}
+		if pool.Uncertainty, err = treeUncertainty(c.sn.Codebook, pool, qs); err != nil {
+			return nil, err
+		}
+	}
 	batch, err := pickBatch(c.p, pool, rc, c.r.Round, c.machine)
 	if err != nil {
 		return nil, err
 	}
+	// The round's asks of follow-up questions stay in the batch.
+	var asks []BatchItem
+	for _, b := range c.batch {
+		if len(b.Questions) > 0 {
+			asks = append(asks, b)
+		}
+	}
+	batch = withAsks(batch, asks, rc.Batch)
 	b, err := json.Marshal(batch)
 	if err != nil {
 		return nil, err
