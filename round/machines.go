@@ -29,7 +29,12 @@ import (
 // first question's machine is the round's (Result.Model, the model store);
 // a follow-up's model and scores are kept as project state ("model/KEY",
 // "scores/KEY") in the same commit, and its verdict is computed with the same
-// code on cb.Sub(q), on the held-out members that reach it.
+// code on cb.Sub(q), on the held-out members that reach it. Each question's
+// bound holds at the stated confidence for that question (α spent across
+// looks as for the first); a team wanting it for all Q questions at once
+// sets confidence 1 − α/Q (Bonferroni). A follow-up's verdict has no stop
+// rule, learning curve or audit (those are the first question's), and no
+// gold (gold answers the first question).
 
 // QuestionResult is one question's part of a round in a question tree.
 type QuestionResult struct {

@@ -198,7 +198,7 @@ func TestTreeRoundsVerdictPerQuestion(t *testing.T) {
 	}
 	var ms []handoff.MachineLabel
 	st.MachineLabels(func(m handoff.MachineLabel) error { ms = append(ms, m); return nil })
-	if len(ms) == 0 || len(ms) != al.Labelled || len(al.Questions) != 2 || al.Questions[1].Labelled != 0 {
+	if len(ms) == 0 || len(ms) != al.Labelled || len(al.Questions) != 2 || al.Questions[0].Labelled != al.Labelled || al.Questions[1].Labelled != 0 {
 		t.Fatalf("autolabel wrote %d (report %d, questions %+v)", len(ms), al.Labelled, al.Questions)
 	}
 	for _, m := range ms {

@@ -322,7 +322,7 @@ type AutolabelReport struct {
 	Go        bool    `json:"go"`
 	Forced    bool    `json:"forced"`
 	Scored    int     `json:"scored"`   // items of the model's kind without crowd labels or gold
-	Labelled  int     `json:"labelled"` // machine labels written
+	Labelled  int     `json:"labelled"` // machine labels written (the first question's in a question tree)
 	Queued    int     `json:"queued"`   // below the threshold: left for people
 	Unscored  int     `json:"unscored"` // added since the round: no score yet
 	Bound     float64 `json:"bound"`    // the verdict's upper bound on disagreement at that threshold
@@ -420,6 +420,9 @@ func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelR
 	}
 	th := rep.Threshold
 	rep.Labelled, rep.Queued = len(out), len(queue)
+	if tree {
+		rep.Labelled = rep.Questions[0].Labelled
+	}
 	s := c.s.clone()
 	if firstOn {
 		s.Queue = queue
