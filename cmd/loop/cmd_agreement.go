@@ -19,20 +19,11 @@ func newAgreementCmd() *cobra.Command {
 		question string
 	)
 	c := &cobra.Command{
-		Use:   "agreement DIR",
-		Short: "How well the crowd agrees: Fleiss' kappa, Krippendorff's alpha, Cohen's kappa",
-		Long: `agreement measures the crowd's agreement with itself after the cleaning rules
-(only each annotator's first label on an item counts): Fleiss' kappa,
-Krippendorff's alpha (nominal; for an ordinal codebook also the ordinal,
-interval and ratio metrics, with classes standing for 1, 2, …; missing labels
-allowed), Cohen's kappa for each pair of annotators who share
-enough items (--pairs), and each annotator's Cohen's kappa against the
-leave-one-out majority of the others. Every figure has a seeded bootstrap 95%
-interval over items.`,
-		Example: `  loop agreement proj
-  loop agreement proj --pairs --min-shared 20
-  loop agreement proj --json | jq '.krippendorff_alpha.ordinal'`,
-		Args: cobra.ExactArgs(1),
+		Use:     "agreement DIR",
+		Short:   "How well the crowd agrees: Fleiss' kappa, Krippendorff's alpha, Cohen's kappa",
+		Long:    helpLong("agreement"),
+		Example: helpExample("agreement"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			over, err := checkedOverrides(cmd)
 			if err != nil {

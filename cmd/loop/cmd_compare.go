@@ -21,34 +21,11 @@ func newCompareCmd() *cobra.Command {
 		html   string
 	)
 	c := &cobra.Command{
-		Use:   "compare DIR",
-		Short: "Compare the crowd and the machine with expert codings, and one crowd wave with another",
-		Long: `compare sets the project's codings against each other:
-
-  crowd consensus vs each reference coding (loop reference add): validity
-  machine vs each reference coding (the latest round's scores, out-of-fold
-    on its training items)
-  wave vs wave: each crowd wave's consensus against the others' (labels of
-    a second wave: loop labels add DIR FILE --wave 2): test–retest reliability
-
-At the item level: accuracy, Cohen's kappa, Krippendorff's alpha (ordinal
-metric for an ordinal codebook, nominal otherwise) and the confusion matrix.
-At the parent level (the documents or sources items come from): each side's
-roll-up — the share of each class, and the mean position for an ordinal
-codebook — with Pearson's r, Spearman's ρ and the mean absolute difference
-between the two sides, and with --html a scatter plot against the 45° line.
-Every figure has a seeded percentile bootstrap interval: items are
-resampled for item-level figures, parents for parent-level ones. Where a
-figure cannot be estimated (too few items or parents, one class throughout,
-zero variance) it says "no estimate yet" and why.
-
-The consensus is computed with the project's settings — over all labels for
-the crowd, over one wave's labels for a wave. Gold items are left out (their
-consensus is the gold answer). Nothing is written to the project.`,
-		Example: `  loop compare proj
-  loop compare proj --reference experts-2019 --html compare.html
-  loop compare proj --waves 1,2 --json`,
-		Args: cobra.ExactArgs(1),
+		Use:     "compare DIR",
+		Short:   "Compare the crowd and the machine with expert codings, and one crowd wave with another",
+		Long:    helpLong("compare"),
+		Example: helpExample("compare"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if waves != "" {
 				for _, f := range strings.Split(waves, ",") {

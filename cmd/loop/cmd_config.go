@@ -14,29 +14,10 @@ func init() { register(newConfigCmd) }
 func newConfigCmd() *cobra.Command {
 	var asJSON bool
 	c := &cobra.Command{
-		Use:   "config DIR [set KEY VALUE]",
-		Short: "Show or change the project's settings (max-error, held-out set, batch, learner, …)",
-		Long: `config shows the settings the project's rounds use — every key with its value,
-where the value comes from (stored in the project or the built-in default), its
-range and what it does. ` + "`loop config DIR set KEY VALUE`" + ` changes one, after
-checking it against its range, and records the change in the project's audit
-trail.
-
-The command line (loop round, next, verdict), the board's "Run a round" button,
-the API and the demo all use these stored settings. A flag such as --max-error
-overrides one for that run only, and the run's output says so; every report
-prints the settings it used.
-
-The held-out set is drawn at the first round as a random share of the archive
-(held-out, default 0.1) by a seeded hash of each item's id, but at least
-held-out-min items (0: automatic, three times the items a tested threshold
-needs at look 10 — 594 at max-error 0.05 and confidence 0.95) and never more
-than half the archive. It stays fixed after that.`,
-		Example: `  loop config proj
-  loop config proj set max-error 0.03
-  loop config proj set batch 100
-  loop config proj set shares held-out=0.3,reference=0.2,model-unsure=0.5
-  loop config proj --json`,
+		Use:     "config DIR [set KEY VALUE]",
+		Short:   "Show or change the project's settings (max-error, held-out set, batch, learner, …)",
+		Long:    helpLong("config"),
+		Example: helpExample("config"),
 		Args: func(cmd *cobra.Command, args []string) error {
 			switch {
 			case len(args) == 1:

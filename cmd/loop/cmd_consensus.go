@@ -23,28 +23,11 @@ func newConsensusCmd() *cobra.Command {
 		question string
 	)
 	c := &cobra.Command{
-		Use:   "consensus DIR",
-		Short: "Clean and combine the crowd labels into one answer per item",
-		Long: `consensus applies the cleaning rules (each drop is recorded with its reason),
-combines what is left into one posterior per item — Dawid–Skene by default,
-or majority vote or one-coin — and stores it for the next steps. Each
-annotator gets a confusion matrix and a reliability figure (expected accuracy).
-
-With --debias COVARIATE it also corrects a bias that everyone shares and that
-depends on the covariate (for example magnification): against gold items when
-the project has them, otherwise against a stratum you name as unbiased with
---reference-stratum, assuming the true class mix is the same in every stratum.
-
-In a question tree every question is combined in turn, parents first, one
-section each (--question KEY for one): a follow-up over its own labels, on
-the items whose parent consensus is one of the answers it is asked after;
-the other items have no answer to it (not asked, not uncertain).`,
-		Example: `  loop consensus proj
-  loop consensus proj --method majority --explain
-  loop consensus proj --debias magnification --reference-stratum 40
-  loop consensus proj --keep-repeats --no-cleaning --json
-  loop consensus proj --question severity`,
-		Args: cobra.ExactArgs(1),
+		Use:     "consensus DIR",
+		Short:   "Clean and combine the crowd labels into one answer per item",
+		Long:    helpLong("consensus"),
+		Example: helpExample("consensus"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			over, err := checkedOverrides(cmd)
 			if err != nil {

@@ -20,25 +20,11 @@ func newCurvesCmd() *cobra.Command {
 		asJSON bool
 	)
 	c := &cobra.Command{
-		Use:   "curves DIR",
-		Short: "Does picking unsure items beat random picks on this project? Simulated learning curves",
-		Long: `curves replays active learning on the project's crowd-labelled items, with their
-consensus class standing in for the crowd: per seed, 30% of them are a test set,
-a few are labelled at random, then batches are picked either by entropy (the
-items the model is least sure of, as ` + "`loop next`" + ` does) or at random, and the
-model is refitted at each budget. It prints the mean test accuracy of both
-over the seeds and the share of budgets where entropy is ahead.
-
-These are simulated figures on items people already labelled, not held-out
-agreement; if those items were themselves picked by selection, they are not a
-random sample of the archive.
-
-With --html it writes the latest round's verdict report with these two curves
-as its learning-curve plot (entropy as this project's curve, random dashed).`,
-		Example: `  loop curves proj
-  loop curves proj --seeds 10 --max 600
-  loop curves proj --html curves.html`,
-		Args: cobra.ExactArgs(1),
+		Use:     "curves DIR",
+		Short:   "Does picking unsure items beat random picks on this project? Simulated learning curves",
+		Long:    helpLong("curves"),
+		Example: helpExample("curves"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			over, err := checkedOverrides(cmd)
 			if err != nil {

@@ -14,28 +14,11 @@ func init() { register(newDemoCmd) }
 func newDemoCmd() *cobra.Command {
 	var cfg demo.Config
 	c := &cobra.Command{
-		Use:   "demo DIR",
-		Short: "Build and run an invented demo: the whole job from crowd labels to export",
-		Long: `demo builds a workspace of two invented projects in DIR and runs the whole job
-on each:
-
-  DIR/reports    sentences of a fictional river-care programme's volunteer
-                 reports (pollution, wildlife, bank damage, litter, other)
-  DIR/particles  synthetic microscope images of particles (cell, chain, rod,
-                 debris) at 10×, 20× and 40×, where low magnification makes
-                 chains look like rods to everyone
-
-A simulated crowd (careful, average and careless people, spammers, and some
-who resubmit the same items) labels part of each archive. Then, for each
-project: rounds of consensus → train → next batch → verdict, with the
-simulated crowd answering each batch; the particles' shared bias is corrected
-by magnification; once the verdict says GO the machine labels the rest, a
-random audit sample goes back to the crowd, and everything is exported and
-rolled up. The data is invented for demonstration only.`,
-		Example: `  loop demo /tmp/handoff-demo
-  loop status /tmp/handoff-demo
-  loop verdict /tmp/handoff-demo/reports --html report.html`,
-		Args: cobra.ExactArgs(1),
+		Use:     "demo DIR",
+		Short:   "Build and run an invented demo: the whole job from crowd labels to export",
+		Long:    helpLong("demo"),
+		Example: helpExample("demo"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cfg.Only != "" && !slices.Contains(demo.Projects, cfg.Only) {
 				return usageErrorf("--only %q: want reports or particles", cfg.Only)

@@ -18,29 +18,11 @@ func newLabelsAddCmd() *cobra.Command {
 		wave        int
 	)
 	c := &cobra.Command{
-		Use:   "add DIR FILE...",
-		Short: "Add crowd labels (or, with --gold, expert answers)",
-		Long: `add reads labels in long format — one label per row — from each FILE (CSV with
-a header row, or JSONL) and writes them all in one transaction: if any row is
-bad, nothing is added and the error names the file, line and field.
-
-Crowd label fields: item, annotator, label (a class key of the codebook), and
-optionally time (RFC 3339, e.g. 2024-05-01T14:03:00Z) and seconds (time spent).
-Every item must already be in the project. Repeated labels by one annotator
-for one item are all kept; cleaning rules decide later.
-
-With --wave N the labels belong to crowd wave N (a later run of the crowd
-over the same items, for test–retest reliability; see loop compare and loop
-waves); without it they belong to the project's open wave (1 unless a new
-wave was opened).
-
-With --gold the fields are item, label and optionally source (who gave the
-answer; default the file name). Gold for an item that has gold replaces it.`,
-		Example: `  loop labels add proj labels.csv
-  loop labels add proj round2.jsonl --annotator-field worker
-  loop labels add proj retest.csv --wave 2
-  loop labels add proj expert.csv --gold`,
-		Args: cobra.MinimumNArgs(2),
+		Use:     "add DIR FILE...",
+		Short:   "Add crowd labels (or, with --gold, expert answers)",
+		Long:    helpLong("labels-add"),
+		Example: helpExample("labels-add"),
+		Args:    cobra.MinimumNArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cmd.Flags().Changed("wave") {
 				if gold {

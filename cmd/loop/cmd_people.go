@@ -17,17 +17,11 @@ func init() {
 func newPeopleAddCmd() *cobra.Command {
 	var admin bool
 	c := &cobra.Command{
-		Use:   "add DIR NAME",
-		Short: "Add a person and print their token (shown once)",
-		Long: `add adds a person who may sign in to ` + "`loop serve`" + ` and prints their token.
-The token is shown only now: the project keeps an argon2id hash of it, never
-the token. NAME is also the annotator id their labels carry (letters, digits,
-'.', '_', '@', '-'). With --admin the person may also use the board and the
-team's API routes (add items, import labels, run rounds, export, manage
-people). It works while ` + "`loop serve`" + ` runs.`,
-		Example: `  loop people add proj alice --admin
-  loop people add proj coder07`,
-		Args: cobra.ExactArgs(2),
+		Use:     "add DIR NAME",
+		Short:   "Add a person and print their token (shown once)",
+		Long:    helpLong("people-add"),
+		Example: helpExample("people-add"),
+		Args:    cobra.ExactArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])
 			if err != nil {
@@ -51,7 +45,7 @@ func newPeopleTokenCmd() *cobra.Command {
 	return &cobra.Command{
 		Use:     "token DIR NAME",
 		Short:   "Issue another token for a person (shown once)",
-		Example: "  loop people token proj coder07",
+		Example: helpExample("people-token"),
 		Args:    cobra.ExactArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])
@@ -72,17 +66,10 @@ func newPeopleTokenCmd() *cobra.Command {
 func newPeopleRevokeCmd() *cobra.Command {
 	var person string
 	c := &cobra.Command{
-		Use:   "revoke DIR TOKEN | revoke DIR --person NAME",
-		Short: "Revoke a token (whole or the part before the dot), or every token of a person",
-		Long: `revoke deletes a token: give it whole or just its id, the part before the dot
-(` + "`loop people list`" + ` shows each person's token ids). With --person it deletes every
-token of that person; they stay in the project, with their labels, and can
-sign in again only with a new token (` + "`loop people token`" + `).
-
-It works while ` + "`loop serve`" + ` runs: the server refuses the token from the next
-request on and ends the page sessions opened with it.`,
-		Example: `  loop people revoke proj 3f2a9c0d1e4b5a67
-  loop people revoke proj --person coder07`,
+		Use:     "revoke DIR TOKEN | revoke DIR --person NAME",
+		Short:   "Revoke a token (whole or the part before the dot), or every token of a person",
+		Long:    helpLong("people-revoke"),
+		Example: helpExample("people-revoke"),
 		Args: func(cmd *cobra.Command, args []string) error {
 			if person != "" {
 				return cobra.ExactArgs(1)(cmd, args)
@@ -121,13 +108,10 @@ request on and ends the page sessions opened with it.`,
 func newPeopleListCmd() *cobra.Command {
 	var asJSON bool
 	c := &cobra.Command{
-		Use:   "list DIR",
-		Short: "List the people of a project with their role, check and token ids",
-		Long: `list prints one line per person: id, role (admin or annotator), where they stand
-in the practice and the check that come before real work, the ids of their
-tokens (never the tokens: only their hashes are kept), and when they were
-added. --json prints the same as JSON.`,
-		Example: "  loop people list proj\n  loop people list proj --json",
+		Use:     "list DIR",
+		Short:   "List the people of a project with their role, check and token ids",
+		Long:    helpLong("people-list"),
+		Example: helpExample("people-list"),
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])

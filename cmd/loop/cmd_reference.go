@@ -27,27 +27,11 @@ func newReferenceAddCmd() *cobra.Command {
 		replace bool
 	)
 	c := &cobra.Command{
-		Use:   "add DIR FILE --name NAME",
-		Short: "Add an independent (expert) coding to compare the crowd and the machine with",
-		Long: `add imports an independent coding of the project — by experts, or by an
-earlier study — under a name, to compare the crowd's consensus and the machine
-with it (loop compare). It is kept apart from gold: it never screens
-annotators, never cleans or combines labels, never trains the machine, never
-decides the verdict or the next batch, and is never shown to annotators.
-
-FILE is CSV with a header row, or JSONL, holding either
-  item labels:    item, label (a class key), one row per coded item; or
-  parent scores:  parent, value and optionally question, one row per coded
-                  parent (and question): with question a class key, value is
-                  that class's share of the parent's items (0–1); with
-                  question "position" or empty (ordinal codebooks), value is
-                  the parent's mean position (1 = the lowest class).
-The whole file is checked first: a bad row changes nothing, and the error
-names the file, line and field. Every item must be in the project, and every
-parent the parent of some item.`,
-		Example: `  loop reference add proj experts.csv --name experts-2019
-  loop reference add proj doc-scores.jsonl --name panel --replace`,
-		Args: cobra.ExactArgs(2),
+		Use:     "add DIR FILE --name NAME",
+		Short:   "Add an independent (expert) coding to compare the crowd and the machine with",
+		Long:    helpLong("reference-add"),
+		Example: helpExample("reference-add"),
+		Args:    cobra.ExactArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := handoff.CheckReferenceName(name); err != nil {
 				return usageErrorf("%v", err)
@@ -100,13 +84,11 @@ parent the parent of some item.`,
 func newReferenceListCmd() *cobra.Command {
 	var asJSON bool
 	c := &cobra.Command{
-		Use:   "list DIR",
-		Short: "List the project's reference codings",
-		Long: `list shows each reference coding: its name, whether it codes items or
-parents, how many rows it has, the file it came from and when it was added.`,
-		Example: `  loop reference list proj
-  loop reference list proj --json`,
-		Args: cobra.ExactArgs(1),
+		Use:     "list DIR",
+		Short:   "List the project's reference codings",
+		Long:    helpLong("reference-list"),
+		Example: helpExample("reference-list"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])
 			if err != nil {

@@ -23,40 +23,11 @@ func newServeCmd() *cobra.Command {
 		cfg  api.Config
 	)
 	c := &cobra.Command{
-		Use:   "serve DIR",
-		Short: "Serve the labelling page, the project board and the HTTP API",
-		Long: `serve answers HTTP on --addr: people label items one at a time on the
-labelling page (/label), the team follows the project and manages people on
-the board (/board), and programs use the JSON API under /api/v1 (described
-at /api/v1/openapi.json). Prometheus metrics are at /metrics, for admin
-tokens (--metrics).
-
-People sign in with a token from ` + "`loop people add`" + `. Each item is handed
-out as a lease that expires after --lease; no item is handed out beyond
---redundancy labels counting live leases (an item of the latest next batch
-wants one label more than it had when the server first saw the batch). A
-label is acknowledged only once it is written to disk. Before real work,
-annotators answer --practice gold items (with the expert's answer shown) and
-a check of --check gold items that must reach --pass-mark; each attempt
-draws its check items afresh, a failed attempt's score is not shown, and
-after --check-attempts failed attempts the team grants another on the
-board. A project without gold skips both.
-
-While it serves, these commands work beside it (the server runs them and
-their output is the same): status, consensus, agreement, verdict, export,
-rollup, next and people (add, list, token, revoke). Others say so and stop.
-serve records where it listens in DIR/serve.json (readable by you only) and
-removes that file when it stops.
-
-Behind a proxy that serves the pages over HTTPS, give --secure-cookies.
-
-serve runs until interrupted (Ctrl-C or SIGTERM), then finishes the requests
-in flight and stops. It prints the address it listens on (useful with port 0).`,
-		Example: `  loop people add proj alice --admin
-  loop serve proj --addr 127.0.0.1:8080
-  loop serve proj --addr 127.0.0.1:0 --lease 5m --redundancy 5 --practice 0 --check 0
-  loop serve proj --addr 0.0.0.0:8080 --secure-cookies --metrics admin   # behind an HTTPS proxy`,
-		Args: cobra.ExactArgs(1),
+		Use:     "serve DIR",
+		Short:   "Serve the labelling page, the project board and the HTTP API",
+		Long:    helpLong("serve"),
+		Example: helpExample("serve"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			// 0 in the flags means none (or no limit); the API's zero means
 			// its default.

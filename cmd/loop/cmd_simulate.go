@@ -23,27 +23,11 @@ func newSimulateCmd() *cobra.Command {
 		asJSON     bool
 	)
 	c := &cobra.Command{
-		Use:   "simulate",
-		Short: "Plan a project: consensus accuracy by method and labels per item",
-		Long: `simulate describes a crowd before a project starts — the shares of careful,
-average and careless annotators and of spammers, the classes and their
-prevalence — simulates it, and reports the consensus accuracy of each
-combining method at each number of labels per item, so a team can choose its
-redundancy and budget. The simulated crowds are invented; treat the figures
-as a guide, and check them against a pilot with gold items.
-
-Real crowds are sparse: people come, give a few dozen labels and leave.
---labels-per-annotator 10-70 simulates that (each person gives between 10 and
-70 labels, and there are as many people as the labels need; --annotators is
-then ignored), and --shared c1:c2:0.3 adds a confusion most people share
-(everyone but the careful and the spammers answers c2 for a c1 item 30% of
-the time). Plan with the crowd you will really get: the figures of a dense,
-independent crowd are much kinder.`,
-		Example: `  loop simulate
-  loop simulate --spammer 0.2 --careful 0.2 --labels-per-item 1,3,5,7,9
-  loop simulate --classes 3 --prevalence 0.7,0.2,0.1 --items 5000 --json
-  loop simulate --labels-per-annotator 10-70 --shared c1:c2:0.3 --one-class 0.4 --classes 10`,
-		Args: cobra.NoArgs,
+		Use:     "simulate",
+		Short:   "Plan a project: consensus accuracy by method and labels per item",
+		Long:    helpLong("simulate"),
+		Example: helpExample("simulate"),
+		Args:    cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			for _, f := range strings.Split(lpi, ",") {
 				n, err := strconv.Atoi(strings.TrimSpace(f))

@@ -16,21 +16,11 @@ func newWavesCmd() *cobra.Command {
 		asJSON bool
 	)
 	c := &cobra.Command{
-		Use:   "waves DIR",
-		Short: "List the crowd waves, or open a new one",
-		Long: `waves lists the project's crowd waves — runs of the crowd over the same
-items, to measure test–retest reliability (loop compare) — with their labels
-and items, and which wave is open: the one new labels get when added without
---wave, and the one labels sent through the service (loop serve) get.
-
-With --open, the next wave is opened (one past the highest wave any label
-has): from then on labels added without --wave, and labels people send
-through the service, belong to it, and a person may label again an item they
-labelled in an earlier wave. The round's consensus uses the labels of every
-wave; loop compare computes each wave's consensus apart.`,
-		Example: `  loop waves proj
-  loop waves proj --open`,
-		Args: cobra.ExactArgs(1),
+		Use:     "waves DIR",
+		Short:   "List the crowd waves, or open a new one",
+		Long:    helpLong("waves"),
+		Example: helpExample("waves"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			s, err := openStore(args[0])
 			if err != nil {
