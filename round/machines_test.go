@@ -343,14 +343,16 @@ func TestTreeAddQuestionAsked(t *testing.T) {
 	if asks == 0 || asks > r.Config.Batch/2 || len(r.Batch) != r.Config.Batch {
 		t.Errorf("%d asks of the new question in a batch of %d, want some and at most half of %d", asks, len(r.Batch), r.Config.Batch)
 	}
-	if q := r.Questions[2]; q.Key != "urgent" || q.Verdict != nil || q.Why == "" {
+	if q := r.Questions[2]; q.Key != "urgent" || q.Verdict != nil || q.Train != nil || !strings.HasPrefix(q.Why, "no verdict yet: ") {
 		t.Errorf("the new question: %+v", q)
 	}
 	next, err := Next(st, NextConfig{}, "test")
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !slices.EqualFunc(next, r.Batch, func(a, b BatchItem) bool { return a.Item == b.Item && a.Reason == b.Reason && slices.Equal(a.Questions, b.Questions) }) {
+	if !slices.EqualFunc(next, r.Batch, func(a, b BatchItem) bool {
+		return a.Item == b.Item && a.Reason == b.Reason && slices.Equal(a.Questions, b.Questions)
+	}) {
 		t.Error("`loop next` does not write the round's batch")
 	}
 	// Picked again with other batch settings, the batch keeps asking it.
