@@ -6,6 +6,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/internal/cli"
 	"handoff/round"
 	"handoff/store"
 )
@@ -25,12 +26,12 @@ func newAgreementCmd() *cobra.Command {
 		Example: helpExample("agreement"),
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over, err := checkedOverrides(cmd)
+			over, err := cli.Overrides(cmd)
 			if err != nil {
 				return err
 			}
 			return onStore(cmd, args[0], "bootstrapping", func(s *store.Store) error {
-				rc, err := projectConfig(s, over)
+				rc, err := cli.ProjectConfig(s, over)
 				if err != nil {
 					return err
 				}
@@ -41,7 +42,7 @@ func newAgreementCmd() *cobra.Command {
 					if err != nil {
 						return err
 					}
-					return show(cmd, asJSON, r, r.Text())
+					return cli.Show(cmd, asJSON, r, r.Text())
 				}
 				qs, err := questionsOf(cb, question)
 				if err != nil {
@@ -60,9 +61,9 @@ func newAgreementCmd() *cobra.Command {
 					fmt.Fprintf(&text, "%s%s", questionHeader(cb, q, text.Len() > 0), r.Text())
 				}
 				if len(reps) == 1 {
-					return show(cmd, asJSON, reps[0], text.String())
+					return cli.Show(cmd, asJSON, reps[0], text.String())
 				}
-				return show(cmd, asJSON, reps, text.String())
+				return cli.Show(cmd, asJSON, reps, text.String())
 			})
 		},
 	}
@@ -72,6 +73,6 @@ func newAgreementCmd() *cobra.Command {
 	fl.IntVar(&cfg.Reps, "reps", 1000, "bootstrap replicates")
 	fl.StringVar(&question, "question", "", "measure only this question of a question tree (default: every question, one section each)")
 	fl.BoolVar(&asJSON, "json", false, "print JSON")
-	bindSettings(c, append(cleaningKeys, "seed")...)
+	cli.BindSettings(c, append(cli.CleaningKeys, "seed")...)
 	return c
 }

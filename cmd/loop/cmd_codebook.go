@@ -8,6 +8,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/ingest"
+	"handoff/internal/cli"
 	"handoff/store"
 )
 
@@ -30,7 +31,7 @@ func newAddQuestionCmd() *cobra.Command {
 				if err != nil {
 					return err
 				}
-				cb, err := s.AddQuestion(q, source(cmd))
+				cb, err := s.AddQuestion(q, cli.Source(cmd))
 				if err != nil {
 					return err
 				}
@@ -38,7 +39,7 @@ func newAddQuestionCmd() *cobra.Command {
 				for _, x := range cb.All() {
 					keys = append(keys, x.Key)
 				}
-				donef(cmd, "added question %q (%d classes); the codebook's questions: %s\n", q.Key, len(q.Classes), strings.Join(keys, ", "))
+				cli.Done(cmd, "added question %q (%d classes); the codebook's questions: %s\n", q.Key, len(q.Classes), strings.Join(keys, ", "))
 				return nil
 			})
 		},

@@ -8,6 +8,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff"
+	"handoff/internal/cli"
 	"handoff/round"
 )
 
@@ -31,12 +32,12 @@ func newCompareCmd() *cobra.Command {
 				for _, f := range strings.Split(waves, ",") {
 					w, err := strconv.Atoi(strings.TrimSpace(f))
 					if err != nil || w < 1 || w > handoff.MaxWave {
-						return usageErrorf("--waves %q: give wave numbers 1–%d separated by commas, e.g. 1,2", waves, handoff.MaxWave)
+						return cli.Usagef("--waves %q: give wave numbers 1–%d separated by commas, e.g. 1,2", waves, handoff.MaxWave)
 					}
 					cfg.Waves = append(cfg.Waves, w)
 				}
 				if len(cfg.Waves) < 2 {
-					return usageErrorf("--waves %q: name at least two waves to compare", waves)
+					return cli.Usagef("--waves %q: name at least two waves to compare", waves)
 				}
 			}
 			s, err := openStore(args[0])
@@ -44,19 +45,19 @@ func newCompareCmd() *cobra.Command {
 				return err
 			}
 			defer s.Close()
-			bar := newProgress(cmd, -1, "comparing")
+			bar := cli.Progress(cmd, -1, "comparing")
 			rep, err := round.Compare(s, cfg)
 			bar.Finish()
 			if err != nil {
 				return err
 			}
 			if html != "" {
-				if err := writeOutput(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff comparisons — "+args[0]) }); err != nil {
+				if err := cli.Write(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff comparisons — "+args[0]) }); err != nil {
 					return err
 				}
 			}
 			if asJSON {
-				return printJSON(cmd, rep)
+				return cli.JSON(cmd, rep)
 			}
 			var b strings.Builder
 			if err := rep.WriteText(&b); err != nil {
@@ -65,9 +66,9 @@ func newCompareCmd() *cobra.Command {
 			if html == "-" {
 				return nil
 			}
-			outf(cmd, "%s", b.String())
+			cli.Out(cmd, "%s", b.String())
 			if html != "" {
-				infof(cmd, "report with scatter plots written to %s\n", html)
+				cli.Info(cmd, "report with scatter plots written to %s\n", html)
 			}
 			return nil
 		},

@@ -6,7 +6,9 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/internal/cli"
 	"handoff/round"
+	"handoff/store"
 )
 
 func init() { register(newConfigCmd) }
@@ -25,22 +27,17 @@ func newConfigCmd() *cobra.Command {
 			case len(args) == 4 && args[1] == "set":
 				return nil
 			case len(args) >= 2 && args[1] == "set":
-				return usageErrorf("config DIR set KEY VALUE: give one key and one value (see `loop config DIR` for the keys)")
+				return cli.Usagef("config DIR set KEY VALUE: give one key and one value (see `loop config DIR` for the keys)")
 			}
-			return usageErrorf("usage: loop config DIR, or loop config DIR set KEY VALUE")
+			return cli.Usagef("usage: loop config DIR, or loop config DIR set KEY VALUE")
 		},
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
 			if len(args) == 4 {
-				changes, err := round.SetSettings(s, []round.Override{{Key: args[2], Value: args[3]}}, source(cmd))
+				changes, err := round.SetSettings(s, []round.Override{{Key: args[2], Value: args[3]}}, cli.Source(cmd))
 				if err != nil {
-					return settingUsage(err)
+					return cli.SettingUsage(err)
 				}
-				donef(cmd, "%s\n", strings.Join(changes, "\n"))
+				cli.Done(cmd, "%s\n", strings.Join(changes, "\n"))
 				return nil
 			}
 			_, list, err := round.Settings(s)
@@ -60,7 +57,7 @@ func newConfigCmd() *cobra.Command {
 				for i, x := range list {
 					out[i] = row{x.Key, x.Value, x.Source, keys[i].Want, keys[i].Doc}
 				}
-				return printJSON(cmd, out)
+				return cli.JSON(cmd, out)
 			}
 			keys := round.Keys()
 			var b strings.Builder
@@ -68,9 +65,9 @@ func newConfigCmd() *cobra.Command {
 			for i, x := range list {
 				fmt.Fprintf(&b, "  %s %s (%s)\n      %s; %s\n", x.Key, x.Value, x.Source, keys[i].Doc, keys[i].Want)
 			}
-			outf(cmd, "%s", b.String())
+			cli.Out(cmd, "%s", b.String())
 			return nil
-		},
+		}),
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c

@@ -7,6 +7,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff"
+	"handoff/internal/cli"
 	"handoff/round"
 	"handoff/store"
 )
@@ -29,27 +30,27 @@ func newConsensusCmd() *cobra.Command {
 		Example: helpExample("consensus"),
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over, err := checkedOverrides(cmd)
+			over, err := cli.Overrides(cmd)
 			if err != nil {
 				return err
 			}
 			return onStore(cmd, args[0], "combining", func(s *store.Store) error {
-				rc, err := projectConfig(s, over)
+				rc, err := cli.ProjectConfig(s, over)
 				if err != nil {
 					return err
 				}
 				cc := rc.Consensus
 				if cc.Reference != "" && cc.Debias == "" {
-					return usageErrorf("--reference-stratum needs --debias COVARIATE")
+					return cli.Usagef("--reference-stratum needs --debias COVARIATE")
 				}
 				cc.Smoothing, cc.Strata, cc.Uncertain = cfg.Smoothing, cfg.Strata, cfg.Uncertain
 				cb := s.Codebook()
 				if !cb.Tree() && question == "" {
-					rep, err := round.Consensus(s, cc, source(cmd))
+					rep, err := round.Consensus(s, cc, cli.Source(cmd))
 					if err != nil {
 						return err
 					}
-					return show(cmd, asJSON, rep, rep.Text(explain))
+					return cli.Show(cmd, asJSON, rep, rep.Text(explain))
 				}
 				qs, err := questionsOf(cb, question)
 				if err != nil {
@@ -61,7 +62,7 @@ func newConsensusCmd() *cobra.Command {
 				)
 				for _, q := range qs {
 					key := cb.All()[q].Key
-					rep, err := round.QuestionConsensus(s, key, cc, source(cmd))
+					rep, err := round.QuestionConsensus(s, key, cc, cli.Source(cmd))
 					if err != nil {
 						return err
 					}
@@ -69,9 +70,9 @@ func newConsensusCmd() *cobra.Command {
 					fmt.Fprintf(&text, "%s%s", questionHeader(cb, q, len(qs) > 1 && text.Len() > 0), rep.Text(explain))
 				}
 				if len(reps) == 1 {
-					return show(cmd, asJSON, reps[0], text.String())
+					return cli.Show(cmd, asJSON, reps[0], text.String())
 				}
-				return show(cmd, asJSON, reps, text.String())
+				return cli.Show(cmd, asJSON, reps, text.String())
 			})
 		},
 	}
@@ -82,7 +83,7 @@ func newConsensusCmd() *cobra.Command {
 	fl.StringVar(&question, "question", "", "combine only this question of a question tree (default: every question, parents first)")
 	fl.BoolVar(&explain, "explain", false, "list every drop and flag of the cleaning rules")
 	fl.BoolVar(&asJSON, "json", false, "print the full report as JSON")
-	bindSettings(c, append(cleaningKeys, "method", "debias", "reference-stratum", "seed")...)
+	cli.BindSettings(c, append(cli.CleaningKeys, "method", "debias", "reference-stratum", "seed")...)
 	return c
 }
 
@@ -98,7 +99,7 @@ func questionsOf(cb handoff.Codebook, key string) ([]int, error) {
 		for _, x := range cb.All() {
 			ks = append(ks, x.Key)
 		}
-		return nil, usageErrorf("--question %q: not a question of the codebook (questions: %s)", key, strings.Join(ks, ", "))
+		return nil, cli.Usagef("--question %q: not a question of the codebook (questions: %s)", key, strings.Join(ks, ", "))
 	}
 	return []int{q}, nil
 }

@@ -6,6 +6,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/internal/cli"
 	"handoff/plan"
 	"handoff/round"
 )
@@ -26,12 +27,12 @@ func newCurvesCmd() *cobra.Command {
 		Example: helpExample("curves"),
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over, err := checkedOverrides(cmd)
+			over, err := cli.Overrides(cmd)
 			if err != nil {
 				return err
 			}
 			if seeds < 1 {
-				return usageErrorf("--seeds %d: want at least 1", seeds)
+				return cli.Usagef("--seeds %d: want at least 1", seeds)
 			}
 			cfg.Seeds = make([]uint64, seeds)
 			for i := range cfg.Seeds {
@@ -42,7 +43,7 @@ func newCurvesCmd() *cobra.Command {
 				return err
 			}
 			defer s.Close()
-			rc, err := projectConfig(s, over)
+			rc, err := cli.ProjectConfig(s, over)
 			if err != nil {
 				return err
 			}
@@ -57,22 +58,22 @@ func newCurvesCmd() *cobra.Command {
 					return fmt.Errorf("--html shows the curves in the latest round's verdict report: %w", err)
 				}
 				r := cmp.InReport(rep)
-				if err := writeOutput(cmd, html, func(w io.Writer) error { return r.WriteHTML(w, "Handoff learning curves — "+args[0]) }); err != nil {
+				if err := cli.Write(cmd, html, func(w io.Writer) error { return r.WriteHTML(w, "Handoff learning curves — "+args[0]) }); err != nil {
 					return err
 				}
-				infof(cmd, "report written to %s\n", html)
+				cli.Info(cmd, "report written to %s\n", html)
 			}
 			if asJSON {
-				return printJSON(cmd, cmp)
+				return cli.JSON(cmd, cmp)
 			}
-			if html != "" && quiet(cmd) {
+			if html != "" && cli.Quiet(cmd) {
 				return nil
 			}
-			outf(cmd, "%s", cmp.Text())
+			cli.Out(cmd, "%s", cmp.Text())
 			return nil
 		},
 	}
-	bindSettings(c, "learner", "features", "lambda", "folds")
+	cli.BindSettings(c, "learner", "features", "lambda", "folds")
 	fl := c.Flags()
 	fl.IntVar(&seeds, "seeds", 5, "number of seeds to average over (1..N)")
 	fl.IntVar(&cfg.Curve.MaxLabels, "max", 0, "last budget (default: 1000, or ¾ of the items left after the test set if fewer)")

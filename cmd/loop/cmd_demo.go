@@ -7,6 +7,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/demo"
+	"handoff/internal/cli"
 )
 
 func init() { register(newDemoCmd) }
@@ -21,17 +22,17 @@ func newDemoCmd() *cobra.Command {
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cfg.Only != "" && !slices.Contains(demo.Projects, cfg.Only) {
-				return usageErrorf("--only %q: want reports or particles", cfg.Only)
+				return cli.Usagef("--only %q: want reports or particles", cfg.Only)
 			}
-			cfg.Dir, cfg.Source = args[0], source(cmd)
+			cfg.Dir, cfg.Source = args[0], cli.Source(cmd)
 			cfg.Busy = func(what string) func() {
-				bar := newProgress(cmd, -1, what)
+				bar := cli.Progress(cmd, -1, what)
 				return func() { bar.Finish() }
 			}
 			if err := demo.Run(cfg, cmd.OutOrStdout()); err != nil {
 				return err
 			}
-			hintf(cmd, "\nnext: loop status %s; loop verdict %s --html report.html\n", cfg.Dir, filepath.Join(cfg.Dir, "reports"))
+			cli.Hint(cmd, "\nnext: loop status %s; loop verdict %s --html report.html\n", cfg.Dir, filepath.Join(cfg.Dir, "reports"))
 			return nil
 		},
 	}

@@ -7,6 +7,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/export"
+	"handoff/internal/cli"
 )
 
 func init() {
@@ -32,10 +33,10 @@ Items with no answer yet have an empty class and source.`,
 			switch format {
 			case "csv", "jsonl", "parquet":
 			default:
-				return usageErrorf("--format %q: want csv, jsonl or parquet", format)
+				return cli.Usagef("--format %q: want csv, jsonl or parquet", format)
 			}
 			if format == "parquet" && (out == "" || out == "-") {
-				return usageErrorf("--format parquet needs --out FILE")
+				return cli.Usagef("--format parquet needs --out FILE")
 			}
 			s, err := openStore(args[0])
 			if err != nil {
@@ -46,7 +47,7 @@ Items with no answer yet have an empty class and source.`,
 			if err != nil {
 				return err
 			}
-			if err := writeOutput(cmd, out, func(w io.Writer) error { cb := s.Codebook(); return export.Write(w, format, rows, cb.Keys()) }); err != nil {
+			if err := cli.Write(cmd, out, func(w io.Writer) error { cb := s.Codebook(); return export.Write(w, format, rows, cb.Keys()) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {
@@ -58,9 +59,9 @@ Items with no answer yet have an empty class and source.`,
 					}
 					by[src]++
 				}
-				infof(cmd, "exported %d items to %s (gold %d, crowd %d, machine %d, none yet %d)\n",
+				cli.Info(cmd, "exported %d items to %s (gold %d, crowd %d, machine %d, none yet %d)\n",
 					len(rows), out, by["gold"], by["crowd"], by["machine"], by["none yet"])
-				return s.Record(source(cmd), "export", fmt.Sprintf("%d rows as %s to %s", len(rows), format, out))
+				return s.Record(cli.Source(cmd), "export", fmt.Sprintf("%d rows as %s to %s", len(rows), format, out))
 			}
 			return nil
 		},
@@ -89,7 +90,7 @@ export.Rollup), the parent's items taken as a sample of its items.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if by != "parent" {
-				return usageErrorf("--by %q: only parent is supported", by)
+				return cli.Usagef("--by %q: only parent is supported", by)
 			}
 			s, err := openStore(args[0])
 			if err != nil {
@@ -106,9 +107,9 @@ export.Rollup), the parent's items taken as a sample of its items.`,
 				return err
 			}
 			if asJSON {
-				return printJSON(cmd, ps)
+				return cli.JSON(cmd, ps)
 			}
-			outf(cmd, "%s", export.RollupText(ps, cb.Keys(), cb.IsOrdinal()))
+			cli.Out(cmd, "%s", export.RollupText(ps, cb.Keys(), cb.IsOrdinal()))
 			return nil
 		},
 	}

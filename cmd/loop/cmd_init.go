@@ -4,6 +4,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/ingest"
+	"handoff/internal/cli"
 	"handoff/store"
 )
 
@@ -19,18 +20,18 @@ func newInitCmd() *cobra.Command {
 		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if codebook == "" {
-				return usageErrorf("init needs --codebook FILE")
+				return cli.Usagef("init needs --codebook FILE")
 			}
 			cb, err := ingest.ReadCodebook(codebook)
 			if err != nil {
 				return err
 			}
-			s, err := store.Create(args[0], cb, source(cmd))
+			s, err := store.Create(args[0], cb, cli.Source(cmd))
 			if err != nil {
 				return err
 			}
 			defer s.Close()
-			donef(cmd, "created project %s with codebook %q (%d classes)\n", args[0], cb.Name, len(cb.Classes))
+			cli.Done(cmd, "created project %s with codebook %q (%d classes)\n", args[0], cb.Name, len(cb.Classes))
 			return nil
 		},
 	}

@@ -6,6 +6,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/ingest"
+	"handoff/internal/cli"
 )
 
 func init() { registerUnder("items", newItemsAddCmd) }
@@ -30,7 +31,7 @@ func newItemsAddCmd() *cobra.Command {
 			case "sentences":
 				opt.SplitSentences = true
 			default:
-				return usageErrorf("--split %q: the only split is \"sentences\"", split)
+				return cli.Usagef("--split %q: the only split is \"sentences\"", split)
 			}
 			if cmd.Flags().Changed("covariates") {
 				opt.Covariates = []string{}
@@ -42,20 +43,20 @@ func newItemsAddCmd() *cobra.Command {
 			}
 			srcs, err := ingest.ItemSources(args[1:], ingest.Format(format), opt.SplitSentences)
 			if err != nil {
-				return sourceUsage(err)
+				return cli.SourceUsage(err)
 			}
 			s, err := openStore(args[0])
 			if err != nil {
 				return err
 			}
 			defer s.Close()
-			f := readFiles(cmd, ingest.ItemFiles(srcs, opt))
+			f := cli.ReadFiles(cmd, ingest.ItemFiles(srcs, opt))
 			defer f.Close()
-			res, err := s.ImportItems(source(cmd), update, f.Next)
+			res, err := s.ImportItems(cli.Source(cmd), update, f.Next)
 			if err != nil {
-				return located(err, f)
+				return cli.Located(err, f)
 			}
-			outf(cmd, "items: %s from %d file(s)\n", res, len(srcs))
+			cli.Out(cmd, "items: %s from %d file(s)\n", res, len(srcs))
 			return nil
 		},
 	}

@@ -5,6 +5,7 @@ import (
 
 	"handoff"
 	"handoff/ingest"
+	"handoff/internal/cli"
 )
 
 func init() { registerUnder("labels", newLabelsAddCmd) }
@@ -26,15 +27,15 @@ func newLabelsAddCmd() *cobra.Command {
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if cmd.Flags().Changed("wave") {
 				if gold {
-					return usageErrorf("--wave is for crowd labels, not --gold answers")
+					return cli.Usagef("--wave is for crowd labels, not --gold answers")
 				}
 				if wave < 1 || wave > handoff.MaxWave {
-					return usageErrorf("--wave %d: give a wave from 1 to %d", wave, handoff.MaxWave)
+					return cli.Usagef("--wave %d: give a wave from 1 to %d", wave, handoff.MaxWave)
 				}
 			}
 			srcs, err := ingest.LabelSources(args[1:], ingest.Format(format))
 			if err != nil {
-				return sourceUsage(err)
+				return cli.SourceUsage(err)
 			}
 			s, err := openStore(args[0])
 			if err != nil {
@@ -44,26 +45,26 @@ func newLabelsAddCmd() *cobra.Command {
 			cb := s.Codebook()
 			lopt.Codebook = &cb
 			if gold {
-				f := readFiles(cmd, ingest.GoldFiles(srcs, ingest.GoldOptions{ItemField: lopt.ItemField, LabelField: lopt.LabelField, SourceField: sourceField, Codebook: &cb}))
+				f := cli.ReadFiles(cmd, ingest.GoldFiles(srcs, ingest.GoldOptions{ItemField: lopt.ItemField, LabelField: lopt.LabelField, SourceField: sourceField, Codebook: &cb}))
 				defer f.Close()
-				res, err := s.ImportGold(source(cmd), f.Next)
+				res, err := s.ImportGold(cli.Source(cmd), f.Next)
 				if err != nil {
-					return located(err, f)
+					return cli.Located(err, f)
 				}
-				outf(cmd, "gold: %s from %d file(s)\n", res, len(srcs))
+				cli.Out(cmd, "gold: %s from %d file(s)\n", res, len(srcs))
 				return nil
 			}
-			f := readFiles(cmd, ingest.LabelFiles(srcs, lopt))
+			f := cli.ReadFiles(cmd, ingest.LabelFiles(srcs, lopt))
 			defer f.Close()
-			res, err := s.ImportLabels(source(cmd), func() (handoff.Label, error) {
+			res, err := s.ImportLabels(cli.Source(cmd), func() (handoff.Label, error) {
 				l, err := f.Next()
 				l.Wave = wave
 				return l, err
 			})
 			if err != nil {
-				return located(err, f)
+				return cli.Located(err, f)
 			}
-			outf(cmd, "labels: %s from %d file(s)\n", res, len(srcs))
+			cli.Out(cmd, "labels: %s from %d file(s)\n", res, len(srcs))
 			return nil
 		},
 	}

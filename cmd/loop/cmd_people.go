@@ -4,6 +4,8 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/api"
+	"handoff/internal/cli"
+	"handoff/store"
 )
 
 func init() {
@@ -22,20 +24,15 @@ func newPeopleAddCmd() *cobra.Command {
 		Long:    helpLong("people-add"),
 		Example: helpExample("people-add"),
 		Args:    cobra.ExactArgs(2),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
+			tok, err := api.AddPerson(s, args[1], admin, cli.Source(cmd))
 			if err != nil {
 				return err
 			}
-			defer s.Close()
-			tok, err := api.AddPerson(s, args[1], admin, source(cmd))
-			if err != nil {
-				return err
-			}
-			outf(cmd, "%s\n", tok)
-			infof(cmd, "added %s; the line above is their token, shown only this once\n", args[1])
+			cli.Out(cmd, "%s\n", tok)
+			cli.Info(cmd, "added %s; the line above is their token, shown only this once\n", args[1])
 			return nil
-		},
+		}),
 	}
 	c.Flags().BoolVar(&admin, "admin", false, "the person may use the board and the team's routes")
 	return c
@@ -47,19 +44,14 @@ func newPeopleTokenCmd() *cobra.Command {
 		Short:   "Issue another token for a person (shown once)",
 		Example: helpExample("people-token"),
 		Args:    cobra.ExactArgs(2),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
+			tok, err := api.NewToken(s, args[1], cli.Source(cmd))
 			if err != nil {
 				return err
 			}
-			defer s.Close()
-			tok, err := api.NewToken(s, args[1], source(cmd))
-			if err != nil {
-				return err
-			}
-			outf(cmd, "%s\n", tok)
+			cli.Out(cmd, "%s\n", tok)
 			return nil
-		},
+		}),
 	}
 }
 
@@ -75,31 +67,26 @@ func newPeopleRevokeCmd() *cobra.Command {
 				return cobra.ExactArgs(1)(cmd, args)
 			}
 			if len(args) != 2 {
-				return usageErrorf("revoke needs DIR and a TOKEN (or DIR --person NAME)")
+				return cli.Usagef("revoke needs DIR and a TOKEN (or DIR --person NAME)")
 			}
 			return nil
 		},
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
 			if person != "" {
-				n, err := api.RevokePerson(s, person, source(cmd))
+				n, err := api.RevokePerson(s, person, cli.Source(cmd))
 				if err != nil {
 					return err
 				}
-				outf(cmd, "revoked %d token(s) of %s\n", n, person)
+				cli.Out(cmd, "revoked %d token(s) of %s\n", n, person)
 				return nil
 			}
-			who, err := api.RevokeToken(s, args[1], source(cmd))
+			who, err := api.RevokeToken(s, args[1], cli.Source(cmd))
 			if err != nil {
 				return err
 			}
-			outf(cmd, "revoked a token of %s\n", who)
+			cli.Out(cmd, "revoked a token of %s\n", who)
 			return nil
-		},
+		}),
 	}
 	c.Flags().StringVar(&person, "person", "", "revoke every token of this person")
 	return c
@@ -113,18 +100,13 @@ func newPeopleListCmd() *cobra.Command {
 		Long:    helpLong("people-list"),
 		Example: helpExample("people-list"),
 		Args:    cobra.ExactArgs(1),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
 			rows, err := api.Roster(s)
 			if err != nil {
 				return err
 			}
-			return show(cmd, asJSON, rows, api.RosterText(rows))
-		},
+			return cli.Show(cmd, asJSON, rows, api.RosterText(rows))
+		}),
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c

@@ -13,6 +13,8 @@ import (
 
 	"handoff"
 	"handoff/ingest"
+	"handoff/internal/cli"
+	"handoff/store"
 )
 
 func init() {
@@ -34,7 +36,7 @@ func newReferenceAddCmd() *cobra.Command {
 		Args:    cobra.ExactArgs(2),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := handoff.CheckReferenceName(name); err != nil {
-				return usageErrorf("%v", err)
+				return cli.Usagef("%v", err)
 			}
 			path := args[1]
 			ff := ingest.Format(format)
@@ -42,7 +44,7 @@ func newReferenceAddCmd() *cobra.Command {
 				ff = ingest.GuessFormat(path, false)
 			}
 			if ff != ingest.CSV && ff != ingest.JSONL {
-				return usageErrorf("cannot read a reference from %s: use a .csv or .jsonl file, or --format csv|jsonl", path)
+				return cli.Usagef("cannot read a reference from %s: use a .csv or .jsonl file, or --format csv|jsonl", path)
 			}
 			s, err := openStore(args[0])
 			if err != nil {
@@ -58,7 +60,7 @@ func newReferenceAddCmd() *cobra.Command {
 			if err != nil {
 				return err
 			}
-			if err := s.PutReference(*ref, replace, source(cmd)); err != nil {
+			if err := s.PutReference(*ref, replace, cli.Source(cmd)); err != nil {
 				var re *handoff.RowError
 				if errors.As(err, &re) {
 					return ingest.RowAt(locs, re)
@@ -69,8 +71,8 @@ func newReferenceAddCmd() *cobra.Command {
 			if ref.Kind() == handoff.ReferenceParents {
 				what = "parent scores"
 			}
-			outf(cmd, "reference %s: %d %s from %s, kept apart from gold (never used for training, cleaning or the verdict)\n", ref.Name, ref.Len(), what, filepath.Base(path))
-			hintf(cmd, "next: loop compare %s --reference %s\n", args[0], ref.Name)
+			cli.Out(cmd, "reference %s: %d %s from %s, kept apart from gold (never used for training, cleaning or the verdict)\n", ref.Name, ref.Len(), what, filepath.Base(path))
+			cli.Hint(cmd, "next: loop compare %s --reference %s\n", args[0], ref.Name)
 			return nil
 		},
 	}
@@ -89,12 +91,7 @@ func newReferenceListCmd() *cobra.Command {
 		Long:    helpLong("reference-list"),
 		Example: helpExample("reference-list"),
 		Args:    cobra.ExactArgs(1),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
 			refs, err := s.References()
 			if err != nil {
 				return err
@@ -111,10 +108,10 @@ func newReferenceListCmd() *cobra.Command {
 				for _, r := range refs {
 					out = append(out, row{r.Name, r.Kind(), r.Len(), r.Source, stamp(r)})
 				}
-				return printJSON(cmd, out)
+				return cli.JSON(cmd, out)
 			}
 			if len(refs) == 0 {
-				outf(cmd, "no reference codings yet; add one with `loop reference add %s FILE --name NAME`\n", args[0])
+				cli.Out(cmd, "no reference codings yet; add one with `loop reference add %s FILE --name NAME`\n", args[0])
 				return nil
 			}
 			var b strings.Builder
@@ -124,9 +121,9 @@ func newReferenceListCmd() *cobra.Command {
 				fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\n", r.Name, r.Kind(), r.Len(), r.Source, stamp(r))
 			}
 			tw.Flush()
-			outf(cmd, "%s", b.String())
+			cli.Out(cmd, "%s", b.String())
 			return nil
-		},
+		}),
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c

@@ -9,6 +9,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff/export"
+	"handoff/internal/cli"
 	"handoff/learner"
 	"handoff/round"
 	"handoff/store"
@@ -38,24 +39,24 @@ temperature scaling, and stores the model.`,
   loop train proj --features image --learner forest --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over, err := checkedOverrides(cmd)
+			over, err := cli.Overrides(cmd)
 			if err != nil {
 				return err
 			}
 			return onStore(cmd, args[0], "training", func(s *store.Store) error {
-				rc, err := projectConfig(s, over)
+				rc, err := cli.ProjectConfig(s, over)
 				if err != nil {
 					return err
 				}
-				r, err := round.Train(s, rc.Train, source(cmd))
+				r, err := round.Train(s, rc.Train, cli.Source(cmd))
 				if err != nil {
 					return err
 				}
-				return show(cmd, asJSON, r, r.Text())
+				return cli.Show(cmd, asJSON, r, r.Text())
 			})
 		},
 	}
-	bindSettings(c, trainKeys...)
+	cli.BindSettings(c, cli.TrainKeys...)
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c
 }
@@ -108,24 +109,24 @@ yet — a question added later — on items labelled for the others.`,
   loop round proj --force --json`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over, err := checkedOverrides(cmd)
+			over, err := cli.Overrides(cmd)
 			if err != nil {
 				return err
 			}
 			return onStore(cmd, args[0], "round", func(s *store.Store) error {
-				r, err := round.RunWith(s, round.RunOptions{Overrides: over, Force: force}, source(cmd))
+				r, err := round.RunWith(s, round.RunOptions{Overrides: over, Force: force}, cli.Source(cmd))
 				if errors.Is(err, round.ErrNoNewLabels) {
-					outf(cmd, "round: %v\n", err)
+					cli.Out(cmd, "round: %v\n", err)
 					return nil
 				}
 				if err != nil {
-					return settingUsage(err)
+					return cli.SettingUsage(err)
 				}
-				return show(cmd, asJSON, r, r.Text(args[0], over))
+				return cli.Show(cmd, asJSON, r, r.Text(args[0], over))
 			})
 		},
 	}
-	bindSettings(c)
+	cli.BindSettings(c)
 	c.Flags().BoolVar(&force, "force", false, "run the round even when no label is new since the last one (it is then not a new look)")
 	c.Flags().BoolVar(&asJSON, "json", false, "print the round as JSON")
 	return c
@@ -170,22 +171,22 @@ round.`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if format != "csv" && format != "jsonl" {
-				return usageErrorf("--format %q: want csv or jsonl", format)
+				return cli.Usagef("--format %q: want csv or jsonl", format)
 			}
 			if cmd.Flags().Changed("audit") && cfg.Audit < 1 {
-				return usageErrorf("--audit %d: want a number of items ≥ 1", cfg.Audit)
+				return cli.Usagef("--audit %d: want a number of items ≥ 1", cfg.Audit)
 			}
 			var err error
-			if cfg.Overrides, err = checkedOverrides(cmd); err != nil {
+			if cfg.Overrides, err = cli.Overrides(cmd); err != nil {
 				return err
 			}
 			if cfg.BelowThreshold || cfg.Audit > 0 {
 				if len(cfg.Overrides) > 1 || len(cfg.Overrides) == 1 && cfg.Overrides[0].Key != "batch" {
-					return usageErrorf("--audit and --below-threshold take no batch settings but -n")
+					return cli.Usagef("--audit and --below-threshold take no batch settings but -n")
 				}
 				if len(cfg.Overrides) == 1 {
 					if cfg.Audit > 0 {
-						return usageErrorf("give the audit's size with --audit N, not -n")
+						return cli.Usagef("give the audit's size with --audit N, not -n")
 					}
 					probe := round.DefaultConfig() // -n is checked: it sets batch
 					probe.Set("batch", cfg.Overrides[0].Value)
@@ -195,22 +196,22 @@ round.`,
 			}
 			var b []round.BatchItem
 			err = onStore(cmd, args[0], "", func(s *store.Store) (err error) {
-				b, err = round.Next(s, cfg, source(cmd))
-				return settingUsage(err)
+				b, err = round.Next(s, cfg, cli.Source(cmd))
+				return cli.SettingUsage(err)
 			})
 			if err != nil {
 				return err
 			}
-			if err := writeOutput(cmd, out, func(w io.Writer) error { return export.WriteBatch(w, format, b) }); err != nil {
+			if err := cli.Write(cmd, out, func(w io.Writer) error { return export.WriteBatch(w, format, b) }); err != nil {
 				return err
 			}
 			if out != "" && out != "-" {
-				infof(cmd, "wrote %d items to %s (%s)\n", len(b), out, round.Reasons(b))
+				cli.Info(cmd, "wrote %d items to %s (%s)\n", len(b), out, round.Reasons(b))
 			}
 			return nil
 		},
 	}
-	bindSettings(c, "batch", "shares", "strategy", "diversity", "density", "balanced", "seed")
+	cli.BindSettings(c, "batch", "shares", "strategy", "diversity", "density", "balanced", "seed")
 	fl := c.Flags()
 	fl.IntVar(&cfg.Audit, "audit", 0, "instead: this many random machine-labelled items to audit")
 	fl.BoolVar(&cfg.BelowThreshold, "below-threshold", false, "instead: the items autolabel left for people (-n caps how many)")
@@ -253,7 +254,7 @@ only.`,
   loop verdict proj --json | jq .decision`,
 		Args: cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
-			over, err := checkedOverrides(cmd)
+			over, err := cli.Overrides(cmd)
 			if err != nil {
 				return err
 			}
@@ -264,24 +265,24 @@ only.`,
 			defer s.Close()
 			rep, err := round.Verdict(s, round.VerdictConfig{Overrides: over})
 			if err != nil {
-				return settingUsage(err)
+				return cli.SettingUsage(err)
 			}
 			if html != "" {
-				if err := writeOutput(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff verdict — "+args[0]) }); err != nil {
+				if err := cli.Write(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff verdict — "+args[0]) }); err != nil {
 					return err
 				}
-				infof(cmd, "report written to %s\n", html)
+				cli.Info(cmd, "report written to %s\n", html)
 			}
 			if asJSON {
 				return rep.WriteJSON(cmd.OutOrStdout())
 			}
-			if html == "" || !quiet(cmd) {
+			if html == "" || !cli.Quiet(cmd) {
 				return rep.WriteText(cmd.OutOrStdout())
 			}
 			return nil
 		},
 	}
-	bindSettings(c, "max-error", "confidence", "median-gate", "require-stable")
+	cli.BindSettings(c, "max-error", "confidence", "median-gate", "require-stable")
 	fl := c.Flags()
 	fl.BoolVar(&asJSON, "json", false, "print JSON")
 	fl.StringVar(&html, "html", "", "also write a self-contained HTML report with plots to this file")
@@ -319,22 +320,22 @@ Machine labels are evidence, not truth: audit a random sample afterwards with
 			if threshold != "auto" {
 				x, err := strconv.ParseFloat(threshold, 64)
 				if err != nil || !(x > 0 && x <= 1) {
-					return usageErrorf("--threshold %q: want auto or a number in (0, 1]", threshold)
+					return cli.Usagef("--threshold %q: want auto or a number in (0, 1]", threshold)
 				}
 				cfg.Threshold = x
 			}
 			cfg.Force = force
 			err := onStore(cmd, args[0], "scoring", func(s *store.Store) error {
-				r, err := round.Autolabel(s, cfg, source(cmd))
+				r, err := round.Autolabel(s, cfg, cli.Source(cmd))
 				if err != nil {
 					return err
 				}
-				return show(cmd, asJSON, r, r.Text())
+				return cli.Show(cmd, asJSON, r, r.Text())
 			})
 			if err != nil || asJSON {
 				return err
 			}
-			hintf(cmd, "  next: `loop next %s --audit 100` to measure the real error\n", args[0])
+			cli.Hint(cmd, "  next: `loop next %s --audit 100` to measure the real error\n", args[0])
 			return nil
 		},
 	}
@@ -371,11 +372,11 @@ elsewhere (see beam/).`,
 			if r.Verdict != nil && r.Verdict.Threshold.Found {
 				m.Cutoff = r.Verdict.Threshold.Threshold
 			}
-			if err := writeOutput(cmd, args[1], func(w io.Writer) error { return learner.WriteMachine(w, m) }); err != nil {
+			if err := cli.Write(cmd, args[1], func(w io.Writer) error { return learner.WriteMachine(w, m) }); err != nil {
 				return err
 			}
-			infof(cmd, "model %s written to %s (threshold %.4g)\n", m.Version(), args[1], m.Cutoff)
-			return s.Record(source(cmd), "model.export", fmt.Sprintf("%s to %s", m.Version(), args[1]))
+			cli.Info(cmd, "model %s written to %s (threshold %.4g)\n", m.Version(), args[1], m.Cutoff)
+			return s.Record(cli.Source(cmd), "model.export", fmt.Sprintf("%s to %s", m.Version(), args[1]))
 		},
 	})
 	return c

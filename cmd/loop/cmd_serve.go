@@ -13,6 +13,7 @@ import (
 
 	"handoff/api"
 	"handoff/internal/beside"
+	"handoff/internal/cli"
 )
 
 func init() { register(newServeCmd) }
@@ -32,7 +33,7 @@ func newServeCmd() *cobra.Command {
 			// 0 in the flags means none (or no limit); the API's zero means
 			// its default.
 			if err := cfg.FromFlags(); err != nil {
-				return usageErrorf("%v", err)
+				return cli.Usagef("%v", err)
 			}
 			dir := args[0]
 			s, err := openStore(dir)
@@ -66,14 +67,14 @@ func newServeCmd() *cobra.Command {
 
 			ctx, stop := signal.NotifyContext(cmd.Context(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
-			outf(cmd, "serving %s at http://%s (labelling page /label, board /board, API /api/v1)\n", dir, ln.Addr())
+			cli.Out(cmd, "serving %s at http://%s (labelling page /label, board /board, API /api/v1)\n", dir, ln.Addr())
 			err = sv.Serve(ctx, ln)
 			sctx, cancel := context.WithTimeout(context.Background(), 10*time.Second)
 			defer cancel()
 			if serr := ch.Close(sctx); serr != nil && err == nil {
 				err = serr
 			}
-			infof(cmd, "stopped\n")
+			cli.Info(cmd, "stopped\n")
 			return err
 		},
 	}

@@ -6,6 +6,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/internal/cli"
 	"handoff/plan"
 	"handoff/sim"
 )
@@ -32,7 +33,7 @@ func newSimulateCmd() *cobra.Command {
 			for _, f := range strings.Split(lpi, ",") {
 				n, err := strconv.Atoi(strings.TrimSpace(f))
 				if err != nil || n < 1 {
-					return usageErrorf("--labels-per-item %q: want a comma-separated list of positive whole numbers", lpi)
+					return cli.Usagef("--labels-per-item %q: want a comma-separated list of positive whole numbers", lpi)
 				}
 				cfg.LabelsPerItem = append(cfg.LabelsPerItem, n)
 			}
@@ -40,7 +41,7 @@ func newSimulateCmd() *cobra.Command {
 				for _, f := range strings.Split(prevalence, ",") {
 					x, err := strconv.ParseFloat(strings.TrimSpace(f), 64)
 					if err != nil {
-						return usageErrorf("--prevalence %q: want comma-separated shares", prevalence)
+						return cli.Usagef("--prevalence %q: want comma-separated shares", prevalence)
 					}
 					spec.Prevalence = append(spec.Prevalence, x)
 				}
@@ -53,18 +54,18 @@ func newSimulateCmd() *cobra.Command {
 				a, err1 := strconv.Atoi(strings.TrimSpace(lo))
 				b, err2 := strconv.Atoi(strings.TrimSpace(hi))
 				if err1 != nil || err2 != nil || a < 1 || b < a {
-					return usageErrorf("--labels-per-annotator %q: want MIN-MAX (e.g. 10-70) or one whole number ≥ 1", perAnn)
+					return cli.Usagef("--labels-per-annotator %q: want MIN-MAX (e.g. 10-70) or one whole number ≥ 1", perAnn)
 				}
 				spec.MinLabels, spec.MaxLabels = a, b
 			}
 			for _, sh := range shared {
 				f := strings.Split(sh, ":")
 				if len(f) != 3 {
-					return usageErrorf("--shared %q: want FROM:TO:RATE, e.g. c1:c2:0.3", sh)
+					return cli.Usagef("--shared %q: want FROM:TO:RATE, e.g. c1:c2:0.3", sh)
 				}
 				rate, err := strconv.ParseFloat(f[2], 64)
 				if err != nil {
-					return usageErrorf("--shared %q: rate %q is not a number", sh, f[2])
+					return cli.Usagef("--shared %q: rate %q is not a number", sh, f[2])
 				}
 				spec.Shared = append(spec.Shared, sim.Shared{From: f[0], To: f[1], Rate: rate})
 			}
@@ -72,20 +73,20 @@ func newSimulateCmd() *cobra.Command {
 				probe := spec
 				probe.LabelsPerItem = cfg.LabelsPerItem[0]
 				if err := probe.Validate(); err != nil {
-					return usageErrorf("%v", err)
+					return cli.Usagef("%v", err)
 				}
 			}
 			cfg.Spec = spec
-			bar := newProgress(cmd, -1, "simulating")
+			bar := cli.Progress(cmd, -1, "simulating")
 			cells, err := plan.Redundancy(cfg)
 			bar.Finish()
 			if err != nil {
-				return usageErrorf("%v", err)
+				return cli.Usagef("%v", err)
 			}
 			if asJSON {
-				return printJSON(cmd, cells)
+				return cli.JSON(cmd, cells)
 			}
-			outf(cmd, "%s", plan.RedundancyText(cells, cfg))
+			cli.Out(cmd, "%s", plan.RedundancyText(cells, cfg))
 			return nil
 		},
 	}

@@ -5,6 +5,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/internal/cli"
 	"handoff/round"
 	"handoff/store"
 )
@@ -35,14 +36,14 @@ the one ` + "`loop demo`" + ` builds), it reports each project and the totals.`,
 				if err != nil {
 					return err
 				}
-				return show(cmd, asJSON, w, w.Text())
+				return cli.Show(cmd, asJSON, w, w.Text())
 			}
 			return onStore(cmd, args[0], "", func(s *store.Store) error {
 				st, err := round.ProjectStatus(s, sections)
 				if err != nil {
 					return err
 				}
-				return show(cmd, asJSON, st, st.Text())
+				return cli.Show(cmd, asJSON, st, st.Text())
 			})
 		},
 	}

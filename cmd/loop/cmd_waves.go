@@ -2,6 +2,8 @@ package main
 
 import (
 	"fmt"
+	"handoff/internal/cli"
+	"handoff/store"
 	"strings"
 	"text/tabwriter"
 
@@ -21,25 +23,20 @@ func newWavesCmd() *cobra.Command {
 		Long:    helpLong("waves"),
 		Example: helpExample("waves"),
 		Args:    cobra.ExactArgs(1),
-		RunE: func(cmd *cobra.Command, args []string) error {
-			s, err := openStore(args[0])
-			if err != nil {
-				return err
-			}
-			defer s.Close()
+		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
 			if open {
-				w, err := s.OpenWave(source(cmd))
+				w, err := s.OpenWave(cli.Source(cmd))
 				if err != nil {
 					return err
 				}
-				infof(cmd, "wave %d opened: labels added without --wave, and labels sent through the service, now belong to it\n", w)
+				cli.Info(cmd, "wave %d opened: labels added without --wave, and labels sent through the service, now belong to it\n", w)
 			}
 			ws, err := s.Waves()
 			if err != nil {
 				return err
 			}
 			if asJSON {
-				return printJSON(cmd, ws)
+				return cli.JSON(cmd, ws)
 			}
 			var b strings.Builder
 			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
@@ -52,9 +49,9 @@ func newWavesCmd() *cobra.Command {
 				fmt.Fprintf(tw, "%d\t%d\t%d\t%s\n", w.Wave, w.Labels, w.Items, mark)
 			}
 			tw.Flush()
-			outf(cmd, "%s", b.String())
+			cli.Out(cmd, "%s", b.String())
 			return nil
-		},
+		}),
 	}
 	c.Flags().BoolVar(&open, "open", false, "open the next wave")
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")

@@ -11,8 +11,6 @@ package main
 
 import (
 	"context"
-	"errors"
-	"fmt"
 	"io"
 	"os"
 	"slices"
@@ -20,6 +18,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"handoff/internal/cli"
 	"handoff/internal/termsafe"
 )
 
@@ -46,10 +45,6 @@ func register(f func() *cobra.Command) { commands = append(commands, f) }
 func registerUnder(parent string, f func() *cobra.Command) {
 	subcommands[parent] = append(subcommands[parent], f)
 }
-
-type ctxKey int
-
-const invocationKey ctxKey = 0
 
 // newRoot builds the whole command tree.
 func newRoot() *cobra.Command {
@@ -94,7 +89,7 @@ Try it on an invented scenario first: loop demo /tmp/handoff-demo`,
 	for _, f := range commands {
 		root.AddCommand(f())
 	}
-	markRuntimeErrors(root)
+	cli.MarkRuntimeErrors(root)
 	fillGroupExamples(root)
 	return root
 }
@@ -124,27 +119,8 @@ func newGroup(name string) *cobra.Command {
 		Short: short,
 		Args:  cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			return usageErrorf("%s needs a subcommand; see `%s --help`", cmd.CommandPath(), cmd.CommandPath())
+			return cli.Usagef("%s needs a subcommand; see `%s --help`", cmd.CommandPath(), cmd.CommandPath())
 		},
-	}
-}
-
-// markRuntimeErrors wraps every RunE so that its errors count as runtime
-// errors (exit 1) unless they are usage errors already.
-func markRuntimeErrors(c *cobra.Command) {
-	if c.RunE != nil {
-		f := c.RunE
-		c.RunE = func(cmd *cobra.Command, args []string) error {
-			err := f(cmd, args)
-			var u *usageError
-			if err == nil || errors.As(err, &u) {
-				return err
-			}
-			return &runtimeError{err}
-		}
-	}
-	for _, sub := range c.Commands() {
-		markRuntimeErrors(sub)
 	}
 }
 
@@ -164,33 +140,5 @@ func runIn(ctx context.Context, args []string, stdout, stderr io.Writer) int {
 	root.SetArgs(args)
 	root.SetOut(stdout)
 	root.SetErr(stderr)
-	ctx = context.WithValue(ctx, invocationKey, "loop "+strings.Join(args, " "))
-	err := root.ExecuteContext(ctx)
-	if err == nil {
-		return 0
-	}
-	var rt *runtimeError
-	if errors.As(err, &rt) {
-		fmt.Fprintf(stderr, "loop: %v\n", rt.err)
-		return 1
-	}
-	fmt.Fprintf(stderr, "loop: %v\n", err)
-	fmt.Fprintln(stderr, "Run `loop --help` (or `loop COMMAND --help`) for usage.")
-	return 2
+	return cli.ExitCode(root.ExecuteContext(cli.WithInvocation(ctx, "loop "+strings.Join(args, " "))), stderr)
 }
-
-// usageError is a mistake in how loop was called: exit code 2.
-type usageError struct{ msg string }
-
-func (e *usageError) Error() string { return e.msg }
-
-// usageErrorf returns a usage error (exit code 2).
-func usageErrorf(format string, a ...any) error {
-	return &usageError{fmt.Sprintf(format, a...)}
-}
-
-// runtimeError is a failure while doing the work: exit code 1.
-type runtimeError struct{ err error }
-
-func (e *runtimeError) Error() string { return e.err.Error() }
-func (e *runtimeError) Unwrap() error { return e.err }

@@ -1,4 +1,4 @@
-package main
+package cli
 
 import (
 	"errors"
@@ -44,10 +44,10 @@ var offFlags = []struct{ flag, key, usage string }{
 	{"no-cleaning", "cleaning", "apply no cleaning rule at all (setting cleaning off)"},
 }
 
-// bindSettings adds the flags for the named setting keys to c (all of them
+// BindSettings adds the flags for the named setting keys to c (all of them
 // when keys is empty), each documented with its key, range and built-in
 // default.
-func bindSettings(c *cobra.Command, keys ...string) {
+func BindSettings(c *cobra.Command, keys ...string) {
 	want := func(k string) bool {
 		if len(keys) == 0 {
 			return true
@@ -106,21 +106,21 @@ func overrides(cmd *cobra.Command) []round.Override {
 	return out
 }
 
-// checkedOverrides returns the command line's settings after checking each
+// Overrides returns the command line's settings after checking each
 // value against its range (a usage error, exit 2, names the first bad one),
 // before anything is opened.
-func checkedOverrides(cmd *cobra.Command) ([]round.Override, error) {
+func Overrides(cmd *cobra.Command) ([]round.Override, error) {
 	over := overrides(cmd)
 	probe := round.DefaultConfig()
 	for _, o := range over {
 		if err := probe.Set(o.Key, o.Value); err != nil {
-			return nil, settingUsage(fmt.Errorf("--%s: %w", flagOf(o.Key), err))
+			return nil, SettingUsage(fmt.Errorf("--%s: %w", FlagOf(o.Key), err))
 		}
 	}
 	return over, nil
 }
 
-func flagOf(key string) string {
+func FlagOf(key string) string {
 	for _, f := range valueFlags {
 		if f.key == key {
 			return f.flag
@@ -134,24 +134,24 @@ func flagOf(key string) string {
 	return key
 }
 
-// settingUsage turns a setting out of range into a usage error (exit 2).
-func settingUsage(err error) error {
+// SettingUsage turns a setting out of range into a usage error (exit 2).
+func SettingUsage(err error) error {
 	var se *round.SettingError
 	if errors.As(err, &se) {
-		return usageErrorf("%v", err)
+		return Usagef("%v", err)
 	}
 	return err
 }
 
-// cleaningKeys are the settings of the cleaning rules.
-var cleaningKeys = []string{"cleaning", "first-only", "repeat-offenders", "repeat-items", "repeat-times", "gold-screen", "gold-min-accuracy", "gold-min-items", "min-seconds", "straight-lining", "drop-spammers", "spammer-below", "spammer-min-labels"}
+// CleaningKeys are the settings of the cleaning rules.
+var CleaningKeys = []string{"cleaning", "first-only", "repeat-offenders", "repeat-items", "repeat-times", "gold-screen", "gold-min-accuracy", "gold-min-items", "min-seconds", "straight-lining", "drop-spammers", "spammer-below", "spammer-min-labels"}
 
-// trainKeys are the settings of the training.
-var trainKeys = []string{"learner", "features", "lambda", "folds", "seed"}
+// TrainKeys are the settings of the training.
+var TrainKeys = []string{"learner", "features", "lambda", "folds", "seed"}
 
-// projectConfig returns the project's settings with the command line's
+// ProjectConfig returns the project's settings with the command line's
 // (checkedOverrides) applied for this run.
-func projectConfig(s *store.Store, over []round.Override) (round.Config, error) {
+func ProjectConfig(s *store.Store, over []round.Override) (round.Config, error) {
 	c, _, err := round.Settings(s, over...)
-	return c, settingUsage(err)
+	return c, SettingUsage(err)
 }
