@@ -316,6 +316,22 @@ func TestTreeAddQuestionAsked(t *testing.T) {
 		When: &handoff.Condition{Question: "topic", In: []string{"a"}}}, "test"); err != nil {
 		t.Fatal(err)
 	}
+	// Before another round, `loop next` already asks it, and asking again
+	// gives the same batch.
+	n1, err := Next(st, NextConfig{}, "test")
+	if err != nil {
+		t.Fatal(err)
+	}
+	n2, _ := Next(st, NextConfig{}, "test")
+	early := 0
+	for _, b := range n1 {
+		if b.Reason == ReasonQuestion && slices.Equal(b.Questions, []string{"urgent"}) {
+			early++
+		}
+	}
+	if early == 0 || early > 20 || len(n1) != 40 || !reflect.DeepEqual(n1, n2) {
+		t.Errorf("next after add-question: %d of %d items ask it; the same again: %v", early, len(n1), reflect.DeepEqual(n1, n2))
+	}
 	r, err := RunWith(st, RunOptions{Config: ptr(treeConfig()), Force: true}, "test")
 	if err != nil {
 		t.Fatal(err)

@@ -104,7 +104,9 @@ func (c *current) labelCounts() []int {
 }
 
 // Next returns the next batch: the latest round's batch as it chose it (the
-// same items with the same reasons), or with NextConfig.Overrides a batch
+// same items with the same reasons; in a question tree with the asks of a
+// question added since the round, stored as the round's batch), or with
+// NextConfig.Overrides a batch
 // picked again from the latest round's scores, or an audit, or the items
 // below the threshold. An audit batch is remembered, so that the verdict can
 // report the error of machine labels once people have labelled them.
@@ -153,7 +155,7 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 		}
 		return out, nil
 	case len(cfg.Overrides) == 0:
-		return c.batch, nil
+		return c.withAdded(st, source)
 	}
 	// Pick again with the changed batch settings.
 	rc = c.r.Config
