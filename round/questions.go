@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"strings"
 
+	"handoff"
 	"handoff/store"
 	"handoff/verdict"
 )
@@ -114,4 +115,73 @@ func verdictWords(v *verdict.Report) (string, string) {
 		return "GO", fmt.Sprintf("error bound %.3g ≤ max-error %.3g at threshold %.3g", d.Bound, v.Settings.MaxError, d.Threshold)
 	}
 	return "NOT YET", strings.Join(d.Reasons, "; ")
+}
+
+// UnknownQuestion is the error of a question key the codebook does not
+// have; it names the questions it has.
+type UnknownQuestion struct {
+	Key  string
+	Keys []string
+}
+
+func (e *UnknownQuestion) Error() string {
+	return fmt.Sprintf("--question %q: not a question of the codebook (questions: %s)", e.Key, strings.Join(e.Keys, ", "))
+}
+
+// EachQuestion runs report on the question named key, or, when key is "",
+// on every question of cb with parents before their follow-ups
+// (QuestionOrder). It returns the one report, or the reports in that order
+// when there are several, and their text: in a question tree, each
+// question's section is headed by its key and when it is asked. report
+// gets the question's key and returns its report and text.
+func EachQuestion[R any](cb handoff.Codebook, key string, report func(key string) (R, string, error)) (any, string, error) {
+	qs := QuestionOrder(cb)
+	if key != "" {
+		q, ok := cb.QuestionIndex(key)
+		if !ok {
+			e := &UnknownQuestion{Key: key}
+			for _, x := range cb.All() {
+				e.Keys = append(e.Keys, x.Key)
+			}
+			return nil, "", e
+		}
+		qs = []int{q}
+	}
+	var (
+		reps []R
+		text strings.Builder
+	)
+	for _, q := range qs {
+		r, t, err := report(cb.All()[q].Key)
+		if err != nil {
+			return nil, "", err
+		}
+		reps = append(reps, r)
+		if cb.Tree() {
+			text.WriteString(questionHeader(cb, q, text.Len() > 0))
+		}
+		text.WriteString(t)
+	}
+	if len(reps) == 1 {
+		return reps[0], text.String(), nil
+	}
+	return reps, text.String(), nil
+}
+
+// questionHeader names question q of a tree and when it is asked, as the
+// first line of its section (after a blank line when gap).
+func questionHeader(cb handoff.Codebook, q int, gap bool) string {
+	var b strings.Builder
+	if gap {
+		b.WriteString("\n")
+	}
+	x := cb.All()[q]
+	fmt.Fprintf(&b, "question %s", x.Key)
+	if p := cb.Parent(q); p >= 0 {
+		fmt.Fprintf(&b, " (asked when %s is %s)", cb.All()[p].Key, strings.Join(x.When.In, " or "))
+	} else if q > 0 {
+		b.WriteString(" (asked of every item)")
+	}
+	b.WriteString(":\n")
+	return b.String()
 }

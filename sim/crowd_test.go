@@ -365,3 +365,26 @@ func TestConfusionMatrices(t *testing.T) {
 		t.Errorf("ordinal mistakes: %.2f on neighbours, %.2f further away; want mostly neighbours", near, far)
 	}
 }
+
+func TestParseCrowdFlags(t *testing.T) {
+	for _, tc := range []struct {
+		in     string
+		lo, hi int
+		ok     bool
+	}{{"10-70", 10, 70, true}, {"5", 5, 5, true}, {" 3 - 9", 3, 9, true}, {"70-10", 0, 0, false}, {"0", 0, 0, false}, {"a-b", 0, 0, false}} {
+		lo, hi, err := ParseLabelRange(tc.in)
+		if (err == nil) != tc.ok || lo != tc.lo || hi != tc.hi {
+			t.Errorf("ParseLabelRange(%q) = %d, %d, %v", tc.in, lo, hi, err)
+		}
+	}
+	for _, tc := range []struct {
+		in   string
+		want Shared
+		ok   bool
+	}{{"c1:c2:0.3", Shared{"c1", "c2", 0.3}, true}, {"c1:c2", Shared{}, false}, {"c1:c2:x", Shared{}, false}} {
+		got, err := ParseShared(tc.in)
+		if (err == nil) != tc.ok || got != tc.want {
+			t.Errorf("ParseShared(%q) = %+v, %v", tc.in, got, err)
+		}
+	}
+}

@@ -1,9 +1,6 @@
 package main
 
 import (
-	"fmt"
-	"strings"
-
 	"github.com/spf13/cobra"
 
 	"handoff/internal/cli"
@@ -36,34 +33,17 @@ func newAgreementCmd() *cobra.Command {
 					return err
 				}
 				cfg.Rules, cfg.NoCleaning, cfg.Seed = rc.Consensus.Rules, rc.Consensus.NoCleaning, rc.Seed
-				cb := s.Codebook()
-				if !cb.Tree() && question == "" {
-					r, err := round.Agreement(s, cfg)
+				v, text, err := round.EachQuestion(s.Codebook(), question, func(key string) (*round.AgreementReport, string, error) {
+					rep, err := round.QuestionAgreement(s, key, cfg)
 					if err != nil {
-						return err
+						return nil, "", err
 					}
-					return cli.Show(cmd, asJSON, r, r.Text())
-				}
-				qs, err := questionsOf(cb, question)
+					return rep, rep.Text(), nil
+				})
 				if err != nil {
-					return err
+					return cli.SettingUsage(err)
 				}
-				var (
-					reps []*round.AgreementReport
-					text strings.Builder
-				)
-				for _, q := range qs {
-					r, err := round.QuestionAgreement(s, cb.All()[q].Key, cfg)
-					if err != nil {
-						return err
-					}
-					reps = append(reps, r)
-					fmt.Fprintf(&text, "%s%s", questionHeader(cb, q, text.Len() > 0), r.Text())
-				}
-				if len(reps) == 1 {
-					return cli.Show(cmd, asJSON, reps[0], text.String())
-				}
-				return cli.Show(cmd, asJSON, reps, text.String())
+				return cli.Show(cmd, asJSON, v, text)
 			})
 		},
 	}

@@ -8,8 +8,10 @@ import (
 	"github.com/spf13/cobra"
 
 	"handoff"
+	"handoff/compare"
 	"handoff/internal/cli"
 	"handoff/round"
+	"handoff/store"
 )
 
 func init() { register(newCompareCmd) }
@@ -40,37 +42,12 @@ func newCompareCmd() *cobra.Command {
 					return cli.Usagef("--waves %q: name at least two waves to compare", waves)
 				}
 			}
-			s, err := openStore(args[0])
-			if err != nil {
+			var rep *compare.Report
+			if err := onStore(cmd, args[0], "comparing", func(s *store.Store) (err error) { rep, err = round.Compare(s, cfg); return err }); err != nil {
 				return err
 			}
-			defer s.Close()
-			bar := cli.Progress(cmd, -1, "comparing")
-			rep, err := round.Compare(s, cfg)
-			bar.Finish()
-			if err != nil {
-				return err
-			}
-			if html != "" {
-				if err := cli.Write(cmd, html, func(w io.Writer) error { return rep.WriteHTML(w, "Handoff comparisons — "+args[0]) }); err != nil {
-					return err
-				}
-			}
-			if asJSON {
-				return cli.JSON(cmd, rep)
-			}
-			var b strings.Builder
-			if err := rep.WriteText(&b); err != nil {
-				return err
-			}
-			if html == "-" {
-				return nil
-			}
-			cli.Out(cmd, "%s", b.String())
-			if html != "" {
-				cli.Info(cmd, "report with scatter plots written to %s\n", html)
-			}
-			return nil
+			return cli.Report(cmd, html, "report with scatter plots", func(w io.Writer) error { return rep.WriteHTML(w, "Handoff comparisons — "+args[0]) },
+				asJSON, rep, rep.WriteText)
 		},
 	}
 	f := c.Flags()

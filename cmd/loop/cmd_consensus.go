@@ -1,12 +1,8 @@
 package main
 
 import (
-	"fmt"
-	"strings"
-
 	"github.com/spf13/cobra"
 
-	"handoff"
 	"handoff/internal/cli"
 	"handoff/round"
 	"handoff/store"
@@ -44,35 +40,17 @@ func newConsensusCmd() *cobra.Command {
 					return cli.Usagef("--reference-stratum needs --debias COVARIATE")
 				}
 				cc.Smoothing, cc.Strata, cc.Uncertain = cfg.Smoothing, cfg.Strata, cfg.Uncertain
-				cb := s.Codebook()
-				if !cb.Tree() && question == "" {
-					rep, err := round.Consensus(s, cc, cli.Source(cmd))
-					if err != nil {
-						return err
-					}
-					return cli.Show(cmd, asJSON, rep, rep.Text(explain))
-				}
-				qs, err := questionsOf(cb, question)
-				if err != nil {
-					return err
-				}
-				var (
-					reps []*round.ConsensusReport
-					text strings.Builder
-				)
-				for _, q := range qs {
-					key := cb.All()[q].Key
+				v, text, err := round.EachQuestion(s.Codebook(), question, func(key string) (*round.ConsensusReport, string, error) {
 					rep, err := round.QuestionConsensus(s, key, cc, cli.Source(cmd))
 					if err != nil {
-						return err
+						return nil, "", err
 					}
-					reps = append(reps, rep)
-					fmt.Fprintf(&text, "%s%s", questionHeader(cb, q, len(qs) > 1 && text.Len() > 0), rep.Text(explain))
+					return rep, rep.Text(explain), nil
+				})
+				if err != nil {
+					return cli.SettingUsage(err)
 				}
-				if len(reps) == 1 {
-					return cli.Show(cmd, asJSON, reps[0], text.String())
-				}
-				return cli.Show(cmd, asJSON, reps, text.String())
+				return cli.Show(cmd, asJSON, v, text)
 			})
 		},
 	}
@@ -85,39 +63,4 @@ func newConsensusCmd() *cobra.Command {
 	fl.BoolVar(&asJSON, "json", false, "print the full report as JSON")
 	cli.BindSettings(c, append(cli.CleaningKeys, "method", "debias", "reference-stratum", "seed")...)
 	return c
-}
-
-// questionsOf returns the questions a command works on: the one named by
-// key, or ("" ) every question with parents first.
-func questionsOf(cb handoff.Codebook, key string) ([]int, error) {
-	if key == "" {
-		return round.QuestionOrder(cb), nil
-	}
-	q, ok := cb.QuestionIndex(key)
-	if !ok {
-		var ks []string
-		for _, x := range cb.All() {
-			ks = append(ks, x.Key)
-		}
-		return nil, cli.Usagef("--question %q: not a question of the codebook (questions: %s)", key, strings.Join(ks, ", "))
-	}
-	return []int{q}, nil
-}
-
-// questionHeader names question q of a tree and when it is asked, as the
-// first line of its section (after a blank line when gap).
-func questionHeader(cb handoff.Codebook, q int, gap bool) string {
-	var b strings.Builder
-	if gap {
-		b.WriteString("\n")
-	}
-	x := cb.All()[q]
-	fmt.Fprintf(&b, "question %s", x.Key)
-	if p := cb.Parent(q); p >= 0 {
-		fmt.Fprintf(&b, " (asked when %s is %s)", cb.All()[p].Key, strings.Join(x.When.In, " or "))
-	} else if q > 0 {
-		b.WriteString(" (asked of every item)")
-	}
-	b.WriteString(":\n")
-	return b.String()
 }

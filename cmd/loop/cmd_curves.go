@@ -9,6 +9,7 @@ import (
 	"handoff/internal/cli"
 	"handoff/plan"
 	"handoff/round"
+	"handoff/verdict"
 )
 
 func init() { register(newCurvesCmd) }
@@ -52,25 +53,15 @@ func newCurvesCmd() *cobra.Command {
 			if err != nil {
 				return err
 			}
+			var rep *verdict.Report
 			if html != "" {
-				rep, err := round.Verdict(s, round.VerdictConfig{})
-				if err != nil {
+				if rep, err = round.Verdict(s, round.VerdictConfig{}); err != nil {
 					return fmt.Errorf("--html shows the curves in the latest round's verdict report: %w", err)
 				}
-				r := cmp.InReport(rep)
-				if err := cli.Write(cmd, html, func(w io.Writer) error { return r.WriteHTML(w, "Handoff learning curves — "+args[0]) }); err != nil {
-					return err
-				}
-				cli.Info(cmd, "report written to %s\n", html)
+				rep = cmp.InReport(rep)
 			}
-			if asJSON {
-				return cli.JSON(cmd, cmp)
-			}
-			if html != "" && cli.Quiet(cmd) {
-				return nil
-			}
-			cli.Out(cmd, "%s", cmp.Text())
-			return nil
+			return cli.Report(cmd, html, "report", func(w io.Writer) error { return rep.WriteHTML(w, "Handoff learning curves — "+args[0]) },
+				asJSON, cmp, func(w io.Writer) error { _, err := io.WriteString(w, cmp.Text()); return err })
 		},
 	}
 	cli.BindSettings(c, "learner", "features", "lambda", "folds")

@@ -55,7 +55,7 @@ func newServeCmd() *cobra.Command {
 			}
 			// The command channel for commands run beside the server:
 			// loopback only, with a secret in DIR/serve.json.
-			ch, err := beside.Listen(dir, "http://"+ln.Addr().String(), s, besideAllowed, runIn, func() {
+			ch, err := beside.Listen(dir, "http://"+ln.Addr().String(), s, besideServer.Allowed, runIn, func() {
 				if err := sv.Refresh(); err != nil {
 					cfg.Logf("reading the project again after a command: %v", err)
 				}

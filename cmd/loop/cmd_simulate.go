@@ -2,7 +2,6 @@ package main
 
 import (
 	"strconv"
-	"strings"
 
 	"github.com/spf13/cobra"
 
@@ -30,44 +29,27 @@ func newSimulateCmd() *cobra.Command {
 		Example: helpExample("simulate"),
 		Args:    cobra.NoArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			for _, f := range strings.Split(lpi, ",") {
-				n, err := strconv.Atoi(strings.TrimSpace(f))
-				if err != nil || n < 1 {
-					return cli.Usagef("--labels-per-item %q: want a comma-separated list of positive whole numbers", lpi)
-				}
-				cfg.LabelsPerItem = append(cfg.LabelsPerItem, n)
+			var err error
+			if cfg.LabelsPerItem, err = cli.Numbers("labels-per-item", lpi, "a comma-separated list of positive whole numbers", strconv.Atoi, func(n int) bool { return n >= 1 }); err != nil {
+				return err
 			}
 			if prevalence != "" {
-				for _, f := range strings.Split(prevalence, ",") {
-					x, err := strconv.ParseFloat(strings.TrimSpace(f), 64)
-					if err != nil {
-						return cli.Usagef("--prevalence %q: want comma-separated shares", prevalence)
-					}
-					spec.Prevalence = append(spec.Prevalence, x)
+				parse := func(f string) (float64, error) { return strconv.ParseFloat(f, 64) }
+				if spec.Prevalence, err = cli.Numbers("prevalence", prevalence, "comma-separated shares", parse, func(float64) bool { return true }); err != nil {
+					return err
 				}
 			}
 			if perAnn != "" {
-				lo, hi, ok := strings.Cut(perAnn, "-")
-				if !ok {
-					hi = lo
+				if spec.MinLabels, spec.MaxLabels, err = sim.ParseLabelRange(perAnn); err != nil {
+					return cli.Usagef("--labels-per-annotator %v", err)
 				}
-				a, err1 := strconv.Atoi(strings.TrimSpace(lo))
-				b, err2 := strconv.Atoi(strings.TrimSpace(hi))
-				if err1 != nil || err2 != nil || a < 1 || b < a {
-					return cli.Usagef("--labels-per-annotator %q: want MIN-MAX (e.g. 10-70) or one whole number ≥ 1", perAnn)
-				}
-				spec.MinLabels, spec.MaxLabels = a, b
 			}
 			for _, sh := range shared {
-				f := strings.Split(sh, ":")
-				if len(f) != 3 {
-					return cli.Usagef("--shared %q: want FROM:TO:RATE, e.g. c1:c2:0.3", sh)
-				}
-				rate, err := strconv.ParseFloat(f[2], 64)
+				x, err := sim.ParseShared(sh)
 				if err != nil {
-					return cli.Usagef("--shared %q: rate %q is not a number", sh, f[2])
+					return cli.Usagef("--shared %v", err)
 				}
-				spec.Shared = append(spec.Shared, sim.Shared{From: f[0], To: f[1], Rate: rate})
+				spec.Shared = append(spec.Shared, x)
 			}
 			if err := spec.Validate(); err != nil && cfg.LabelsPerItem != nil {
 				probe := spec

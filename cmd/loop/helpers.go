@@ -23,12 +23,12 @@ func openStore(dir string) (*store.Store, error) {
 		s.ImportChunk = importChunk
 		return s, nil
 	}
-	if err := besideError(dir); err != nil {
+	if err := besideServer.Error(dir); err != nil {
 		return nil, err
 	}
 	s, err := store.Open(dir)
 	if err != nil {
-		return nil, inUse(dir, err)
+		return nil, besideServer.InUse(dir, err)
 	}
 	s.ImportChunk = importChunk
 	return s, nil

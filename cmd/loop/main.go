@@ -128,7 +128,7 @@ func newGroup(name string) *cobra.Command {
 // exit code. A command that runs beside a server is sent to the server of
 // its project if one runs (forward, in beside.go).
 func run(args []string, stdout, stderr io.Writer) int {
-	if code, ok := forward(args, stdout, stderr); ok {
+	if code, ok := besideServer.Forward(args, stdout, stderr); ok {
 		return code
 	}
 	return runIn(context.Background(), args, stdout, stderr)

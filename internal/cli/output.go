@@ -177,3 +177,44 @@ func Done(cmd *cobra.Command, format string, a ...any) {
 		fmt.Fprintf(cmd.OutOrStdout(), format, a...)
 	}
 }
+
+// Numbers reads a comma-separated list of numbers given to flag (spaces
+// around the commas allowed) with parse, each kept only when ok says so; a
+// bad one is a usage error naming the flag and what it wants.
+func Numbers[T any](flag, s, want string, parse func(string) (T, error), ok func(T) bool) ([]T, error) {
+	var out []T
+	for _, f := range strings.Split(s, ",") {
+		x, err := parse(strings.TrimSpace(f))
+		if err != nil || !ok(x) {
+			return nil, Usagef("--%s %q: want %s", flag, s, want)
+		}
+		out = append(out, x)
+	}
+	return out, nil
+}
+
+// Report prints a report as every reporting command does. With html set,
+// writeHTML's form is written to that file whole (Write; "-" is standard
+// output) and, unless --quiet, a note on stderr says "what written to
+// FILE". Then v is printed as JSON when asJSON, or else the text form that
+// text writes unless the HTML was written with --quiet (an HTML report
+// asked for quietly is the whole result). Nothing more is printed when the
+// HTML went to standard output.
+func Report(cmd *cobra.Command, html, what string, writeHTML func(io.Writer) error, asJSON bool, v any, text func(io.Writer) error) error {
+	if html != "" {
+		if err := Write(cmd, html, writeHTML); err != nil {
+			return err
+		}
+		if html == "-" {
+			return nil
+		}
+		Info(cmd, "%s written to %s\n", what, html)
+	}
+	if asJSON {
+		return JSON(cmd, v)
+	}
+	if html != "" && Quiet(cmd) {
+		return nil
+	}
+	return text(cmd.OutOrStdout())
+}

@@ -134,10 +134,12 @@ func FlagOf(key string) string {
 	return key
 }
 
-// SettingUsage turns a setting out of range into a usage error (exit 2).
+// SettingUsage turns a setting out of range or an unknown question into
+// a usage error (exit 2).
 func SettingUsage(err error) error {
 	var se *round.SettingError
-	if errors.As(err, &se) {
+	var uq *round.UnknownQuestion
+	if errors.As(err, &se) || errors.As(err, &uq) {
 		return Usagef("%v", err)
 	}
 	return err
