@@ -8,9 +8,7 @@ import (
 	"io"
 	"math/rand/v2"
 	"net/http"
-	"os"
 	"os/exec"
-	"path/filepath"
 	"strings"
 	"sync"
 	"sync/atomic"
@@ -19,20 +17,9 @@ import (
 	"time"
 
 	"handoff"
+	"handoff/internal/testproject"
 	"handoff/store"
 )
-
-// buildLoop builds the loop command into a temporary directory.
-func buildLoop(t *testing.T) string {
-	t.Helper()
-	bin := filepath.Join(t.TempDir(), "loop")
-	cmd := exec.Command("go", "build", "-o", bin, "handoff/cmd/loop")
-	cmd.Stderr = os.Stderr
-	if err := cmd.Run(); err != nil {
-		t.Fatalf("go build handoff/cmd/loop: %v", err)
-	}
-	return bin
-}
 
 // server is a `loop serve` subprocess.
 type server struct {
@@ -82,7 +69,7 @@ func TestKillDuringLabelling(t *testing.T) {
 		annotators = 10
 		kills      = 21
 	)
-	bin := buildLoop(t)
+	bin := testproject.BuildLoop(t)
 	dir := t.TempDir()
 	st, err := store.Create(dir, testCodebook, "test")
 	if err != nil {

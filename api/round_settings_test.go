@@ -16,6 +16,7 @@ import (
 	"time"
 
 	"handoff"
+	"handoff/internal/testproject"
 	"handoff/round"
 	"handoff/sim"
 	"handoff/store"
@@ -96,7 +97,7 @@ func TestBoardAndCommandLineGiveTheSameRound(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds loop and trains two models")
 	}
-	bin := buildLoop(t)
+	bin := testproject.BuildLoop(t)
 	base := t.TempDir()
 	cli, board := filepath.Join(base, "cli"), filepath.Join(base, "board")
 	tok := demoProject(t, cli, []round.Override{{Key: "max-error", Value: "0.08"}, {Key: "batch", Value: "40"},

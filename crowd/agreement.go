@@ -528,15 +528,8 @@ func Agree(l *Labels, o AgreementOptions) (*Agreement, error) {
 		for _, f := range first[i] {
 			copy(row, counts[i*k:(i+1)*k])
 			row[f.c]--
-			best, nb, bc := 0, 0, -1
-			for c, v := range row {
-				if v > best {
-					best, nb, bc = v, 1, c
-				} else if v == best && v > 0 {
-					nb++
-				}
-			}
-			if best == 0 || nb > 1 {
+			bc, ok := uniqueMode(row)
+			if !ok {
 				continue
 			}
 			xs[f.a] = append(xs[f.a], int(f.c))
@@ -553,4 +546,21 @@ func Agree(l *Labels, o AgreementOptions) (*Agreement, error) {
 		out.LeaveOneOut = append(out.LeaveOneOut, AnnotatorAgreement{Annotator: a, Kappa: e})
 	}
 	return out, nil
+}
+
+// uniqueMode returns the class with the most counts in row when it is the
+// only one with that many and has at least one (ok false otherwise: no
+// counts, or a tie), as the others' majority of a leave-one-out comparison.
+func uniqueMode[T int | int32](row []T) (c int, ok bool) {
+	var best T
+	nb := 0
+	c = -1
+	for i, v := range row {
+		if v > best {
+			best, nb, c = v, 1, i
+		} else if v == best && v > 0 {
+			nb++
+		}
+	}
+	return c, best > 0 && nb == 1
 }

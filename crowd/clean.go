@@ -375,15 +375,8 @@ func Clean(l *Labels, gold []int, r Rules) (*Labels, *Cleaning, error) {
 				fav := cand[a]
 				copy(row, counts[int(l.Item[j])*k:][:k])
 				row[l.Class[j]]-- // the others' labels only
-				best, nb, bc := int32(0), 0, -1
-				for c, v := range row {
-					if v > best {
-						best, nb, bc = v, 1, c
-					} else if v == best && v > 0 {
-						nb++
-					}
-				}
-				if best == 0 || nb > 1 {
+				bc, ok := uniqueMode(row)
+				if !ok {
 					continue
 				}
 				x := agree[a]

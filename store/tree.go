@@ -128,14 +128,28 @@ func (t *LabelTable) Tree() bool { return t.tree }
 // question's class keys: a table of the one-question codebook cb.Sub(q).
 // The id slices are shared with t.
 func (t *LabelTable) ForQuestion(cb handoff.Codebook, q int) *LabelTable {
-	out := &LabelTable{ItemIDs: t.ItemIDs, AnnotatorIDs: t.AnnotatorIDs, Classes: cb.Sub(q).Keys()}
+	out := t.Where(func(i int) bool { return t.Question(i) == q })
+	if t.tree {
+		for k := range out.Class {
+			out.Class[k] &= 0xff
+		}
+	}
+	out.Classes, out.tree = cb.Sub(q).Keys(), false
+	return out
+}
+
+// Where returns the labels i of t for which keep(i) is true, in order,
+// with their times and seconds; the id slices and class keys are shared
+// with t.
+func (t *LabelTable) Where(keep func(i int) bool) *LabelTable {
+	out := &LabelTable{ItemIDs: t.ItemIDs, AnnotatorIDs: t.AnnotatorIDs, Classes: t.Classes, tree: t.tree}
 	for i := range t.Item {
-		if t.Question(i) != q {
+		if !keep(i) {
 			continue
 		}
 		out.Item = append(out.Item, t.Item[i])
 		out.Annotator = append(out.Annotator, t.Annotator[i])
-		out.Class = append(out.Class, uint16(t.ClassIn(i)))
+		out.Class = append(out.Class, t.Class[i])
 		if t.Time != nil {
 			out.Time = append(out.Time, t.Time[i])
 		}

@@ -17,19 +17,8 @@ import (
 	"time"
 
 	"handoff/ingest"
+	"handoff/internal/testproject"
 )
-
-// buildLoop builds the loop command into a temporary directory.
-func buildLoop(t *testing.T) string {
-	t.Helper()
-	bin := filepath.Join(t.TempDir(), "loop")
-	cmd := exec.Command("go", "build", "-o", bin, "handoff/cmd/loop")
-	cmd.Stderr = os.Stderr
-	if err := cmd.Run(); err != nil {
-		t.Fatalf("go build handoff/cmd/loop: %v", err)
-	}
-	return bin
-}
 
 // serveProcess is a `loop serve` subprocess.
 type serveProcess struct {
@@ -98,7 +87,7 @@ func TestBesideServer(t *testing.T) {
 	if testing.Short() {
 		t.Skip("builds loop and runs a server")
 	}
-	bin := buildLoop(t)
+	bin := testproject.BuildLoop(t)
 	root, _ := filepath.Abs("../..")
 	work := t.TempDir()
 	t.Chdir(work)

@@ -164,6 +164,9 @@ func TestRealTextsWithARealisticCrowd(t *testing.T) {
 
 	var res *round.Result
 	goAt := 0
+	// The learning curve's estimates, checked against the run continued.
+	type estimate struct{ round, labels, needed int }
+	var estimates []estimate
 	for r := 1; r <= 15; r++ {
 		var err error
 		out := mustLoop(t, "round", tm.proj, "--json", "--quiet")
@@ -173,6 +176,9 @@ func TestRealTextsWithARealisticCrowd(t *testing.T) {
 		}
 		v := res.Verdict
 		th := v.Threshold
+		if n := v.Decision.LabelsNeeded; n >= 0 {
+			estimates = append(estimates, estimate{res.Round, res.Consensus.LabelsIn, n})
+		}
 		t.Logf("round %2d look %2d: %d labels, %d trained, held-out %d/%d meet the standard, accuracy %.3f; %s; %s",
 			res.Round, res.Look, res.Consensus.LabelsIn, res.Train.Rows, res.HeldOut, res.HeldOutSet, v.Agreement.Accuracy.Est, th.Stop, v.Headline())
 		// A second round on the same labels changes nothing.
@@ -213,6 +219,32 @@ func TestRealTextsWithARealisticCrowd(t *testing.T) {
 		tm.ask(ids)
 	}
 	v := res.Verdict
+	// Where the curve gave an estimate, the labels actually needed to reach
+	// its target error (the first later round whose point on the fixed
+	// evaluation set is at or below it) must be within a factor of 2; a
+	// target not reached by the end, with more than twice the estimate
+	// spent since, is an estimate too optimistic by more than 2.
+	for _, e := range estimates {
+		actual := -1
+		for _, p := range v.Curve {
+			if p.Labels >= e.labels && p.Error <= v.Settings.TargetError {
+				actual = p.Labels - e.labels
+				break
+			}
+		}
+		spent := res.Consensus.LabelsIn - e.labels
+		switch {
+		case actual >= 0 && (float64(e.needed) > 2*float64(max(actual, 1)) || 2*float64(e.needed) < float64(actual)):
+			t.Errorf("round %d estimated %d more labels; the target was reached after %d", e.round, e.needed, actual)
+		case actual < 0 && spent > 2*e.needed:
+			t.Errorf("round %d estimated %d more labels; %d more were spent and the target error %.3f is not reached", e.round, e.needed, spent, v.Settings.TargetError)
+		default:
+			t.Logf("round %d estimated %d more labels (actual: %d; spent since: %d)", e.round, e.needed, actual, spent)
+		}
+	}
+	if len(estimates) == 0 {
+		t.Logf("the learning curve gave no estimate in %d rounds (no estimate yet, as the report says)", res.Round)
+	}
 	{
 		s := tm.store()
 		cs, _, err := s.Consensus()
