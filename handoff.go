@@ -438,9 +438,12 @@ const (
 //
 // Rules: Proba has one calibrated probability per codebook class; Class is
 // the key of its largest entry and Confidence that entry. Model names the
-// model version that gave it; Round the round it was given in.
+// model version that gave it; Round the round it was given in. Question is
+// the key of the question it answers in a question tree ("" for the first
+// question, as in every machine label written before question trees).
 type MachineLabel struct {
 	Item       string    `json:"item"`
+	Question   string    `json:"question,omitempty"`
 	Class      string    `json:"class"`
 	Confidence float64   `json:"confidence"`
 	Proba      []float64 `json:"proba,omitempty"`

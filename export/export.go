@@ -14,8 +14,10 @@ import (
 	"fmt"
 	"io"
 	"regexp"
+	"slices"
 	"sort"
 	"strconv"
+	"strings"
 
 	"github.com/parquet-go/parquet-go"
 
@@ -84,8 +86,19 @@ func Rows(st *store.Store) ([]Row, error) {
 	for _, g := range gs {
 		gold[g.Item] = g.Class
 	}
-	machine := map[string]handoff.MachineLabel{}
-	if err := st.MachineLabels(func(m handoff.MachineLabel) error { machine[m.Item] = m; return nil }); err != nil {
+	machine := map[string]handoff.MachineLabel{} // the first question's
+	follow := map[string]map[string]handoff.MachineLabel{}
+	if err := st.MachineLabels(func(m handoff.MachineLabel) error {
+		if m.Question == "" {
+			machine[m.Item] = m
+		} else {
+			if follow[m.Question] == nil {
+				follow[m.Question] = map[string]handoff.MachineLabel{}
+			}
+			follow[m.Question][m.Item] = m
+		}
+		return nil
+	}); err != nil {
 		return nil, err
 	}
 	var rows []Row
@@ -115,15 +128,16 @@ func Rows(st *store.Store) ([]Row, error) {
 	if err != nil || !cb.Tree() {
 		return rows, err
 	}
-	return rows, addAnswers(st, cb, rows)
+	return rows, addAnswers(st, cb, rows, follow)
 }
 
 // addAnswers fills each row's Answers with the stored consensus of every
-// follow-up question, shown only where the question is asked given the
-// row's exported answers (the first question's Class, then the follow-ups'
-// in order: cb.Asked), so that no item carries an answer to a question its
+// follow-up question, or else its machine label (machine, by question key
+// and item), shown only where the question is asked given the row's
+// exported answers (the first question's Class, then the follow-ups' in
+// order: cb.Asked), so that no item carries an answer to a question its
 // parent answer rules out.
-func addAnswers(st *store.Store, cb handoff.Codebook, rows []Row) error {
+func addAnswers(st *store.Store, cb handoff.Codebook, rows []Row, machine map[string]map[string]handoff.MachineLabel) error {
 	all := cb.All()
 	cons := make([]map[string]handoff.Consensus, len(all))
 	for q := 1; q < len(all); q++ {
@@ -155,6 +169,9 @@ func addAnswers(st *store.Store, cb handoff.Codebook, rows []Row) error {
 					a.Confidence = c.Posterior[k]
 				}
 				given[all[q].Key] = c.Class
+			} else if m, ok := machine[all[q].Key][r.Item]; ok && cb.Asked(q, given) {
+				a.Class, a.Source, a.Confidence = m.Class, string(handoff.SourceMachine), m.Confidence
+				given[all[q].Key] = m.Class
 			}
 			r.Answers[q-1] = a
 		}
@@ -265,9 +282,21 @@ func WriteBatch(w io.Writer, format string, b []round.BatchItem) error {
 		return nil
 	}
 	cw := csv.NewWriter(w)
-	cw.Write([]string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"})
+	// A questions column (keys separated by spaces; empty: the whole tree)
+	// only when some item names questions, so one-question batches keep
+	// their columns.
+	named := slices.ContainsFunc(b, func(x round.BatchItem) bool { return len(x.Questions) > 0 })
+	head := []string{"item", "reason", "score", "kind", "text", "path", "parent", "machine", "crowd"}
+	if named {
+		head = append(head, "questions")
+	}
+	cw.Write(head)
 	for _, x := range b {
-		cw.Write(SafeCells([]string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}))
+		row := []string{x.Item, x.Reason, strconv.FormatFloat(x.Score, 'g', 6, 64), x.Kind, x.Text, x.Path, x.Parent, x.Machine, x.Crowd}
+		if named {
+			row = append(row, strings.Join(x.Questions, " "))
+		}
+		cw.Write(SafeCells(row))
 	}
 	cw.Flush()
 	return cw.Error()

@@ -12,12 +12,18 @@ import (
 // when the project has reference codings or labels of more than one crowd
 // wave, the comparisons with them (Compare) in its Codings, so that the
 // report shows how good the crowd's consensus is that the machine is
-// measured against. The comparisons never change the decision; the stored
-// round is left as it was.
+// measured against; in a question tree, every question's figures and
+// verdict in its Questions. The comparisons never change the decision; the
+// stored round is left as it was.
 func Verdict(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
 	rep, err := verdictOf(st, cfg)
 	if err != nil {
 		return nil, err
+	}
+	if r, err := Latest(st); err == nil && len(r.Questions) > 0 {
+		c := *rep
+		c.Questions = r.Summaries()
+		rep = &c
 	}
 	refs, err := st.References()
 	if err != nil {

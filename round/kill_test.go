@@ -2,6 +2,7 @@ package round
 
 import (
 	"encoding/json"
+	"fmt"
 	"math/rand/v2"
 	"os"
 	"os/exec"
@@ -10,6 +11,7 @@ import (
 	"testing"
 	"time"
 
+	"handoff"
 	"handoff/store"
 )
 
@@ -36,8 +38,9 @@ func TestRoundChild(t *testing.T) {
 // TestKillDuringRound kills a process running a round with SIGKILL at
 // random moments: every time, the store opens clean (bbolt's consistency
 // check passes), and the latest round is whole — its record, model,
-// selection, state and scores all belong to the same round — because a
-// round is one write transaction.
+// selection, state and scores, and its follow-up question's consensus,
+// scores and model, all belong to the same round — because a round is one
+// write transaction.
 func TestKillDuringRound(t *testing.T) {
 	if testing.Short() {
 		t.Skip("runs rounds in child processes and kills them")
@@ -46,8 +49,22 @@ func TestKillDuringRound(t *testing.T) {
 		t.Skip("in the child")
 	}
 	base := t.TempDir()
-	st, _ := smallProject(t, base, 9)
+	st, d := smallProject(t, base, 9)
 	dir := filepath.Join(base, "p")
+	// A follow-up question, so that the round also writes its part.
+	first := st.Codebook().Classes[0].Key
+	if _, err := st.AddQuestion(handoff.Question{Key: "severity", Question: "How bad?", Scale: handoff.Ordinal,
+		Classes: []handoff.Class{{Key: "1"}, {Key: "2"}, {Key: "3"}}, When: &handoff.Condition{Question: "main", In: []string{first}}}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	items, _, _ := d.Of(handoff.KindText)
+	var ls []handoff.Label
+	for i, it := range items {
+		ls = append(ls, handoff.Label{Item: it.ID, Annotator: fmt.Sprintf("sev%d", i%4), Question: "severity", Class: fmt.Sprint(1 + i%3)})
+	}
+	if _, err := st.PutLabels(ls, "test"); err != nil {
+		t.Fatal(err)
+	}
 	cfg := DefaultConfig()
 	cfg.Batch = 60
 	cfg.Verdict.Bootstrap = 200
@@ -143,5 +160,19 @@ func checkWholeRound(t *testing.T, dir string, k int) {
 	}
 	if _, meta, err := st.Consensus(); err != nil || meta == nil {
 		t.Fatalf("kill %d: consensus: %v", k, err)
+	}
+	if len(r.Questions) != 2 || r.Questions[1].Model == "" {
+		t.Fatalf("kill %d: round %d has no follow-up machine: %+v", k, last.N, r.Questions)
+	}
+	q := r.Questions[1]
+	b, err = st.State(questionScoresState(q.Key))
+	if err != nil {
+		t.Fatalf("kill %d: scores of %s: %v", k, q.Key, err)
+	}
+	if sc, err := decodeScores(b); err != nil || sc.Round != last.N || sc.Model != q.Model {
+		t.Fatalf("kill %d: %s's scores are of round %d (%v), the latest round is %d", k, q.Key, sc.Round, err, last.N)
+	}
+	if _, rep, err := StoredQuestionConsensus(st, q.Key); err != nil || rep.Items != q.Consensus.Items {
+		t.Fatalf("kill %d: %s's consensus: %v", k, q.Key, err)
 	}
 }

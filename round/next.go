@@ -104,7 +104,9 @@ func (c *current) labelCounts() []int {
 }
 
 // Next returns the next batch: the latest round's batch as it chose it (the
-// same items with the same reasons), or with NextConfig.Overrides a batch
+// same items with the same reasons; in a question tree with the asks of a
+// question added since the round, stored as the round's batch), or with
+// NextConfig.Overrides a batch
 // picked again from the latest round's scores, or an audit, or the items
 // below the threshold. An audit batch is remembered, so that the verdict can
 // report the error of machine labels once people have labelled them.
@@ -153,7 +155,7 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 		}
 		return out, nil
 	case len(cfg.Overrides) == 0:
-		return c.batch, nil
+		return c.withAdded(st, source)
 	}
 	// Pick again with the changed batch settings.
 	rc = c.r.Config
@@ -206,10 +208,27 @@ func Next(st *store.Store, cfg NextConfig, source string) ([]BatchItem, error) {
 		}
 		pool.Features = spread(x, idx, len(c.p.items))
 	}
+	if c.sn.Codebook.Tree() && (rc.Strategy == "" || rc.Strategy == selector.Entropy) {
+		qs, err := loadQuestionScores(c.sn, c.sc)
+		if err != nil {
+			return nil, err
+		}
+		if pool.Uncertainty, err = treeUncertainty(c.sn.Codebook, pool, qs); err != nil {
+			return nil, err
+		}
+	}
 	batch, err := pickBatch(c.p, pool, rc, c.r.Round, c.machine)
 	if err != nil {
 		return nil, err
 	}
+	// The round's asks of follow-up questions stay in the batch.
+	var asks []BatchItem
+	for _, b := range c.batch {
+		if len(b.Questions) > 0 {
+			asks = append(asks, b)
+		}
+	}
+	batch = withAsks(batch, asks, rc.Batch)
 	b, err := json.Marshal(batch)
 	if err != nil {
 		return nil, err
@@ -305,10 +324,26 @@ type AutolabelReport struct {
 	Go        bool    `json:"go"`
 	Forced    bool    `json:"forced"`
 	Scored    int     `json:"scored"`   // items of the model's kind without crowd labels or gold
-	Labelled  int     `json:"labelled"` // machine labels written
+	Labelled  int     `json:"labelled"` // machine labels written (the first question's in a question tree)
 	Queued    int     `json:"queued"`   // below the threshold: left for people
 	Unscored  int     `json:"unscored"` // added since the round: no score yet
 	Bound     float64 `json:"bound"`    // the verdict's upper bound on disagreement at that threshold
+	// Questions are every question's part in a question tree, first
+	// question first (empty for a one-question project).
+	Questions []AutolabelQuestion `json:"questions,omitempty"`
+}
+
+// AutolabelQuestion is one question's part of an autolabel in a question
+// tree: written only when the question has GO (or with Force), on the
+// items it reaches.
+type AutolabelQuestion struct {
+	Key       string  `json:"key"`
+	Go        bool    `json:"go"`
+	Threshold float64 `json:"threshold,omitempty"`
+	Bound     float64 `json:"bound,omitempty"`
+	Scored    int     `json:"scored"`   // items reached, without labels of the question, with a score
+	Labelled  int     `json:"labelled"` // machine labels written
+	Why       string  `json:"why,omitempty"`
 }
 
 // ErrThreshold is wrapped by the errors of a threshold outside (0, 1].
@@ -328,44 +363,72 @@ func Autolabel(st *store.Store, cfg AutolabelConfig, source string) (*AutolabelR
 	}
 	d := c.r.Verdict.Decision
 	rep := &AutolabelReport{Model: c.r.Model, Round: c.r.Round, Go: d.Go, Forced: cfg.Force && !d.Go}
-	if !d.Go && !cfg.Force {
+	tree := c.sn.Codebook.Tree() && len(c.r.Questions) > 0
+	anyGo := d.Go
+	for _, q := range c.r.Questions {
+		anyGo = anyGo || q.Verdict != nil && q.Verdict.Decision.Go
+	}
+	if !anyGo && !cfg.Force {
 		return nil, fmt.Errorf("the latest verdict (round %d) is NOT YET: %s; label more items and run another round, or pass --force to autolabel anyway (the error bound then does not hold)",
 			c.r.Round, strings.Join(d.Reasons, "; "))
 	}
-	th := cfg.Threshold
-	if th <= 0 {
-		if !c.r.Verdict.Threshold.Found {
-			return nil, fmt.Errorf("the latest verdict found no threshold whose error bound is below %.3g; give one with --threshold", c.r.Verdict.Threshold.MaxError)
-		}
-		th = c.r.Verdict.Threshold.Threshold
-		rep.Bound = c.r.Verdict.Threshold.Upper
-	}
-	rep.Threshold = th
-	keys := c.p.cb.Keys()
-	counts := c.labelCounts()
-	kind := c.r.Train.Kind
+	// In a question tree the first question is written only with its own
+	// GO (or --force); its follow-ups then on their own GO.
+	firstOn := d.Go || cfg.Force
 	var out []handoff.MachineLabel
 	var queue []string
-	for i, it := range c.p.items {
-		if it.Kind != kind || counts[i] > 0 || c.p.gold[i] >= 0 {
-			continue
+	if firstOn {
+		th := cfg.Threshold
+		if th <= 0 {
+			if !c.r.Verdict.Threshold.Found {
+				return nil, fmt.Errorf("the latest verdict found no threshold whose error bound is below %.3g; give one with --threshold", c.r.Verdict.Threshold.MaxError)
+			}
+			th = c.r.Verdict.Threshold.Threshold
+			rep.Bound = c.r.Verdict.Threshold.Upper
 		}
-		row := c.sc.row(i)
-		if row == nil {
-			rep.Unscored++
-			continue
-		}
-		rep.Scored++
-		b := floats.MaxIdx(row)
-		if row[b] >= th {
-			out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: slices.Clone(row), Model: c.r.Model, Round: c.r.Round})
-		} else {
-			queue = append(queue, it.ID)
+		rep.Threshold = th
+		keys := c.p.cb.Keys()
+		counts := c.labelCounts()
+		kind := c.r.Train.Kind
+		for i, it := range c.p.items {
+			if it.Kind != kind || counts[i] > 0 || c.p.gold[i] >= 0 {
+				continue
+			}
+			row := c.sc.row(i)
+			if row == nil {
+				rep.Unscored++
+				continue
+			}
+			rep.Scored++
+			b := floats.MaxIdx(row)
+			if row[b] >= th {
+				out = append(out, handoff.MachineLabel{Item: it.ID, Class: keys[b], Confidence: row[b], Proba: slices.Clone(row), Model: c.r.Model, Round: c.r.Round})
+			} else {
+				queue = append(queue, it.ID)
+			}
 		}
 	}
+	if tree {
+		first := AutolabelQuestion{Key: c.sn.Codebook.FirstKey(), Go: d.Go, Threshold: rep.Threshold, Bound: rep.Bound, Scored: rep.Scored, Labelled: len(out)}
+		if !firstOn {
+			first.Why = "NOT YET: left for people"
+		}
+		more, qs, err := c.autolabelFollowUps(cfg, out)
+		if err != nil {
+			return nil, err
+		}
+		rep.Questions = append([]AutolabelQuestion{first}, qs...)
+		out = append(out, more...)
+	}
+	th := rep.Threshold
 	rep.Labelled, rep.Queued = len(out), len(queue)
+	if tree {
+		rep.Labelled = rep.Questions[0].Labelled
+	}
 	s := c.s.clone()
-	s.Queue = queue
+	if firstOn {
+		s.Queue = queue
+	}
 	sb, err := s.encode()
 	if err != nil {
 		return nil, err

@@ -3,10 +3,11 @@ package round
 import (
 	"errors"
 	"fmt"
-	"handoff"
 	"strings"
 
+	"handoff"
 	"handoff/store"
+	"handoff/verdict"
 )
 
 // QuestionFigures is one question of a project's codebook as the board, the
@@ -79,13 +80,41 @@ func Questions(st *store.Store) ([]QuestionFigures, error) {
 		}
 		out[q] = f
 	}
-	if r, err := Latest(st); err == nil && r != nil && r.Verdict != nil && len(out) > 0 {
-		out[0].Verdict = "NOT YET"
-		if r.Verdict.Decision.Go {
-			out[0].Verdict = "GO"
+	r, err := Latest(st)
+	if err != nil || r == nil {
+		return out, nil
+	}
+	if len(r.Questions) == 0 && r.Verdict != nil && len(out) > 0 {
+		out[0].Verdict, out[0].Why = verdictWords(r.Verdict)
+	}
+	for _, qr := range r.Questions {
+		q, ok := cb.QuestionIndex(qr.Key)
+		if !ok || q >= len(out) {
+			continue
+		}
+		if qr.Verdict == nil {
+			out[q].Why = qr.Why
+			continue
+		}
+		out[q].Verdict, out[q].Why = verdictWords(qr.Verdict)
+	}
+	// A question added since the latest round has not been judged.
+	for q := range out {
+		if out[q].Verdict == "" && out[q].Why == "" {
+			out[q].Why = fmt.Sprintf("no verdict yet: no round has judged %q since it was added; run `loop round DIR`", out[q].Key)
 		}
 	}
 	return out, nil
+}
+
+// verdictWords returns a verdict's decision ("GO", "NOT YET") and what it
+// rests on: the threshold and bound for GO, the first reason otherwise.
+func verdictWords(v *verdict.Report) (string, string) {
+	d := v.Decision
+	if d.Go {
+		return "GO", fmt.Sprintf("error bound %.3g ≤ max-error %.3g at threshold %.3g", d.Bound, v.Settings.MaxError, d.Threshold)
+	}
+	return "NOT YET", strings.Join(d.Reasons, "; ")
 }
 
 // UnknownQuestion is the error of a question key the codebook does not

@@ -36,6 +36,9 @@ type BatchItem struct {
 	// Crowd is the consensus class for conflict and split picks. It is
 	// shown to experts only; the labelling page never shows it.
 	Crowd string `json:"crowd,omitempty"`
+	// Questions are the keys of the questions to ask on the item in a
+	// question tree; empty means the whole tree from the first question.
+	Questions []string `json:"questions,omitempty"`
 }
 
 // Result is one stored round.
@@ -56,6 +59,9 @@ type Result struct {
 	Verdict      *verdict.Report   `json:"verdict"`
 	Batch        []BatchItem       `json:"batch"`
 	Notes        []string          `json:"notes,omitempty"`
+	// Questions are every question's figures in a question tree, first
+	// question first (empty for a one-question project).
+	Questions []QuestionResult `json:"questions,omitempty"`
 }
 
 // ErrNoNewLabels is returned (wrapped) by a round when no label or gold
@@ -131,6 +137,7 @@ type roundInput struct {
 	labelSeq uint64
 	machine  []handoff.MachineLabel
 	stored   map[string]string // the project's settings keys
+	sn       *store.Snapshot
 }
 
 func inputOf(sn *store.Snapshot) (*roundInput, error) {
@@ -146,12 +153,13 @@ func inputOf(sn *store.Snapshot) (*roundInput, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &roundInput{p: p, s: s, labelSeq: sn.LabelSeq, machine: sn.Machine, stored: m}, nil
+	return &roundInput{p: p, s: s, labelSeq: sn.LabelSeq, machine: sn.Machine, stored: m, sn: sn}, nil
 }
 
 // roundOutput is everything a round writes.
 type roundOutput struct {
 	res     *Result
+	more    map[string][]byte // the follow-ups' states
 	cs      []handoff.Consensus
 	csMeta  []byte
 	model   string
@@ -163,10 +171,14 @@ type roundOutput struct {
 }
 
 func (o *roundOutput) commit(st *store.Store, source string) error {
+	states := map[string][]byte{stateName: o.state, scoresState: o.scores}
+	for k, v := range o.more {
+		states[k] = v
+	}
 	return st.CommitRound(store.RoundWrite{
 		Round: o.res.Round, Record: o.records, Consensus: o.cs, ConsensusMeta: o.csMeta,
 		ModelName: o.model, Model: o.mbytes, Selection: o.batch,
-		State:  map[string][]byte{stateName: o.state, scoresState: o.scores},
+		State:  states,
 		Detail: fmt.Sprintf("round %d (look %d), model %s, next batch of %d", o.res.Round, o.res.Look, o.res.Model, len(o.res.Batch)),
 	}, source)
 }
@@ -315,7 +327,7 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 		}
 	}
 	machine := machineMap(in.machine)
-	vin, err := verdictInput(p, cr, s, cfg, func(i int) []float64 { return proba[i*K : (i+1)*K] }, machine, look, t.m.Name, settings)
+	vin, err := verdictInput(p, cr, s, cfg, func(i int) []float64 { return proba[i*K : (i+1)*K] }, machine, look, t.m.Name, settings, nil)
 	if err != nil {
 		return nil, err
 	}
@@ -323,9 +335,24 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 	if err != nil {
 		return nil, fmt.Errorf("verdict: %w", err)
 	}
+	// Every follow-up of a question tree: its consensus, machine and verdict.
+	var tr *treeRun
+	if in.sn != nil && in.sn.Codebook.Tree() {
+		first := QuestionResult{Key: in.sn.Codebook.FirstKey(), Consensus: cr.report, Train: t.rep, Model: t.m.Name, Verdict: rep,
+			HeldOut: vin.settled, HeldOutAsked: members}
+		first.Alpha, first.AlphaMetric = alphaOf(cr, in.sn.Codebook.Scale == handoff.Ordinal)
+		if tr, err = runFollowUps(in, cr, first, t, sc, s, cfg, look, settings); err != nil {
+			return nil, err
+		}
+	}
 	// The next batch.
 	pool := buildPool(p, cr, sc, kind, held, machine, meets)
 	pool.Features = t.all
+	if tr != nil && (cfg.Strategy == "" || cfg.Strategy == selector.Entropy) {
+		if pool.Uncertainty, err = treeUncertainty(in.sn.Codebook, pool, tr.scores); err != nil {
+			return nil, err
+		}
+	}
 	if cfg.Strategy == selector.Committee {
 		var cand []int
 		for i, st := range pool.State {
@@ -343,6 +370,9 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 	if err != nil {
 		return nil, err
 	}
+	if tr != nil {
+		batch = withAsks(batch, tr.questionAsks(in.sn.Codebook, p, cr, kind, held, cfg.Standard, cfg.Seed+1000003*uint64(s.Round)), cfg.Batch)
+	}
 	pooled := 0
 	for i, it := range p.items {
 		if it.Kind == kind && !labelled(i) {
@@ -354,11 +384,17 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 		Consensus: cr.report, Train: t.rep, HeldOut: vin.settled, HeldOutSet: members, HeldOutShare: held.Share,
 		Pool: pooled, Verdict: rep, Batch: batch, Notes: notes,
 	}
+	if tr != nil {
+		res.Questions = tr.results
+	}
 	if !fresh {
 		res.Notes = append(res.Notes, "forced: no labels are new since the last round, so this round is not a new look and adds nothing to the learning curve or the stop rule")
 	}
 	res.Fingerprint = fingerprint(p, cfg)
 	out := &roundOutput{res: res, cs: cr.cs, model: t.m.Name}
+	if tr != nil {
+		out.more = tr.states
+	}
 	if out.csMeta, err = json.Marshal(cr.report); err != nil {
 		return nil, err
 	}
@@ -378,10 +414,13 @@ func step(in *roundInput, cfg Config, settings []verdict.Setting, force bool) (*
 	return out, nil
 }
 
+// machineMap returns the first question's machine labels by item id.
 func machineMap(ms []handoff.MachineLabel) map[string]handoff.MachineLabel {
 	m := make(map[string]handoff.MachineLabel, len(ms))
 	for _, x := range ms {
-		m[x.Item] = x
+		if x.Question == "" {
+			m[x.Item] = x
+		}
 	}
 	return m
 }
@@ -398,9 +437,11 @@ type builtInput struct {
 // of the kind without crowd labels or gold, machine-labelled ones
 // included), the annotators' leave-one-out figures, the stop set, the
 // learning curve on one evaluation set, the audit, the consensus's error on
-// gold, and the stored machine labels' model.
+// gold, and the stored machine labels' model. With reach not nil only the
+// items it marks count (a follow-up's: those its parent's answer asks it
+// on).
 func verdictInput(p *project, cr *consensusResult, s *state, cfg Config, proba func(i int) []float64,
-	machine map[string]handoff.MachineLabel, look int, model string, settings []verdict.Setting) (*builtInput, error) {
+	machine map[string]handoff.MachineLabel, look int, model string, settings []verdict.Setting, reach []bool) (*builtInput, error) {
 	K := len(p.cb.Classes)
 	held := s.HeldOut
 	if held == nil {
@@ -415,7 +456,7 @@ func verdictInput(p *project, cr *consensusResult, s *state, cfg Config, proba f
 	labelsOn := 0
 	labelledItems := 0
 	for i, it := range p.items {
-		if it.Kind != kind {
+		if it.Kind != kind || reach != nil && !reach[i] {
 			continue
 		}
 		if cr.nlabels[i] > 0 {

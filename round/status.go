@@ -78,6 +78,24 @@ func consensusStatus(st *store.Store) (any, string, error) {
 	}
 	t := fmt.Sprintf("method %s; %d items still uncertain (posterior < %.2f); %d with no labels after cleaning\n",
 		r.Config.Method, r.Uncertain, r.Config.Uncertain, r.NoLabels)
+	cb := st.Codebook()
+	if cb.Tree() {
+		qs := map[string]any{}
+		for _, x := range cb.All()[1:] {
+			_, qr, err := StoredQuestionConsensus(st, x.Key)
+			switch {
+			case errors.Is(err, ErrNothing):
+				t += fmt.Sprintf("question %s: no consensus yet\n", x.Key)
+				continue
+			case err != nil:
+				return nil, "", err
+			}
+			qs[x.Key] = map[string]any{"items": qr.Items - qr.NoLabels, "uncertain": qr.Uncertain, "not_asked": qr.NotAsked, "method": qr.Model}
+			t += fmt.Sprintf("question %s: %d items with a consensus (%d still uncertain), %d not asked (their parent's answer does not call for it)\n",
+				x.Key, qr.Items-qr.NoLabels, qr.Uncertain, qr.NotAsked)
+		}
+		v["questions"] = qs
+	}
 	return v, t, nil
 }
 
@@ -87,7 +105,21 @@ func roundStatus(st *store.Store) (any, string, error) {
 		return nil, "", nil
 	}
 	v := map[string]any{"round": r.Round, "model": r.Model, "decision": r.Verdict.Decision, "held_out": r.HeldOut, "pool": r.Pool}
-	return v, fmt.Sprintf("latest round %d, model %s: %s\n", r.Round, r.Model, r.Verdict.Headline()), nil
+	t := fmt.Sprintf("latest round %d, model %s: %s\n", r.Round, r.Model, r.Verdict.Headline())
+	if len(r.Questions) > 0 {
+		sums := r.Summaries()
+		v["questions"] = sums
+		t += "questions (each with its own machine and verdict):\n"
+		for _, q := range sums {
+			for i, l := range q.Lines() {
+				if i > 0 {
+					l = "  " + l
+				}
+				t += "  " + l + "\n"
+			}
+		}
+	}
+	return v, t, nil
 }
 
 // WorkspaceProjects lists the subfolders of dir that hold a project, when

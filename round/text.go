@@ -304,6 +304,17 @@ func (r *Result) Text(dir string, over []Override) string {
 	}
 	fmt.Fprintf(&b, "  next batch: %d items (%s); write it with `loop next %s`\n", len(r.Batch), Reasons(r.Batch), dir)
 	fmt.Fprintf(&b, "verdict: %s\n", r.Verdict.Headline())
+	if len(r.Questions) > 0 {
+		b.WriteString("questions (each with its own machine and verdict; the figures above are the first question's):\n")
+		for _, q := range r.Summaries() {
+			for i, l := range q.Lines() {
+				if i > 0 {
+					l = "  " + l
+				}
+				fmt.Fprintf(&b, "  %s\n", l)
+			}
+		}
+	}
 	return b.String()
 }
 
@@ -331,8 +342,12 @@ func overridesText(over []Override) string {
 // Text is the report as `loop autolabel` prints it.
 func (r *AutolabelReport) Text() string {
 	var b strings.Builder
-	fmt.Fprintf(&b, "autolabel with model %s (round %d) at threshold %.4g:\n", r.Model, r.Round, r.Threshold)
-	fmt.Fprintf(&b, "  %d items without crowd labels scored: %d machine-labelled, %d left for people\n", r.Scored, r.Labelled, r.Queued)
+	if len(r.Questions) > 0 && r.Questions[0].Why != "" {
+		fmt.Fprintf(&b, "autolabel with the machines of round %d: %d machine labels; the first question %s\n", r.Round, r.Labelled, r.Questions[0].Why)
+	} else {
+		fmt.Fprintf(&b, "autolabel with model %s (round %d) at threshold %.4g:\n", r.Model, r.Round, r.Threshold)
+		fmt.Fprintf(&b, "  %d items without crowd labels scored: %d machine-labelled, %d left for people\n", r.Scored, r.Labelled, r.Queued)
+	}
 	if r.Unscored > 0 {
 		fmt.Fprintf(&b, "  %d items added since round %d have no score yet: run a round to score them\n", r.Unscored, r.Round)
 	}
@@ -340,6 +355,21 @@ func (r *AutolabelReport) Text() string {
 		b.WriteString("  FORCED without a GO verdict: no error bound holds for these labels; audit them\n")
 	} else if r.Bound > 0 {
 		fmt.Fprintf(&b, "  upper bound on disagreement with the crowd at this threshold: %.3f\n", r.Bound)
+	}
+	if len(r.Questions) > 0 {
+		b.WriteString("  per question (written only where the question has GO; a follow-up only where its parent's answer asks it):\n")
+		for _, q := range r.Questions {
+			switch {
+			case q.Why != "":
+				fmt.Fprintf(&b, "    %s: %s\n", q.Key, q.Why)
+			default:
+				fmt.Fprintf(&b, "    %s: %d of %d items scored machine-labelled at threshold %.4g", q.Key, q.Labelled, q.Scored, q.Threshold)
+				if q.Bound > 0 {
+					fmt.Fprintf(&b, " (upper bound on disagreement %.3f)", q.Bound)
+				}
+				b.WriteString("\n")
+			}
+		}
 	}
 	return b.String()
 }

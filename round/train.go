@@ -223,6 +223,14 @@ func featurise(p *project, kind handoff.Kind, rows []int, cfg TrainConfig, m *le
 // soft targets, measures it by grouped k-fold cross-validation, fits the
 // temperature on the out-of-fold probabilities, and refits on all rows.
 func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, error) {
+	return trainOn(p, post, rows, cfg, nil)
+}
+
+// trainOn is train; with shared not nil it reuses shared's feature
+// extraction and feature rows of the archive (a follow-up question's
+// machine in a question tree uses the first question's) instead of
+// featurising again.
+func trainOn(p *project, post []float64, rows []int, cfg TrainConfig, shared *trained) (*trained, error) {
 	K := len(p.cb.Classes)
 	kind := cfg.Kind
 	if kind == "" {
@@ -290,9 +298,15 @@ func train(p *project, post []float64, rows []int, cfg TrainConfig) (*trained, e
 		sub[j] = s
 	}
 	m := &learner.Machine{Kind: kind, Learner: lname, Classes: p.cb.Keys(), Present: present, Temperature: 1, Fingerprint: learner.Fingerprint(fp)}
-	all, err := featurise(p, kind, rows, cfg, m)
-	if err != nil {
-		return nil, err
+	var all features.Matrix
+	if shared != nil {
+		m.Text, m.Image, m.Scaler = shared.m.Text, shared.m.Image, shared.m.Scaler
+		all = shared.all
+	} else {
+		var err error
+		if all, err = featurise(p, kind, rows, cfg, m); err != nil {
+			return nil, err
+		}
 	}
 	X := learner.Subset(all, rows)
 	// Grouped k-fold (learner.GroupKFold): items of one parent stay together.

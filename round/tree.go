@@ -168,16 +168,38 @@ func QuestionConsensus(st *store.Store, key string, cfg ConsensusConfig, source 
 			asked[i] = ok && in[c]
 		}
 	}
-	p, err := questionProject(sn, q, asked)
+	_, _, sq, err := followUpConsensus(sn, q, asked, cfg)
 	if err != nil {
 		return nil, err
 	}
+	rep, cs := sq.Report, sq.Consensus
+	j, err := json.Marshal(storedQuestion{Report: rep, Consensus: cs})
+	if err != nil {
+		return nil, err
+	}
+	if err := st.PutStates(map[string][]byte{questionState(x.Key): j}, "consensus.put", fmt.Sprintf("question %q: %d items", x.Key, len(cs)), source); err != nil {
+		return nil, err
+	}
+	return rep, nil
+}
+
+// followUpConsensus cleans and combines follow-up q's labels on the items
+// where it is asked (asked nil: every item) and returns its project, the
+// consensus in memory and what is stored: the report (Items the items
+// asked, NotAsked the rest) and the consensus of the items asked and
+// answered.
+func followUpConsensus(sn *store.Snapshot, q int, asked []bool, cfg ConsensusConfig) (*project, *consensusResult, *storedQuestion, error) {
+	x := sn.Codebook.All()[q]
+	p, err := questionProject(sn, q, asked)
+	if err != nil {
+		return nil, nil, nil, err
+	}
 	if p.labels.Len() == 0 {
-		return nil, fmt.Errorf("%w: question %q has no labels on the items where it is asked; add some with `loop labels add` (a question column, or one column per question)", ErrNothing, x.Key)
+		return nil, nil, nil, fmt.Errorf("%w: question %q has no labels on the items where it is asked; add some with `loop labels add` (a question column, or one column per question)", ErrNothing, x.Key)
 	}
 	cr, err := consensus(p, cfg)
 	if err != nil {
-		return nil, fmt.Errorf("question %q: %w", x.Key, err)
+		return nil, nil, nil, fmt.Errorf("question %q: %w", x.Key, err)
 	}
 	rep := cr.report
 	rep.Question = x.Key
@@ -195,14 +217,7 @@ func QuestionConsensus(st *store.Store, key string, cfg ConsensusConfig, source 
 		cs = append(cs, c)
 	}
 	rep.Items, rep.NotAsked, rep.NoLabels = nAsked, len(sn.Items)-nAsked, noLabels
-	j, err := json.Marshal(storedQuestion{Report: rep, Consensus: cs})
-	if err != nil {
-		return nil, err
-	}
-	if err := st.PutStates(map[string][]byte{questionState(x.Key): j}, "consensus.put", fmt.Sprintf("question %q: %d items", x.Key, len(cs)), source); err != nil {
-		return nil, err
-	}
-	return rep, nil
+	return p, cr, &storedQuestion{Report: rep, Consensus: cs}, nil
 }
 
 // StoredQuestionConsensus returns the stored consensus of one question

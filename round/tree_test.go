@@ -2,6 +2,7 @@ package round
 
 import (
 	"bytes"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"math/rand/v2"
@@ -196,9 +197,12 @@ func TestQuestionOrder(t *testing.T) {
 }
 
 // The first question's round in a tree is the one-question project's: the
-// same round record and model, byte for byte, with follow-up labels stored.
+// same consensus, model, training and verdict, byte for byte, with
+// follow-up labels stored; the tree's round adds its questions (the first
+// one's figures are the round's) and a batch that weighs the follow-up.
 func TestTreeRoundIsTheFirstQuestions(t *testing.T) {
-	var rounds, models [][]byte
+	var rounds []*Result
+	var models, metas [][]byte
 	for _, tree := range []bool{false, true} {
 		st, d := smallProject(t, t.TempDir(), 3)
 		if tree {
@@ -222,12 +226,21 @@ func TestTreeRoundIsTheFirstQuestions(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		rb, _ := st.Round(r.Round)
 		mb, _ := st.Model(r.Model)
-		rounds, models = append(rounds, rb), append(models, mb)
+		_, meta, _ := st.Consensus()
+		rounds, models, metas = append(rounds, r), append(models, mb), append(metas, meta)
 	}
-	if !bytes.Equal(rounds[0], rounds[1]) || !bytes.Equal(models[0], models[1]) {
-		t.Errorf("the first question's round in a tree differs from the one-question project's")
+	if !bytes.Equal(metas[0], metas[1]) || !bytes.Equal(models[0], models[1]) {
+		t.Errorf("the first question's consensus or model in a tree differs from the one-question project's")
+	}
+	js := func(v any) string { b, _ := json.Marshal(v); return string(b) }
+	one, tree := rounds[0], rounds[1]
+	if js(one.Train) != js(tree.Train) || js(one.Verdict) != js(tree.Verdict) || one.Fingerprint != tree.Fingerprint {
+		t.Errorf("the first question's training or verdict in a tree differs from the one-question project's")
+	}
+	if len(one.Questions) != 0 || len(tree.Questions) != 2 || tree.Questions[0].Key != "main" ||
+		js(tree.Questions[0].Verdict) != js(one.Verdict) || tree.Questions[1].Key != "severity" {
+		t.Errorf("questions: one-question %d, tree %d", len(one.Questions), len(tree.Questions))
 	}
 }
 

@@ -68,7 +68,7 @@ func verdictOf(st *store.Store, cfg VerdictConfig) (*verdict.Report, error) {
 	if !changed {
 		return r.Verdict.WithAudit(auditCounts(c.p, cr, c.s, c.machine))
 	}
-	vin, err := verdictInput(c.p, cr, c.s, rc, c.sc.row, c.machine, max(r.Look, 1), r.Model, settings)
+	vin, err := verdictInput(c.p, cr, c.s, rc, c.sc.row, c.machine, max(r.Look, 1), r.Model, settings, nil)
 	if err != nil {
 		return nil, err
 	}

@@ -80,6 +80,11 @@ type Pool struct {
 	// Features holds one feature row per item, for density weighting and
 	// diversity (nil when neither is used).
 	Features features.Matrix
+	// Uncertainty, when not nil, is the model-unsure score per item used in
+	// place of the entropy strategy's (e.g. TreeUncertainty over a question
+	// tree); Proba still gives the predicted class for balancing. Other
+	// strategies ignore it.
+	Uncertainty []float64
 }
 
 // Plan says how many items to pick for each reason and how.
@@ -198,6 +203,7 @@ func Select(pool Pool, plan Plan) ([]Pick, error) {
 	check("Proba", len(pool.Proba), pool.Proba != nil)
 	check("Consensus", len(pool.Consensus), pool.Consensus != nil)
 	check("Labels", len(pool.Labels), pool.Labels != nil)
+	check("Uncertainty", len(pool.Uncertainty), pool.Uncertainty != nil)
 	for m, c := range pool.Committee {
 		check(fmt.Sprintf("Committee[%d]", m), len(c), true)
 	}
@@ -428,6 +434,11 @@ func unsure(pool Pool, plan Plan, st Strategy, taken []bool, want int, ranked fu
 		s, err := Scores(st, rows)
 		if err != nil {
 			return nil, err
+		}
+		if pool.Uncertainty != nil && st == Entropy {
+			for k, i := range cand {
+				s[k] = pool.Uncertainty[i]
+			}
 		}
 		for k, i := range cand {
 			score[i] = s[k]

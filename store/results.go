@@ -145,7 +145,19 @@ func (s *Store) Selection(round int) ([]byte, error) { return s.get(bSelections,
 // Selections returns every selection in round order.
 func (s *Store) Selections() ([]Numbered, error) { return s.numbered(bSelections) }
 
-// MachineLabels calls fn for every machine label, ordered by item id.
+// MachineKey is the key of a machine label in the store: its item id for
+// the first question (Question ""), so that records written before question
+// trees read as the first question's; item id, a 0 byte and the question key
+// for a follow-up. Keys sort by item id, each item's first question first.
+func MachineKey(m handoff.MachineLabel) []byte {
+	if m.Question == "" {
+		return []byte(m.Item)
+	}
+	return []byte(m.Item + "\x00" + m.Question)
+}
+
+// MachineLabels calls fn for every machine label (every question's),
+// ordered by item id.
 func (s *Store) MachineLabels(fn func(m handoff.MachineLabel) error) error {
 	return s.each(bMachineLabels, func(k, v []byte) error {
 		var m handoff.MachineLabel

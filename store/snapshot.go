@@ -166,7 +166,7 @@ type RoundWrite struct {
 	// State holds named states to replace (read back with State).
 	State map[string][]byte
 	// Machine are machine labels to write, each replacing any earlier
-	// machine label of its item (items must exist).
+	// machine label of its item and question (items must exist).
 	Machine []handoff.MachineLabel
 	// Action names the change in the audit trail ("" means
 	// "round.commit"); Detail says in words what was done.
@@ -193,7 +193,7 @@ func (s *Store) CommitRound(w RoundWrite, source string) error {
 				if ids.Get([]byte(m.Item)) == nil {
 					return dataErr("item", "machine label for unknown item %q", m.Item)
 				}
-				if err := putJSON(b, []byte(m.Item), m); err != nil {
+				if err := putJSON(b, MachineKey(m), m); err != nil {
 					return err
 				}
 			}

@@ -69,7 +69,7 @@ var (
 	bModelOrder    = []byte("model_order")     // sequence number → version
 	bRounds        = []byte("rounds")          // round number → bytes
 	bSelections    = []byte("selections")      // round number → bytes
-	bMachineLabels = []byte("machine_labels")  // item id → JSON machine label
+	bMachineLabels = []byte("machine_labels")  // MachineKey (item id, + "\x00" + question for a follow-up) → JSON machine label
 	bPeople        = []byte("people")          // person id → bytes
 	bTokens        = []byte("tokens")          // token (hash) → bytes
 	bLeases        = []byte("leases")          // unused; made and checked so that files stay readable by earlier releases

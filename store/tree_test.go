@@ -253,3 +253,48 @@ func TestAddQuestion(t *testing.T) {
 		t.Errorf("audit entry %+v, want codebook.add-question", a)
 	}
 }
+
+// Machine labels are kept per question: a record written before question
+// trees (keyed by item id, no question field) reads as the first
+// question's, a follow-up's machine label of the same item sits beside it,
+// and a new first-question label replaces the old one only.
+func TestMachineLabelsPerQuestion(t *testing.T) {
+	s := newTreeStore(t, treeCodebook)
+	old := []byte(`{"item":"i001","class":"a","confidence":0.9,"model":"r1-old","round":1}`)
+	if err := s.db.Update(func(tx *bolt.Tx) error { return tx.Bucket(bMachineLabels).Put([]byte("i001"), old) }); err != nil {
+		t.Fatal(err)
+	}
+	read := func() []handoff.MachineLabel {
+		t.Helper()
+		var got []handoff.MachineLabel
+		if err := s.MachineLabels(func(m handoff.MachineLabel) error { got = append(got, m); return nil }); err != nil {
+			t.Fatal(err)
+		}
+		sn, err := s.Snapshot(SnapshotOptions{})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if !reflect.DeepEqual(sn.Machine, got) {
+			t.Errorf("snapshot machine labels %+v, MachineLabels %+v", sn.Machine, got)
+		}
+		return got
+	}
+	if got := read(); len(got) != 1 || got[0].Question != "" || got[0].Class != "a" {
+		t.Fatalf("old record read as %+v, want the first question's class a", got)
+	}
+	sev := handoff.MachineLabel{Item: "i001", Question: "severity", Class: "high", Confidence: 0.8, Model: "r2-sev", Round: 2}
+	first := handoff.MachineLabel{Item: "i001", Class: "b", Confidence: 0.95, Model: "r2-top", Round: 2}
+	other := handoff.MachineLabel{Item: "i002", Question: "severity", Class: "low", Confidence: 0.7, Model: "r2-sev", Round: 2}
+	if err := s.CommitRound(RoundWrite{Round: 2, Machine: []handoff.MachineLabel{sev, other}}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if got := read(); len(got) != 3 || got[0].Class != "a" || !reflect.DeepEqual(got[1:], []handoff.MachineLabel{sev, other}) {
+		t.Fatalf("after a follow-up's labels: %+v", got)
+	}
+	if err := s.CommitRound(RoundWrite{Round: 3, Machine: []handoff.MachineLabel{first}}, "test"); err != nil {
+		t.Fatal(err)
+	}
+	if got := read(); len(got) != 3 || !reflect.DeepEqual(got[:2], []handoff.MachineLabel{first, sev}) {
+		t.Fatalf("after a new first-question label: %+v, want it to replace the old one and keep the follow-up's", got)
+	}
+}

@@ -200,6 +200,11 @@ ul.key{list-style:none;display:flex;flex-wrap:wrap;gap:.2rem 1.2rem;padding:0;ma
 The median annotator agrees with the others on {{pct .MedianAgreement}} of their items; the machine agrees with the reference on {{pct .MachineAgreement}} of the {{n .MachineItems}} held-out items it would autolabel: {{if .AtLeastMedian}}at least as good as{{else}}below{{end}} the median annotator.</p>
 {{end}}{{template "figure" .AnnotatorPlot}}{{end}}
 
+{{if .R.Questions}}<h2>Questions</h2>
+<p class="muted">Each question of the tree has its own machine and its own verdict; the sections below are the first question's.</p>
+{{range .R.Questions}}<section class="question" id="question-{{.Key}}"><h3>{{.Key}}: {{.Decision}}</h3>
+<ul>{{range .Lines}}<li>{{.}}</li>{{end}}</ul></section>
+{{end}}{{end}}
 <h2>Coverage and risk</h2>
 {{with .R.Threshold}}
 <p>Thresholds are the distinct held-out confidences, tested from the most confident down (fixed-sequence testing), each with a one-sided Clopper–Pearson upper bound on the disagreement at level {{.Level}} (this look's share of α); thresholds covering fewer than {{n .MinCount}} items are not tested.

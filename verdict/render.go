@@ -74,6 +74,17 @@ func (r *Report) WriteText(w io.Writer) error {
 	for _, x := range d.Notes {
 		p("  note: %s\n", x)
 	}
+	if len(r.Questions) > 0 {
+		p("\nQuestions (each with its own machine and verdict; the detail below is the first question's)\n")
+		for _, q := range r.Questions {
+			for i, l := range q.Lines() {
+				if i > 0 {
+					l = "  " + l
+				}
+				p("  %s\n", l)
+			}
+		}
+	}
 	p("\nLook %d: α = %.3g spent across looks by %s; this look tests at α_%d = %.3g (level %.6g)\n",
 		s.Look, s.Alpha, s.Spending, s.Look, s.LookAlpha, 1-s.LookAlpha)
 	if st := r.Standard; st != nil {

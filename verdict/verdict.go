@@ -309,6 +309,10 @@ type Report struct {
 	// report is shown; nil when the project has none. They never enter
 	// the decision.
 	Codings *compare.Report `json:"codings,omitempty"`
+	// Questions are every question of a question tree (this report's
+	// detail is the first's), attached when the report is shown; nil for a
+	// one-question project. They never enter the decision.
+	Questions []QuestionSummary `json:"questions,omitempty"`
 }
 
 // WithAudit returns a copy of the report with the audit replaced by a (nil

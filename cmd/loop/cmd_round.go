@@ -92,7 +92,17 @@ The verdict's error bound holds at the stated confidence over all rounds a team
 runs before its first GO: α = 1 − confidence is spent across looks, look r
 testing at α/(r(r+1)). Only rounds with labels new since the last one are looks:
 without new labels a round changes nothing and says so (--force runs it anyway,
-without adding a look).`,
+without adding a look).
+
+In a question tree every question's consensus (a follow-up's conditional on
+its parent's), machine and verdict are computed in the same round and
+commit: one machine per question, trained on the items with a consensus for
+it, all on one featurisation of the archive; the held-out figures, the bound
+and GO per question, over the held-out items that reach it. The next batch
+weighs the model's uncertainty over the tree (Σ over questions of the chance
+an item reaches it times its machine's entropy; a question without a machine
+counts at its largest entropy) and asks follow-ups people have not answered
+yet — a question added later — on items labelled for the others.`,
 		Example: `  loop round proj
   loop round proj -n 300 --strategy margin --max-error 0.03
   loop round particles --debias magnification --reference-stratum 40
@@ -143,6 +153,9 @@ labelling page. Each item carries its reason:
   audit           (with --audit N) a random machine-labelled item, to measure
                   the real error after handoff
   below-threshold (with --below-threshold) an item autolabel left for people
+  new-question    (a question tree) an item people answered the other
+                  questions on: ask only the follow-ups it names (a question
+                  added later, or one its parent's consensus now asks)
 
 With -n, --shares, --strategy, --diversity, --density, --balanced or --seed the
 batch is picked again from the latest round's scores with those settings (the
@@ -291,6 +304,11 @@ not featurised again), writes a machine label (class, calibrated confidence,
 model version, round) for each item at or above the threshold, and queues the rest for people (write them
 with ` + "`loop next DIR --below-threshold`" + `). The threshold is the verdict's
 (auto) unless you give one. Without a GO verdict it refuses unless --force.
+
+In a question tree each question is written only where it has GO (with its own
+threshold): a follow-up only on items whose parent answer — the crowd's
+consensus, or else the parent's machine label — asks it. The rest stay for
+people.
 
 Machine labels are evidence, not truth: audit a random sample afterwards with
 ` + "`loop next DIR --audit N`" + `.`,

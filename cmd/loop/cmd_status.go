@@ -19,7 +19,9 @@ func newStatusCmd() *cobra.Command {
 		Short: "Summarise a project: items, labels, annotators, gold",
 		Long: `status prints what the project holds: items by kind, how many items have
 labels, the labels and annotators, the gold answers, and how many labels each
-item has. Later steps (consensus, rounds) add their own sections.
+item has. Later steps (consensus, rounds) add their own sections; in a
+question tree they show each question: its items with a consensus, the
+crowd's agreement, its machine's accuracy and its own verdict.
 
 Given a folder that holds projects in its subfolders (a workspace, such as
 the one ` + "`loop demo`" + ` builds), it reports each project and the totals.`,
