@@ -15,20 +15,11 @@ func init() { register(newStatusCmd) }
 func newStatusCmd() *cobra.Command {
 	var asJSON bool
 	c := &cobra.Command{
-		Use:   "status DIR",
-		Short: "Summarise a project: items, labels, annotators, gold",
-		Long: `status prints what the project holds: items by kind, how many items have
-labels, the labels and annotators, the gold answers, and how many labels each
-item has. Later steps (consensus, rounds) add their own sections; in a
-question tree they show each question: its items with a consensus, the
-crowd's agreement, its machine's accuracy and its own verdict.
-
-Given a folder that holds projects in its subfolders (a workspace, such as
-the one ` + "`loop demo`" + ` builds), it reports each project and the totals.`,
-		Example: `  loop status proj
-  loop status /tmp/handoff-demo      # a folder of projects: each, and the totals
-  loop status proj --json | jq .labels`,
-		Args: cobra.ExactArgs(1),
+		Use:     "status DIR",
+		Short:   "Summarise a project: items, labels, annotators, gold",
+		Long:    helpLong("status"),
+		Example: helpExample("status"),
+		Args:    cobra.ExactArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			sections := append(slices.Clone(round.Sections), statusSections...)
 			if ws, err := round.WorkspaceProjects(args[0]); err == nil && len(ws) > 0 {
