@@ -2,18 +2,15 @@ package main
 
 import (
 	"errors"
-	"fmt"
 	"os"
 	"path/filepath"
-	"strings"
-	"text/tabwriter"
-	"time"
 
 	"github.com/spf13/cobra"
 
 	"handoff"
 	"handoff/ingest"
 	"handoff/internal/cli"
+	"handoff/round"
 	"handoff/store"
 )
 
@@ -92,46 +89,13 @@ func newReferenceListCmd() *cobra.Command {
 		Example: helpExample("reference-list"),
 		Args:    cobra.ExactArgs(1),
 		RunE: withStore(func(cmd *cobra.Command, s *store.Store, args []string) error {
-			refs, err := s.References()
+			rows, text, err := round.References(s, args[0])
 			if err != nil {
 				return err
 			}
-			if asJSON {
-				type row struct {
-					Name   string                `json:"name"`
-					Kind   handoff.ReferenceKind `json:"kind"`
-					Rows   int                   `json:"rows"`
-					Source string                `json:"source"`
-					Added  string                `json:"added,omitempty"`
-				}
-				out := []row{}
-				for _, r := range refs {
-					out = append(out, row{r.Name, r.Kind(), r.Len(), r.Source, stamp(r)})
-				}
-				return cli.JSON(cmd, out)
-			}
-			if len(refs) == 0 {
-				cli.Out(cmd, "no reference codings yet; add one with `loop reference add %s FILE --name NAME`\n", args[0])
-				return nil
-			}
-			var b strings.Builder
-			tw := tabwriter.NewWriter(&b, 0, 0, 2, ' ', 0)
-			fmt.Fprintln(tw, "name\tcodes\trows\tsource\tadded")
-			for _, r := range refs {
-				fmt.Fprintf(tw, "%s\t%s\t%d\t%s\t%s\n", r.Name, r.Kind(), r.Len(), r.Source, stamp(r))
-			}
-			tw.Flush()
-			cli.Out(cmd, "%s", b.String())
-			return nil
+			return cli.Show(cmd, asJSON, rows, text)
 		}),
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print JSON")
 	return c
-}
-
-func stamp(r handoff.Reference) string {
-	if r.Added.IsZero() {
-		return ""
-	}
-	return r.Added.UTC().Format(time.RFC3339)
 }

@@ -49,24 +49,10 @@ func registerUnder(parent string, f func() *cobra.Command) {
 // newRoot builds the whole command tree.
 func newRoot() *cobra.Command {
 	root := &cobra.Command{
-		Use:   "loop",
-		Short: "Turn crowd labels into consensus, train a classifier, decide when it may take over",
-		Long: `loop keeps a labelling project in one directory: the items to label, the
-codebook, the crowd's labels and gold answers, and everything computed from them.
-
-The job, step by step: combine the crowd's labels into a consensus (consensus,
-agreement); train the machine on it and pick the items people should label next
-(round, next); when the verdict on the held-out set says GO, let the machine
-label the rest above the threshold and audit a random sample (verdict,
-autolabel, next --audit); export every label with its source (export, rollup).
-Try it on an invented scenario first: loop demo /tmp/handoff-demo`,
-		Example: `  loop demo /tmp/handoff-demo
-  loop init proj --codebook codebook.yaml
-  loop items add proj reports.csv --split sentences
-  loop labels add proj labels.csv
-  loop round proj && loop next proj --out batch.csv
-  loop verdict proj --html report.html
-  loop autolabel proj && loop export proj --format csv --out labels.csv`,
+		Use:           "loop",
+		Short:         "Turn crowd labels into consensus, train a classifier, decide when it may take over",
+		Long:          helpLong("loop"),
+		Example:       helpExample("loop"),
 		SilenceErrors: true,
 		SilenceUsage:  true,
 	}
